@@ -1,0 +1,1 @@
+"""The Qt-free heart of Layerloom: design model, block kinds, inference, findings, mends, costs, files."""

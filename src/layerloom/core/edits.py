@@ -1,0 +1,221 @@
+"""Edits: every change to a design is a sequence of small reversible operations.
+
+``design.apply(edit)`` performs an :class:`Edit` and returns its inverse, so the editor's undo
+stack (and any script) can take a change back exactly. The builder functions below check their
+input first and raise :class:`EditError` (or :class:`~layerloom.core.settings.SettingError`) with
+a message naming the block and the value, before anything changes.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, NamedTuple
+
+from layerloom.core.graph import Block, Graph, Wire, kind_stem
+from layerloom.core.kinds import KINDS
+from layerloom.core.settings import SettingError
+
+
+class EditError(ValueError):
+    """An edit that cannot be made; the message says which block and why."""
+
+
+class AddBlock(NamedTuple):
+    graph: str
+    id: str
+    kind: str
+    name: str
+    settings: dict
+    position: tuple
+
+    def apply(self, design) -> "RemoveBlock":
+        design.graph(self.graph)._insert_block(Block(self.id, self.kind, self.name, dict(self.settings), self.position))
+        return RemoveBlock(*self)
+
+
+class RemoveBlock(NamedTuple):
+    graph: str
+    id: str
+    kind: str
+    name: str
+    settings: dict
+    position: tuple
+
+    def apply(self, design) -> AddBlock:
+        b = design.graph(self.graph)._delete_block(self.id)
+        return AddBlock(self.graph, b.id, b.kind, b.name, b.settings, b.position)
+
+
+class AddWire(NamedTuple):
+    graph: str
+    wire: Wire
+
+    def apply(self, design) -> "RemoveWire":
+        design.graph(self.graph)._insert_wire(self.wire)
+        return RemoveWire(self.graph, self.wire)
+
+
+class RemoveWire(NamedTuple):
+    graph: str
+    wire: Wire
+
+    def apply(self, design) -> AddWire:
+        design.graph(self.graph)._delete_wire(self.wire)
+        return AddWire(self.graph, self.wire)
+
+
+class SetBlock(NamedTuple):
+    """Replace one attribute of a block (``settings``, ``name`` or ``position``)."""
+
+    graph: str
+    id: str
+    attribute: str
+    value: Any
+
+    def apply(self, design) -> "SetBlock":
+        b = design.graph(self.graph).blocks[self.id]
+        old = getattr(b, self.attribute)
+        setattr(b, self.attribute, dict(self.value) if self.attribute == "settings" else self.value)
+        return SetBlock(self.graph, self.id, self.attribute, old)
+
+
+class SetField(NamedTuple):
+    """Replace a design-wide field (``name``, ``batch``, ``dtype``, ``notes``, ``budget``, …)."""
+
+    name: str
+    value: Any
+
+    def apply(self, design) -> "SetField":
+        old = getattr(design, self.name)
+        setattr(design, self.name, self.value)
+        return SetField(self.name, old)
+
+
+class AddMotif(NamedTuple):
+    """Define a motif (an empty one; its blocks and wires follow as further operations)."""
+
+    name: str
+    params: dict
+
+    def apply(self, design) -> "RemoveMotif":
+        design._insert_motif(self.name, dict(self.params))
+        return RemoveMotif(self.name, self.params)
+
+
+class RemoveMotif(NamedTuple):
+    """Delete an empty motif definition."""
+
+    name: str
+    params: dict
+
+    def apply(self, design) -> AddMotif:
+        m = design._delete_motif(self.name)
+        return AddMotif(m.name, m.params)
+
+
+@dataclass(frozen=True)
+class Edit:
+    """A labelled sequence of operations, applied in order (undone in reverse)."""
+
+    label: str
+    ops: tuple = field(default=())
+
+    def __add__(self, other: "Edit") -> "Edit":
+        return Edit(self.label, self.ops + other.ops)
+
+
+# ----- builders: check first, then describe the change -------------------------------------
+
+
+def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
+    """Complete and check settings for a block of ``kind``. In a motif, a value ``{"param": name}``
+    refers to a motif parameter; it is checked with the parameter's default."""
+    if kind not in KINDS:
+        raise EditError(f"unknown block kind {kind!r}; known kinds: {', '.join(KINDS)}")
+    spec = KINDS[kind]
+    params = design.motifs[graph].params if graph else {}
+    plain, refs = {}, {}
+    for key, value in settings.items():
+        if isinstance(value, dict):
+            ref = value.get("param")
+            if not graph or ref not in params or len(value) != 1:
+                where = f"motif {graph!r}" if graph else "the design (parameters exist only inside motifs)"
+                raise SettingError(f"{key}: {value!r} refers to no parameter of {where}")
+            refs[key] = value
+            plain[key] = params[ref]
+        else:
+            plain[key] = value
+    checked = spec.check_settings(plain)
+    checked.update(refs)
+    return checked
+
+
+def add_block(design, kind: str, settings: dict | None = None, *, name: str | None = None,
+              position=None, graph: str = "", inputs=(), block_id: str | None = None) -> tuple[Edit, str]:
+    """An edit that adds one block (wired from ``inputs``: ``(id, port)`` pairs) and its id."""
+    g = design.graph(graph)
+    checked = check_settings(design, kind, settings or {}, graph)
+    bid = block_id or g.fresh_id()
+    pos = tuple(position) if position is not None else g.layout_position()
+    ops = [AddBlock(graph, bid, kind, name if name is not None else g.fresh_name(kind_stem(kind)), checked, pos)]
+    for port, (src, src_port) in enumerate(inputs):
+        src_id = g.block(src).id
+        ops.append(AddWire(graph, Wire(src_id, src_port, bid, port)))
+    return Edit(f"Add {kind}", tuple(ops)), bid
+
+
+def connect(g: Graph, wire: Wire) -> Edit:
+    for bid in (wire.src, wire.dst):
+        if bid not in g.blocks:
+            raise EditError(f"cannot wire: there is no block {bid!r}")
+    if wire in g.wires:
+        raise EditError(f"{g.blocks[wire.src].name} is already wired to {g.blocks[wire.dst].name}")
+    return Edit("Wire", (AddWire(g.key, wire),))
+
+
+def disconnect(g: Graph, wire: Wire) -> Edit:
+    if wire not in g.wires:
+        raise EditError(f"there is no such wire: {wire}")
+    return Edit("Remove wire", (RemoveWire(g.key, wire),))
+
+
+def set_settings(design, block_id: str, changes: dict, graph: str = "") -> Edit:
+    """An edit that changes some settings of one block (the rest keep their values)."""
+    b = design.graph(graph).blocks[block_id]
+    merged = dict(b.settings)
+    merged.update(changes)
+    try:
+        checked = check_settings(design, b.kind, merged, graph)
+    except SettingError as e:
+        raise SettingError(f"{b.name}: {e}") from None
+    return Edit(f"Change {b.name}", (SetBlock(graph, block_id, "settings", checked),))
+
+
+def rename(g: Graph, block_id: str, name: str) -> Edit:
+    return Edit(f"Rename {g.blocks[block_id].name}", (SetBlock(g.key, block_id, "name", name),))
+
+
+def move(g: Graph, positions: dict[str, tuple[float, float]]) -> Edit:
+    return Edit("Move", tuple(SetBlock(g.key, bid, "position", tuple(p)) for bid, p in positions.items()))
+
+
+def remove_blocks(g: Graph, block_ids) -> Edit:
+    """An edit that removes blocks together with every wire touching them."""
+    ids = list(dict.fromkeys(block_ids))
+    wires = {}
+    for bid in ids:
+        for w in g.in_wires[bid] + g.out_wires[bid]:
+            wires[w] = None
+    ops = [RemoveWire(g.key, w) for w in wires]
+    for bid in ids:
+        b = g.blocks[bid]
+        ops.append(RemoveBlock(g.key, b.id, b.kind, b.name, b.settings, b.position))
+    return Edit("Delete" if len(ids) != 1 else f"Delete {g.blocks[ids[0]].name}", tuple(ops))
+
+
+def insert_on_wire(design, wire: Wire, kind: str, settings: dict, graph: str = "", name: str | None = None) -> Edit:
+    """An edit that puts a new one-in, one-out block in the middle of ``wire``."""
+    g = design.graph(graph)
+    a, b = g.blocks[wire.src].position, g.blocks[wire.dst].position
+    edit, bid = add_block(design, kind, settings, name=name, graph=graph, inputs=[(wire.src, wire.src_port)],
+                          position=((a[0] + b[0]) / 2, (a[1] + b[1]) / 2 + 60.0))
+    return Edit(f"Insert {kind}", (RemoveWire(graph, wire),) + edit.ops + (AddWire(graph, Wire(bid, 0, wire.dst, wire.dst_port)),))

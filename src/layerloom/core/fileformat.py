@@ -1,0 +1,183 @@
+"""The ``.loom`` file format: JSON described by ``resources/loom.schema.json``.
+
+Reading never evaluates anything; a broken file raises :class:`LoomFileError` whose message names
+the file, the place inside it (``blocks[3] (conv_2) settings.stride``) and the offending value.
+Writing is atomic: a temporary file beside the target is written, flushed and renamed over it.
+"""
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from layerloom.core import edits
+from layerloom.core.design import Design
+from layerloom.core.graph import Wire
+from layerloom.core.settings import SettingError
+from layerloom.resources import resource
+
+FORMAT, VERSION = "layerloom-design", 1
+_validator = None
+
+
+class LoomFileError(ValueError):
+    """A design file that cannot be read: the message names the file and the place inside it."""
+
+
+def _schema_validator():
+    global _validator
+    if _validator is None:
+        import jsonschema
+
+        schema = json.loads(resource("loom.schema.json").read_text(encoding="utf-8"))
+        _validator = jsonschema.Draft202012Validator(schema)
+    return _validator
+
+
+def _reject_constant(name: str):
+    raise ValueError(f"{name} is not allowed in a design file")
+
+
+def parse(text: str, source: str = "<text>") -> Design:
+    """Build a :class:`Design` from the text of a ``.loom`` file."""
+    try:
+        data = json.loads(text, parse_constant=_reject_constant)
+    except json.JSONDecodeError as e:
+        raise LoomFileError(f"{source}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
+    except (ValueError, RecursionError) as e:
+        raise LoomFileError(f"{source}: not a design file: {e}") from None
+    if not isinstance(data, dict):
+        raise LoomFileError(f"{source}: a design file holds a JSON object, not {type(data).__name__}")
+    if data.get("format") != FORMAT:
+        raise LoomFileError(f"{source}: not a Layerloom design (format is {data.get('format')!r}, expected {FORMAT!r})")
+    if data.get("version") != VERSION:
+        raise LoomFileError(f"{source}: design format version {data.get('version')!r} is not supported "
+                            f"(this Layerloom reads version {VERSION})")
+    try:
+        error = next(iter(sorted(_schema_validator().iter_errors(data), key=lambda e: list(e.absolute_path))), None)
+    except RecursionError:
+        raise LoomFileError(f"{source}: nested too deeply to be a design file") from None
+    if error is not None:
+        raise LoomFileError(f"{source}: {_place(data, list(error.absolute_path))}: {error.message}")
+    try:
+        return _build(data)
+    except (SettingError, edits.EditError, ValueError, KeyError) as e:
+        raise LoomFileError(f"{source}: {e}") from None
+
+
+def load(path: str | os.PathLike) -> Design:
+    """Read a ``.loom`` file; raises :class:`LoomFileError` naming the place of any problem."""
+    path = Path(path)
+    try:
+        text = path.read_bytes().decode("utf-8")
+    except OSError as e:
+        raise LoomFileError(f"{path}: cannot read: {e.strerror or e}") from None
+    except UnicodeDecodeError as e:
+        raise LoomFileError(f"{path}: not UTF-8 text (byte {e.start})") from None
+    return parse(text, str(path))
+
+
+def _place(data: Any, path: list) -> str:
+    """``['blocks', 3, 'settings', 'stride']`` → ``blocks[3] (conv_2) settings.stride``."""
+    out, node = "", data
+    for step in path:
+        if isinstance(step, int):
+            out += f"[{step}]"
+            node = node[step] if isinstance(node, list) and step < len(node) else None
+            if isinstance(node, dict) and isinstance(node.get("name"), str):
+                out += f" ({node['name']})"
+        else:
+            out += ("." if out and not out.endswith(")") else (" " if out else "")) + str(step)
+            node = node.get(step) if isinstance(node, dict) else None
+    return out or "the top level"
+
+
+def _build(data: dict) -> Design:
+    design = Design(data.get("name", "untitled"), data.get("batch", 1), data.get("dtype", "fp32"),
+                    data.get("notes", ""))
+    motifs = data.get("motifs", [])
+    ops: list = []
+    seen = set()
+    for i, m in enumerate(motifs):
+        if m["name"] in seen:
+            raise LoomFileError(f"motifs[{i}]: motif name {m['name']!r} is used twice")
+        seen.add(m["name"])
+        ops.append(edits.AddMotif(m["name"], dict(m.get("params", {}))))
+    design.apply(edits.Edit("Load", tuple(ops)))
+    with design.bulk():
+        for i, m in enumerate(motifs):
+            _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({m['name']}) ")
+        _fill(design, "", data["blocks"], data["wires"], "")
+    return design
+
+
+def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> None:
+    ops: list = []
+    ids: dict[str, str] = {}
+    for i, b in enumerate(blocks):
+        label = f"{where}blocks[{i}]" + (f" ({b['name']})" if b.get("name") else "")
+        if b["id"] in ids:
+            raise LoomFileError(f"{label}: block id {b['id']!r} is used twice")
+        try:
+            settings = edits.check_settings(design, b["kind"], b.get("settings", {}), graph)
+        except (SettingError, edits.EditError) as e:
+            raise LoomFileError(f"{label}: {e}") from None
+        ids[b["id"]] = b["kind"]
+        ops.append(edits.AddBlock(graph, b["id"], b["kind"], b.get("name", b["id"]), settings,
+                                  tuple(b.get("position", (0.0, 0.0)))))
+    seen = set()
+    for i, w in enumerate(wires):
+        (src, sp), (dst, dp) = w["from"], w["to"]
+        for end, bid in (("from", src), ("to", dst)):
+            if bid not in ids:
+                raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {bid!r}")
+        wire = Wire(src, sp, dst, dp)
+        if wire in seen:
+            raise LoomFileError(f"{where}wires[{i}]: the same wire appears twice")
+        seen.add(wire)
+        ops.append(edits.AddWire(graph, wire))
+    design.apply(edits.Edit("Load", tuple(ops)))
+
+
+def to_data(design: Design) -> dict:
+    """The JSON-ready dictionary of a design (what :func:`save` writes)."""
+    def blocks(g):
+        return [{"id": b.id, "kind": b.kind, "name": b.name, "settings": b.settings, "position": list(b.position)}
+                for b in g.blocks.values()]
+
+    def wires(g):
+        return [{"from": [w.src, w.src_port], "to": [w.dst, w.dst_port]} for w in g.wires]
+
+    data: dict[str, Any] = {"format": FORMAT, "version": VERSION, "name": design.name, "batch": design.batch,
+                            "dtype": design.dtype, "notes": design.notes}
+    if design.motifs:
+        data["motifs"] = [{"name": m.name, "params": m.params, "blocks": blocks(m), "wires": wires(m)}
+                          for m in design.motifs.values()]
+    data["blocks"] = blocks(design)
+    data["wires"] = wires(design)
+    return data
+
+
+def dumps(design: Design) -> str:
+    return json.dumps(to_data(design), indent=1, ensure_ascii=False) + "\n"
+
+
+def save(design: Design, path: str | os.PathLike) -> None:
+    """Write ``design`` to ``path`` atomically (an interrupted save leaves the old file intact)."""
+    path = Path(path)
+    text = dumps(design)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as f:
+            f.write(text)
+            f.flush()
+            os.fsync(f.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise

@@ -1,0 +1,404 @@
+"""Shape inference: every port's shape, each block's cost and receptive field, and the findings.
+
+Reads like an interpreter: blocks in topological order (longest-path level, then insertion
+order), one step per block, an environment of :class:`Result` keyed by block id. Problems the
+user can fix are :class:`~layerloom.core.findings.Finding` data, never exceptions. After an edit
+only the changed blocks and what lies downstream of them are computed again, and propagation stops
+where a block's outputs come out unchanged.
+
+Receptive field and effective stride (jump) are in input pixels per axis: a window of extent k and
+stride s gives rf' = rf + (k − 1)·jump and jump' = jump·s; branches take the larger value.
+Transposed convolution and upsampling divide the jump (a first-order convention).
+"""
+from __future__ import annotations
+
+import graphlib
+import heapq
+from typing import NamedTuple
+
+from layerloom.core.findings import ERROR, WARNING, Finding, Report, Stop, sort_findings
+from layerloom.core.kinds import KINDS, Cost
+from layerloom.core.liveness import live_profile
+from layerloom.core.settings import SettingError
+from layerloom.core.shapes import Shape
+
+ONE = (1, 1)
+
+
+class Result(NamedTuple):
+    """What inference knows of one block (costs are per sample; a motif's include its repeats)."""
+
+    ins: tuple[Shape, ...]
+    outs: tuple[Shape, ...]  # one per output port; an Output block repeats its input here
+    cost: Cost
+    rf: tuple[float, float]
+    jump: tuple[float, float]
+    extra: int = 0  # transient elements inside a motif instance beyond its inputs and outputs
+
+
+class MotifRun(NamedTuple):
+    """One motif inferred for given input shapes and parameter values."""
+
+    outs: tuple  # per output port: Shape or None
+    cost: Cost
+    rf: tuple[float, float]  # receptive field of one use, from a port with rf 1 and jump 1
+    jump: tuple[float, float]
+    extra: int
+    findings: tuple[Finding, ...]
+
+
+def _add_costs(costs) -> Cost:
+    w = b = m = o = 0
+    for c in costs:
+        w += c[0]
+        b += c[1]
+        m += c[2]
+        o += c[3]
+    return Cost(w, b, m, o)
+
+
+class GraphInference:
+    """Inference of one graph: the design, or a motif fed the shapes of one instance's inputs."""
+
+    def __init__(self, graph, analysis: "Analysis", ports: tuple | None = None, params: dict | None = None,
+                 stack: tuple[str, ...] = ()):
+        self.graph, self.analysis, self.ports, self.params, self.stack = graph, analysis, ports, params, stack
+        self.order: list[str] = []
+        self.position: dict[str, int] = {}
+        self.level: dict[str, int] = {}
+        self.results: dict[str, Result | None] = {}
+        self.findings: dict[str, list[Finding]] = {}
+        self.graph_findings: list[Finding] = []
+        self.port_index: dict[str, int] = {}
+
+    # ----- passes
+    def run(self) -> None:
+        """Infer every block."""
+        self._reorder()
+        for bid in self.order:
+            self._compute(bid)
+
+    def update(self, dirty: set[str], topology: bool) -> None:
+        """Infer again the ``dirty`` blocks and whatever downstream changes because of them."""
+        if topology:
+            self._reorder()
+        position, out_wires = self.position, self.graph.out_wires
+        heap = [(position[b], b) for b in dirty if b in position]
+        heapq.heapify(heap)
+        done = set()
+        while heap:
+            _, bid = heapq.heappop(heap)
+            if bid in done:
+                continue
+            done.add(bid)
+            if self._compute(bid):
+                for w in out_wires[bid]:
+                    if w.dst not in done:
+                        heapq.heappush(heap, (position[w.dst], w.dst))
+
+    # ----- order, cycles, dead ends
+    def _reorder(self) -> None:
+        g = self.graph
+        blocks, out_wires = g.blocks, g.out_wires
+        indeg = {b: len(ws) for b, ws in g.in_wires.items()}
+        level = {b: 0 for b, n in indeg.items() if n == 0}
+        queue = list(level)
+        for b in queue:
+            nxt = level[b] + 1
+            for w in out_wires[b]:
+                d = w.dst
+                if level.get(d, 0) < nxt:
+                    level[d] = nxt
+                indeg[d] -= 1
+                if indeg[d] == 0:
+                    queue.append(d)
+        insertion = {b: i for i, b in enumerate(blocks)}
+        queue.sort(key=lambda b: (level[b], insertion[b]))
+        found: list[Finding] = []
+        if len(queue) < len(blocks):
+            stuck = [b for b in blocks if indeg[b] > 0]
+            found += self._cycles(stuck)
+            top = level[queue[-1]] + 1 if queue else 0
+            for b in stuck:
+                level[b] = top
+                self.results[b] = None
+            queue += stuck
+        self.order = queue
+        self.level = level
+        self.position = {b: i for i, b in enumerate(queue)}
+        for gone in set(self.results) - blocks.keys():
+            del self.results[gone]
+            self.findings.pop(gone, None)
+        self.port_index = {b.id: i for i, b in enumerate(g.of_kind("Input"))}
+        found += self._dead_ends()
+        self.graph_findings = found
+
+    def _cycles(self, stuck: list[str]) -> list[Finding]:
+        """Name every loop among the blocks that could not be ordered (graphlib finds each)."""
+        g = self.graph
+        members = set(stuck)
+        preds = {b: [w.src for w in g.in_wires[b] if w.src in members] for b in stuck}
+        found = []
+        while True:
+            try:
+                graphlib.TopologicalSorter(preds).prepare()
+                return found
+            except graphlib.CycleError as e:
+                loop = e.args[1]
+            names = " → ".join(g.blocks[b].name for b in reversed(loop))
+            for b in dict.fromkeys(loop):
+                found.append(Finding("graph.cycle", ERROR, b, f"{g.blocks[b].name} is on a loop of wires: {names}"))
+                preds.pop(b, None)
+            for b in preds:
+                preds[b] = [p for p in preds[b] if p in preds]
+
+    def _dead_ends(self) -> list[Finding]:
+        g = self.graph
+        outputs = g.of_kind("Output")
+        if not outputs:
+            if not g.blocks:
+                return []
+            return [Finding("graph.no_output", WARNING, "", "there is no Output block, so nothing is produced")]
+        return [Finding("graph.dead_end", WARNING, b.id, f"nothing after {b.name} reaches an Output")
+                for b in g.blocks.values() if not g.out_wires[b.id] and b.kind != "Output"]
+
+    # ----- one step
+    def _compute(self, bid: str) -> bool:
+        """Infer one block; return True when its outputs or receptive field changed."""
+        g = self.graph
+        blk = g.blocks[bid]
+        kind_name = blk.kind
+        kind = KINDS[kind_name]
+        s = blk.settings
+        found: list[Finding] = []
+        old = self.results.get(bid)
+        result = None
+        try:
+            if self.params is not None:
+                s = self._resolve(blk)
+            motif = self._motif(blk) if kind_name == "Motif" else None
+            n_in = len(motif.ports()[0]) if motif is not None else kind.input_count(s)
+            wires = g.in_wires[bid]
+            if n_in == 1 and len(wires) == 1 and wires[0].dst_port == 0:
+                w = wires[0]
+                r = self.results.get(w.src)
+                if r is not None and w.src_port < len(r.outs):
+                    ins, rf, jump = (r.outs[w.src_port],), r.rf, r.jump
+                else:
+                    ins = None
+            else:
+                ins, rf, jump = self._gather(blk, n_in, wires, found)
+            if kind_name == "Input":
+                result = self._input(blk, s)
+            elif ins is None:
+                pass
+            elif motif is not None:
+                result = self._use(blk, s, motif, ins, rf, jump, found)
+            elif kind_name == "Output":
+                result = Result(ins, ins, Cost(), rf, jump)
+            else:
+                report = Report(bid, blk.name)
+                out = kind.shape(s, ins, report)
+                found += report.found
+                window = kind.window(s, ins)
+                if window is not None:
+                    kh, kw, sh, sw = window
+                    rf = (rf[0] + (kh - 1) * jump[0], rf[1] + (kw - 1) * jump[1])
+                    jump = (jump[0] * sh, jump[1] * sw)
+                result = Result(ins, (out,), kind.cost(s, ins, out), rf, jump)
+        except Stop as e:
+            found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
+        self.results[bid] = result
+        if found:
+            self.findings[bid] = found
+        else:
+            self.findings.pop(bid, None)
+        if old is None or result is None:
+            return old is not result
+        return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump
+
+    def _gather(self, blk, n_in, wires, found):
+        """Input shapes of a block with several ports (or odd wiring); None if any is unknown."""
+        by_port: list[list] = [[] for _ in range(n_in)]
+        for w in wires:
+            if w.dst_port < n_in:
+                by_port[w.dst_port].append(w)
+            else:
+                found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input port"
+                                     f"{'s' if n_in != 1 else ''} but a wire goes to port {w.dst_port + 1}",
+                                     w.dst_port))
+        ins, rf, jump, known = [], [1, 1], [1, 1], True
+        for port, ws in enumerate(by_port):
+            if not ws:
+                found.append(Finding("port.unwired", ERROR, blk.id,
+                                     f"input {port + 1} of {blk.name} has no wire" if n_in > 1
+                                     else f"{blk.name} has no input wire", port))
+                known = False
+            elif len(ws) > 1:
+                names = ", ".join(self.graph.blocks[w.src].name for w in ws)
+                found.append(Finding("port.multiple", ERROR, blk.id, f"input {port + 1} of {blk.name} has "
+                                     f"{len(ws)} wires (from {names}); join them with an Add or Concat", port,
+                                     (len(ws), 1)))
+                known = False
+            else:
+                w = ws[0]
+                r = self.results.get(w.src)
+                if r is None or w.src_port >= len(r.outs):
+                    known = False
+                    continue
+                ins.append(r.outs[w.src_port])
+                rf = [max(rf[0], r.rf[0]), max(rf[1], r.rf[1])]
+                jump = [max(jump[0], r.jump[0]), max(jump[1], r.jump[1])]
+        return (tuple(ins), tuple(rf), tuple(jump)) if known else (None, None, None)
+
+    def _input(self, blk, s) -> Result | None:
+        if self.ports is None:
+            shape = Shape.chw(s["channels"], s["height"], s["width"])
+        else:
+            k = self.port_index[blk.id]
+            if k >= len(self.ports) or self.ports[k] is None:
+                return None
+            shape = self.ports[k]
+        return Result((), (shape,), Cost(), ONE, ONE)
+
+    def _resolve(self, blk) -> dict:
+        s = blk.settings
+        if not any(type(v) is dict for v in s.values()):
+            return s
+        params = self.params
+        resolved = {k: params[v["param"]] if type(v) is dict else v for k, v in s.items()}
+        try:
+            return KINDS[blk.kind].check_settings(resolved)
+        except SettingError as e:
+            raise Stop("motif.param", f"{blk.name}: {e}") from None
+
+    # ----- motifs
+    def _motif(self, blk):
+        name = blk.settings["motif"]
+        motif = self.analysis.design.motifs.get(name)
+        if motif is None:
+            raise Stop("motif.missing", f"{blk.name} uses motif {name!r}, which this design does not define")
+        if name in self.stack:
+            raise Stop("motif.recursive", f"motif {name!r} contains itself (through {' › '.join(self.stack)})")
+        return motif
+
+    def _use(self, blk, s, motif, ins, rf, jump, found) -> Result | None:
+        params = {**motif.params, **{k: v for k, v in s.items() if k not in ("motif", "repeat")}}
+        unknown = params.keys() - motif.params.keys()
+        if unknown:
+            raise Stop("motif.param", f"{blk.name} sets {', '.join(sorted(unknown))}, which motif {motif.name!r} "
+                       f"does not have (it has: {', '.join(motif.params) or 'no parameters'})")
+        run = self.analysis.motif_run(motif, ins, params, self.stack)
+        found += [f.inside(blk.id, blk.name) for f in run.findings]
+        repeat = s["repeat"]
+        if repeat > 1 and (len(ins) != 1 or len(run.outs) != 1 or run.outs[0] != ins[0]):
+            shown = run.outs[0] if len(run.outs) == 1 else f"{len(run.outs)} outputs"
+            raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {motif.name!r} ×{repeat}, but one use turns "
+                       f"{ins[0] if len(ins) == 1 else f'{len(ins)} inputs'} into {shown}, so the copies cannot be "
+                       "stacked; use repeat 1 for the shape-changing use", numbers=(str(shown), str(ins[0])))
+        if any(o is None for o in run.outs):
+            return None
+        for _ in range(repeat):
+            rf = (rf[0] + (run.rf[0] - 1) * jump[0], rf[1] + (run.rf[1] - 1) * jump[1])
+            jump = (jump[0] * run.jump[0], jump[1] * run.jump[1])
+        cost = Cost(*(v * repeat for v in run.cost)) if repeat > 1 else run.cost
+        return Result(ins, run.outs, cost, rf, jump, run.extra)
+
+
+class Analysis:
+    """Live results for a design: shapes, costs and findings, brought up to date on access.
+
+    >>> from layerloom import Design
+    >>> d = Design(); x = d.input(3, 64, 64); y = d.add("MaxPool2d", x, kernel=2, stride=2)
+    >>> str(d.analysis().shape(y))
+    '3×32×32'
+    """
+
+    def __init__(self, design):
+        self.design = design
+        self.motif_runs: dict[tuple, MotifRun] = {}
+        self.top = GraphInference(design, self)
+        self._dirty: set[str] = set()
+        self._topology = True
+        self._stale = True
+        self._profile: list[int] | None = None
+        self.revision = 0  # counts refreshes that may have changed results
+        design.subscribe(self._on_change)
+
+    def _on_change(self, change) -> None:
+        if not change.reinfers:
+            return
+        if change.motifs or any(change.dirty.keys() - {""}) or change.topology - {""}:
+            self.motif_runs.clear()
+            self._dirty.update(b.id for b in self.design.of_kind("Motif"))
+        self._dirty |= change.dirty.get("", set())
+        self._topology = self._topology or "" in change.topology
+        self._stale = True
+
+    def refresh(self) -> "Analysis":
+        """Bring results up to date with the design (cheap when nothing changed)."""
+        if self._stale:
+            top = self.top
+            if self._topology and (not top.results or len(self._dirty) * 2 > len(self.design.blocks)):
+                top.run()
+            else:
+                top.update(self._dirty, self._topology)
+            self._dirty, self._topology, self._stale, self._profile = set(), False, False, None
+            self.revision += 1
+        return self
+
+    def motif_run(self, motif, ins: tuple, params: dict, stack: tuple) -> MotifRun:
+        key = (motif.name, ins, tuple(sorted(params.items())))
+        run = self.motif_runs.get(key)
+        if run is None:
+            inner = GraphInference(motif, self, ins, params, stack + (motif.name,))
+            inner.run()
+            in_ids, out_ids = motif.ports()
+            outs = tuple(inner.results[b].outs[0] if inner.results.get(b) else None for b in out_ids)
+            done = [inner.results[b] for b in out_ids if inner.results.get(b)]
+            rf = (max((r.rf[0] for r in done), default=1), max((r.rf[1] for r in done), default=1))
+            jump = (max((r.jump[0] for r in done), default=1), max((r.jump[1] for r in done), default=1))
+            peak = max(live_profile(motif, inner.order, inner.results), default=0)
+            ends = sum(x.elements for x in ins) + sum(o.elements for o in outs if o is not None)
+            findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
+            cost = _add_costs(r.cost for r in inner.results.values() if r is not None)
+            run = MotifRun(outs, cost, rf, jump, max(peak - ends, 0), findings)
+            self.motif_runs[key] = run
+        return run
+
+    # ----- reading results
+    @property
+    def order(self) -> list[str]:
+        """Block ids in depth order (longest-path level, then insertion order)."""
+        return self.refresh().top.order
+
+    @property
+    def level(self) -> dict[str, int]:
+        return self.refresh().top.level
+
+    def result(self, block_id: str) -> Result | None:
+        return self.refresh().top.results.get(block_id)
+
+    def shape(self, block_id: str, port: int = 0) -> Shape | None:
+        """Output shape of ``block_id`` at output ``port`` (for an Output block: what it receives)."""
+        r = self.result(block_id)
+        return r.outs[port] if r is not None and port < len(r.outs) else None
+
+    def findings_of(self, block_id: str) -> list[Finding]:
+        top = self.refresh().top
+        return top.findings.get(block_id, []) + [f for f in top.graph_findings if f.block == block_id]
+
+    def all_findings(self) -> list[Finding]:
+        """Every finding, errors first, then warnings, then notes (each in depth order)."""
+        top = self.refresh().top
+        pos = top.position
+        found = [f for fs in top.findings.values() for f in fs] + top.graph_findings
+        found.sort(key=lambda f: pos.get(f.block, -1))
+        return sort_findings(found)
+
+    def live_profile(self) -> list[int]:
+        """Live activation elements per sample at each step of :attr:`order`."""
+        top = self.refresh().top
+        if self._profile is None:
+            self._profile = live_profile(self.design, top.order, top.results)
+        return self._profile

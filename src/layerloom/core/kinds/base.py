@@ -1,0 +1,146 @@
+"""The block-kind registry: each kind is declared once, with its settings, ports and rules.
+
+A kind is a subclass of :class:`Kind` registered with :func:`register` (which refuses a second
+kind of the same name). Its rules see shapes and settings, never tensors:
+
+- ``shape(s, ins, report)`` → the output :class:`~layerloom.core.shapes.Shape`, or raises
+  :class:`~layerloom.core.findings.Stop` with an error finding; warnings/notes go to ``report``.
+- ``cost(s, ins, out)`` → :class:`Cost` for one sample (the ledger multiplies by the batch size).
+- ``window(s, ins)`` → ``(kh, kw, sh, sw)``, the kernel extent and stride in input pixels that the
+  receptive-field pass uses, or ``None`` when the block looks at one position at a time.
+- ``summary(s)`` → settings in trade notation (``3×3 /2 · 128``).
+- ``torch_layer(s, ins, out)`` → source of the ``nn.Module`` that computes the block, or ``None``
+  for a block computed by an expression (``torch_expr``).
+"""
+from __future__ import annotations
+
+from typing import Any, NamedTuple
+
+from layerloom.core.findings import Stop
+from layerloom.core.settings import Setting, SettingError
+from layerloom.core.shapes import Shape
+
+
+class Cost(NamedTuple):
+    """What one block costs for one sample.
+
+    ``weights``: learned parameters (weights, bias, norm scale and shift), as PyTorch's
+    ``sum(p.numel() for p in module.parameters())``. ``buffers``: stored non-learned values (norm
+    running mean and variance, batch counter). ``macs``: multiply-accumulates of convolutions and
+    linear layers. ``other``: other element-wise operations (norms, activations, pooling, joins), a
+    rough count of one per element per step.
+    """
+
+    weights: int = 0
+    buffers: int = 0
+    macs: int = 0
+    other: int = 0
+
+
+FREE = Cost()
+
+KINDS: dict[str, "Kind"] = {}
+
+
+def register(cls: type["Kind"]) -> type["Kind"]:
+    """Class decorator: add one instance of ``cls`` to :data:`KINDS`; refuses duplicate names."""
+    kind = cls()
+    if kind.name in KINDS:
+        raise ValueError(f"block kind {kind.name!r} is declared twice")
+    kind.stem = kind.stem or kind.name.lower()
+    kind.settings_by_key = {s.key: s for s in kind.settings}
+    kind.defaults = {s.key: s.default for s in kind.settings}
+    KINDS[kind.name] = kind
+    return cls
+
+
+class Kind:
+    """Base of all block kinds; the defaults describe a one-in, one-out, shape-keeping block."""
+
+    name: str = ""
+    title: str = ""  # shown on the Parts shelf
+    family: str = ""
+    stem: str = ""  # default block names are stem_1, stem_2, …; empty means the lower-case name
+    settings: tuple[Setting, ...] = ()
+    settings_by_key: dict[str, Setting]
+    defaults: dict[str, Any]
+    view = False  # output aliases the input (no new activation memory)
+    scriptable = True  # accepted by torch.jit.script once exported
+
+    def input_count(self, s: dict) -> int:
+        return 1
+
+    def output_count(self, s: dict) -> int:
+        return 1
+
+    def shape(self, s: dict, ins: tuple[Shape, ...], report) -> Shape:
+        return ins[0]
+
+    def cost(self, s: dict, ins: tuple[Shape, ...], out: Shape) -> Cost:
+        return FREE
+
+    def window(self, s: dict, ins: tuple[Shape, ...]):
+        return None
+
+    def summary(self, s: dict) -> str:
+        return ""
+
+    def torch_layer(self, s: dict, ins: tuple[Shape, ...], out: Shape) -> str | None:
+        raise NotImplementedError(self.name)
+
+    def torch_expr(self, s: dict, args: list[str]) -> str:
+        """Forward expression for kinds without a layer (``torch_layer`` returns ``None``)."""
+        raise NotImplementedError(self.name)
+
+    def check_settings(self, settings: dict) -> dict:
+        """Complete ``settings`` with defaults and check each; raises SettingError naming the key."""
+        out = dict(self.defaults)
+        for key, value in settings.items():
+            spec = self.settings_by_key.get(key)
+            if spec is None:
+                raise SettingError(f"{self.name} has no setting {key!r} (it has: {', '.join(self.settings_by_key) or 'none'})")
+            out[key] = spec.check(value)
+        return out
+
+
+def need_map(x: Shape, name: str, port: int = 0) -> Shape:
+    """Stop with ``shape.rank`` unless ``x`` is a feature map."""
+    if len(x) != 3:
+        raise Stop("shape.rank", f"{name} needs a feature map C×H×W but receives a flat vector of {x[0]} features; "
+                   "remove the Flatten before it or move it after", port)
+    return x
+
+
+def conv_length(n: int, k: int, s: int, p: int, d: int, name: str, axis: str, report, ceil: bool = False) -> int:
+    """Output length along one axis by PyTorch's formula floor((n + 2p − d(k−1) − 1)/s) + 1.
+
+    With ``ceil`` (pooling's ceil mode) the division rounds up, but a window may not start in the
+    right padding. Stops with ``shape.collapsed`` when the kernel does not fit; notes
+    ``shape.stride_drops`` when whole input rows or columns at the end are never read.
+    """
+    span = n + 2 * p - d * (k - 1) - 1
+    if span < 0:
+        raise Stop("shape.collapsed", f"{name}: the {axis} {n} (padding {p}) is smaller than the kernel extent "
+                   f"{d * (k - 1) + 1}, so the output {axis} would fall below 1", numbers=(n, d * (k - 1) + 1))
+    if ceil:
+        out = -(-span // s) + 1
+        if (out - 1) * s >= n + p:
+            out -= 1
+        return out
+    dropped = span % s - p
+    if dropped > 0 and d * (k - 1) + 1 >= s:
+        report.add("shape.stride_drops", "note",
+                   f"{name}: stride {s} over {axis} {n} leaves the last {dropped} {'row' if axis == 'height' else 'column'}"
+                   f"{'s' if dropped > 1 else ''} unread")
+    return span // s + 1
+
+
+def kw(**pairs: Any) -> str:
+    """Keyword arguments in source form, skipping ``None``: ``kw(stride=2)`` → ``stride=2``."""
+    return ", ".join(f"{k}={_py(v)}" for k, v in pairs.items() if v is not None)
+
+
+def _py(v: Any) -> str:
+    if isinstance(v, list):
+        return "(" + ", ".join(repr(i) for i in v) + ")"
+    return repr(v)
