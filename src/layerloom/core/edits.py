@@ -151,15 +151,14 @@ def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
 
 def add_block(design, kind: str, settings: dict | None = None, *, name: str | None = None,
               position=None, graph: str = "", inputs=(), block_id: str | None = None) -> tuple[Edit, str]:
-    """An edit that adds one block (wired from ``inputs``: ``(id, port)`` pairs) and its id."""
+    """An edit that adds one block (wired from ``inputs``: ``(block id, port)`` pairs) and its id."""
     g = design.graph(graph)
     checked = check_settings(design, kind, settings or {}, graph)
     bid = block_id or g.fresh_id()
     pos = tuple(position) if position is not None else g.layout_position()
     ops = [AddBlock(graph, bid, kind, name if name is not None else g.fresh_name(kind_stem(kind)), checked, pos)]
     for port, (src, src_port) in enumerate(inputs):
-        src_id = g.block(src).id
-        ops.append(AddWire(graph, Wire(src_id, src_port, bid, port)))
+        ops.append(AddWire(graph, Wire(src, src_port, bid, port)))
     return Edit(f"Add {kind}", tuple(ops)), bid
 
 
@@ -212,10 +211,21 @@ def remove_blocks(g: Graph, block_ids) -> Edit:
     return Edit("Delete" if len(ids) != 1 else f"Delete {g.blocks[ids[0]].name}", tuple(ops))
 
 
-def insert_on_wire(design, wire: Wire, kind: str, settings: dict, graph: str = "", name: str | None = None) -> Edit:
-    """An edit that puts a new one-in, one-out block in the middle of ``wire``."""
+def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str = "") -> Edit:
+    """An edit that puts a chain of new one-in, one-out blocks (``(kind, settings)`` each) in the
+    middle of ``wire``."""
     g = design.graph(graph)
-    a, b = g.blocks[wire.src].position, g.blocks[wire.dst].position
-    edit, bid = add_block(design, kind, settings, name=name, graph=graph, inputs=[(wire.src, wire.src_port)],
-                          position=((a[0] + b[0]) / 2, (a[1] + b[1]) / 2 + 60.0))
-    return Edit(f"Insert {kind}", (RemoveWire(graph, wire),) + edit.ops + (AddWire(graph, Wire(bid, 0, wire.dst, wire.dst_port)),))
+    (ax, ay), (bx, by) = g.blocks[wire.src].position, g.blocks[wire.dst].position
+    ops: list = [RemoveWire(graph, wire)]
+    src, n = (wire.src, wire.src_port), len(steps)
+    names = {b.name for b in g.blocks.values()}
+    for i, (kind, settings) in enumerate(steps, 1):
+        f = i / (n + 1)
+        name = g.fresh_name(kind_stem(kind), names)
+        names.add(name)
+        edit, bid = add_block(design, kind, settings, graph=graph, inputs=[src], name=name,
+                              position=(ax + (bx - ax) * f, ay + (by - ay) * f + 60.0))
+        ops += edit.ops
+        src = (bid, 0)
+    ops.append(AddWire(graph, Wire(src[0], 0, wire.dst, wire.dst_port)))
+    return Edit("Insert " + " and ".join(k for k, _ in steps), tuple(ops))

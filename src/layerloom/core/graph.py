@@ -66,8 +66,9 @@ class Graph:
             if candidate not in self.blocks:
                 return candidate
 
-    def fresh_name(self, stem: str) -> str:
-        taken = {b.name for b in self.blocks.values()}
+    def fresh_name(self, stem: str, taken: set[str] | None = None) -> str:
+        """``stem_n`` with the smallest n not used by a block (nor in ``taken``)."""
+        taken = taken if taken is not None else {b.name for b in self.blocks.values()}
         n = 1
         while f"{stem}_{n}" in taken:
             n += 1
@@ -114,7 +115,7 @@ class Graph:
 
         design = self._design()
         edit, block_id = edits.add_block(design, kind, settings, name=name, position=position, graph=self.key,
-                                         inputs=[_port(p) for p in inputs])
+                                         inputs=[(self.block(b).id, port) for b, port in map(_port, inputs)])
         design.apply(edit)
         return block_id
 

@@ -7,7 +7,8 @@ only the changed blocks and what lies downstream of them are computed again, and
 where a block's outputs come out unchanged.
 
 Receptive field and effective stride (jump) are in input pixels per axis: a window of extent k and
-stride s gives rf' = rf + (k − 1)·jump and jump' = jump·s; branches take the larger value.
+stride s gives rf' = rf + (k − 1)·jump and jump' = jump·s. Where branches join, the receptive
+field is the larger and the jump the smaller (a broadcast gate does not coarsen the map).
 Transposed convolution and upsampling divide the jump (a first-order convention).
 """
 from __future__ import annotations
@@ -227,7 +228,7 @@ class GraphInference:
                 found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input port"
                                      f"{'s' if n_in != 1 else ''} but a wire goes to port {w.dst_port + 1}",
                                      w.dst_port))
-        ins, rf, jump, known = [], [1, 1], [1, 1], True
+        ins, rf, jump, known = [], [1, 1], [float("inf")] * 2, True
         for port, ws in enumerate(by_port):
             if not ws:
                 found.append(Finding("port.unwired", ERROR, blk.id,
@@ -248,7 +249,7 @@ class GraphInference:
                     continue
                 ins.append(r.outs[w.src_port])
                 rf = [max(rf[0], r.rf[0]), max(rf[1], r.rf[1])]
-                jump = [max(jump[0], r.jump[0]), max(jump[1], r.jump[1])]
+                jump = [min(jump[0], r.jump[0]), min(jump[1], r.jump[1])]
         return (tuple(ins), tuple(rf), tuple(jump)) if known else (None, None, None)
 
     def _input(self, blk, s) -> Result | None:

@@ -1,0 +1,172 @@
+"""The ``layerloom`` command: ``check`` and ``ledger`` a design file; with a file name only (or
+nothing) it opens the editor.
+
+Exit codes: 0 fine; 1 the design has error findings (``check``); 2 the file or an option could not
+be used (the message says where and why).
+"""
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import sys
+
+from layerloom.core import units
+from layerloom.core.design import DTYPES, Design
+from layerloom.core.fileformat import LoomFileError, load
+from layerloom.core.findings import ERROR
+from layerloom.core.ledger import Ledger
+from layerloom.core.mends import mends_for
+from layerloom.core.shapes import parse_shape
+
+COMMANDS = ("check", "ledger")
+
+
+class UsageError(Exception):
+    """An option that cannot be applied to this design."""
+
+
+def _open(args) -> Design:
+    design = load(args.file)
+    if getattr(args, "input", None):
+        inputs = design.of_kind("Input")
+        if len(inputs) != 1:
+            raise UsageError(f"--input needs a design with exactly one Input block; {args.file} has {len(inputs)}")
+        try:
+            c, h, w = parse_shape(args.input)
+        except ValueError as e:
+            raise UsageError(f"--input: {e}") from None
+        design.set(inputs[0].id, channels=c, height=h, width=w)
+    if getattr(args, "dtype", None):
+        design.set_field("dtype", args.dtype)
+    if getattr(args, "batch", None) is not None:
+        if args.batch < 1:
+            raise UsageError(f"--batch must be at least 1, not {args.batch}")
+        design.set_field("batch", args.batch)
+    return design
+
+
+def _finding_dict(design, f) -> dict:
+    return {"code": f.code, "severity": f.severity, "block": f.block,
+            "block_name": design.blocks[f.block].name if f.block in design.blocks else None,
+            "path": list(f.path), "port": f.port, "message": f.message,
+            "mends": [m.label for m in mends_for(design, f)]}
+
+
+def _check(args) -> int:
+    design = _open(args)
+    findings = design.findings()
+    errors = sum(f.severity == ERROR for f in findings)
+    if args.json:
+        print(json.dumps({"file": args.file, "errors": errors, "findings": [_finding_dict(design, f) for f in findings]},
+                         indent=1, ensure_ascii=False))
+    else:
+        for f in findings:
+            print(f"{f.severity:<7} {f.code:<20} {f.message}")
+            for m in mends_for(design, f):
+                print(f"        mend: {m.label}")
+        counts = {s: sum(f.severity == s for f in findings) for s in ("error", "warning", "note")}
+        verdict = "well formed" if not errors else "not well formed"
+        print(f"{args.file}: {verdict} — {counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes")
+    return 1 if errors else 0
+
+
+LEDGER_COLUMNS = ("step", "block", "kind", "depth", "out shape", "weights", "MACs", "out memory", "receptive field")
+
+
+def _rf(rf) -> str:
+    if rf is None:
+        return ""
+    h, w = (int(round(v)) for v in rf)
+    return f"{h}" if h == w else f"{h}×{w}"
+
+
+def _ledger(args) -> int:
+    design = _open(args)
+    ledger = Ledger(design.analysis())
+    rows, t = ledger.rows, ledger.totals
+    peak_name = design.blocks[t.peak_block].name if t.peak_block else "—"
+    if args.json:
+        print(json.dumps({
+            "file": args.file, "batch": ledger.batch, "dtype": ledger.dtype,
+            "blocks": [{"block": r.block, "name": r.name, "kind": r.kind, "depth": r.depth,
+                        "shape": list(r.shape) if r.shape else None, "weights": r.weights, "buffers": r.buffers,
+                        "macs": r.macs, "other_ops": r.other, "out_memory_bytes": r.memory,
+                        "receptive_field": list(r.rf) if r.rf else None, "jump": list(r.jump) if r.jump else None,
+                        "intensity_macs_per_byte": round(r.intensity, 3)} for r in rows],
+            "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
+                       "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name}},
+            indent=1, ensure_ascii=False))
+        return 0
+    if args.csv:
+        out = csv.writer(sys.stdout, lineterminator="\n")
+        out.writerow(("step", "block", "kind", "depth", "out shape", "weights", "buffers", "MACs", "other ops",
+                      "out memory bytes", "receptive field"))
+        for i, r in enumerate(rows, 1):
+            out.writerow((i, r.name, r.kind, r.depth, str(r.shape or ""), r.weights, r.buffers, r.macs, r.other,
+                          r.memory, _rf(r.rf)))
+        return 0
+    table = [LEDGER_COLUMNS] + [(str(i), r.name, r.kind, str(r.depth), str(r.shape or "?"),
+                                 units.count(r.weights) if r.weights else "·", units.count(r.macs) if r.macs else "·",
+                                 units.size(r.memory) if r.memory else "·", _rf(r.rf))
+                                for i, r in enumerate(rows, 1)]
+    widths = [max(len(row[c]) for row in table) for c in range(len(LEDGER_COLUMNS))]
+    right = {0, 3, 5, 6, 7, 8}
+    for n, row in enumerate(table):
+        print("  ".join(cell.rjust(w) if c in right else cell.ljust(w) for c, (cell, w) in enumerate(zip(row, widths))))
+        if n == 0:
+            print("  ".join("─" * w for w in widths))
+    print()
+    print(f"weights {units.count(t.weights)} ({t.weights:,}; {units.size(t.weight_bytes)} at {ledger.dtype})"
+          f" · buffers {units.count(t.buffers)} · MACs {units.count(t.macs)} ({t.macs:,})")
+    print(f"peak live activations {units.size(t.peak_memory)} at {peak_name} (batch {ledger.batch}, {ledger.dtype};"
+          " first-order: execution in depth order, no in-place reuse)")
+    errors = [f for f in design.findings() if f.severity == ERROR]
+    if errors:
+        print(f"{len(errors)} error finding(s): blocks after them are not counted; see `layerloom check {args.file}`")
+    return 0
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="layerloom", description="Sketch convolutional networks, check their shapes, "
+                                "count what they cost. With only a FILE (or nothing), opens the editor.")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    c = sub.add_parser("check", help="list findings (errors, warnings, notes) with their mends; exit 1 on errors")
+    c.add_argument("file", help="a .loom design")
+    c.add_argument("--json", action="store_true", help="print findings as JSON")
+    c.add_argument("--input", metavar="CxHxW", help="override the input shape, e.g. 3x224x224")
+    c.set_defaults(run=_check)
+    led = sub.add_parser("ledger", help="per-block cost table: shapes, weights, MACs, activation memory")
+    led.add_argument("file", help="a .loom design")
+    fmt = led.add_mutually_exclusive_group()
+    fmt.add_argument("--csv", action="store_true", help="print the table as CSV")
+    fmt.add_argument("--json", action="store_true", help="print the table as JSON")
+    led.add_argument("--input", metavar="CxHxW", help="override the input shape, e.g. 3x224x224")
+    led.add_argument("--dtype", choices=tuple(DTYPES), help="element type for memory figures")
+    led.add_argument("--batch", type=int, help="batch size N (default: the design's)")
+    led.set_defaults(run=_ledger)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = sys.argv[1:] if argv is None else argv
+    parser = _parser()
+    if not argv or (argv[0] not in COMMANDS and not argv[0].startswith("-")):
+        from layerloom.app import run_editor
+
+        return run_editor(argv[:1])
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return 2
+    try:
+        return args.run(args)
+    except (LoomFileError, UsageError) as e:
+        print(f"layerloom: {e}", file=sys.stderr)
+        return 2
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
