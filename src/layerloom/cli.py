@@ -19,7 +19,7 @@ from layerloom.core.ledger import Ledger
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 
-COMMANDS = ("check", "ledger")
+COMMANDS = ("check", "ledger", "export")
 
 
 class UsageError(Exception):
@@ -127,6 +127,35 @@ def _ledger(args) -> int:
     return 0
 
 
+def _export(args) -> int:
+    from pathlib import Path
+
+    from layerloom.export import ExportRefused, export, verify
+
+    design = _open(args)
+    try:
+        made = export(design, args.class_name)
+    except ExportRefused as e:
+        print(f"layerloom: {args.file}: {e}", file=sys.stderr)
+        return 1
+    except ValueError as e:
+        raise UsageError(f"--class-name: {e}") from None
+    target = Path(args.output)
+    try:
+        target.write_text(made.source, encoding="utf-8")
+    except OSError as e:
+        raise UsageError(f"cannot write {target}: {e.strerror or e}") from None
+    print(f"wrote {target}: class {made.class_name}, {len(design.blocks)} blocks")
+    if not args.verify:
+        return 0
+    try:
+        report = verify(design, target)
+    except ImportError as e:
+        raise UsageError(f"--verify needs PyTorch ({e}); install it with: pip install torch") from None
+    print(report.table())
+    return 0 if report.ok else 1
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="layerloom", description="Sketch convolutional networks, check their shapes, "
                                 "count what they cost. With only a FILE (or nothing), opens the editor.")
@@ -145,6 +174,13 @@ def _parser() -> argparse.ArgumentParser:
     led.add_argument("--dtype", choices=tuple(DTYPES), help="element type for memory figures")
     led.add_argument("--batch", type=int, help="batch size N (default: the design's)")
     led.set_defaults(run=_ledger)
+    ex = sub.add_parser("export", help="write the design as a PyTorch nn.Module; refuses a design with errors")
+    ex.add_argument("file", help="a .loom design")
+    ex.add_argument("-o", "--output", required=True, metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("--class-name", metavar="NAME", help="name of the design's class (default: from the design name)")
+    ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
+                    "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
+    ex.set_defaults(run=_export)
     return p
 
 

@@ -9,7 +9,7 @@ Scripts build a design in a few lines::
     >>> x = d.add("Pointwise", x, out_channels=32)
     >>> _ = d.add("Output", x)
     >>> d.ledger().totals.macs
-    1290240
+    2174976
 
 Every change is an :class:`~layerloom.core.edits.Edit` applied by :meth:`Design.apply`, which
 returns its inverse and tells subscribers what changed (once per :meth:`Design.bulk`).

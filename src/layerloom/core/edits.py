@@ -20,16 +20,20 @@ class EditError(ValueError):
 
 
 class AddBlock(NamedTuple):
+    """Add a block (at the end of the block order, or at ``index`` when undoing a removal)."""
+
     graph: str
     id: str
     kind: str
     name: str
     settings: dict
     position: tuple
+    index: int | None = None
 
     def apply(self, design) -> "RemoveBlock":
-        design.graph(self.graph)._insert_block(Block(self.id, self.kind, self.name, dict(self.settings), self.position))
-        return RemoveBlock(*self)
+        block = Block(self.id, self.kind, self.name, dict(self.settings), self.position)
+        design.graph(self.graph)._insert_block(block, self.index)
+        return RemoveBlock(*self[:6])
 
 
 class RemoveBlock(NamedTuple):
@@ -41,8 +45,10 @@ class RemoveBlock(NamedTuple):
     position: tuple
 
     def apply(self, design) -> AddBlock:
-        b = design.graph(self.graph)._delete_block(self.id)
-        return AddBlock(self.graph, b.id, b.kind, b.name, b.settings, b.position)
+        g = design.graph(self.graph)
+        index = list(g.blocks).index(self.id)
+        b = g._delete_block(self.id)
+        return AddBlock(self.graph, b.id, b.kind, b.name, b.settings, b.position, index)
 
 
 class AddWire(NamedTuple):

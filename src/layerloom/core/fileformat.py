@@ -148,7 +148,9 @@ def to_data(design: Design) -> dict:
                 for b in g.blocks.values()]
 
     def wires(g):
-        return [{"from": [w.src, w.src_port], "to": [w.dst, w.dst_port]} for w in g.wires]
+        rank = {b: i for i, b in enumerate(g.blocks)}
+        ordered = sorted(g.wires, key=lambda w: (rank[w.dst], w.dst_port, rank[w.src], w.src_port))
+        return [{"from": [w.src, w.src_port], "to": [w.dst, w.dst_port]} for w in ordered]
 
     data: dict[str, Any] = {"format": FORMAT, "version": VERSION, "name": design.name, "batch": design.batch,
                             "dtype": design.dtype, "notes": design.notes}

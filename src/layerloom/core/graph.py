@@ -75,10 +75,15 @@ class Graph:
         return f"{stem}_{n}"
 
     # ----- primitive changes (called by edits only)
-    def _insert_block(self, block: Block) -> None:
+    def _insert_block(self, block: Block, index: int | None = None) -> None:
         if block.id in self.blocks:
             raise ValueError(f"block id {block.id!r} is already used")
-        self.blocks[block.id] = block
+        if index is None or index >= len(self.blocks):
+            self.blocks[block.id] = block
+        else:
+            items = list(self.blocks.items())
+            items.insert(index, (block.id, block))
+            self.blocks = dict(items)
         self.in_wires[block.id] = []
         self.out_wires[block.id] = []
 

@@ -4,7 +4,8 @@ Reads like an interpreter: blocks in topological order (longest-path level, then
 order), one step per block, an environment of :class:`Result` keyed by block id. Problems the
 user can fix are :class:`~layerloom.core.findings.Finding` data, never exceptions. After an edit
 only the changed blocks and what lies downstream of them are computed again, and propagation stops
-where a block's outputs come out unchanged.
+where a block's outputs come out unchanged. Kind rules are pure functions of (settings, input
+shapes), so their answers for finding-free blocks are remembered and reused.
 
 Receptive field and effective stride (jump) are in input pixels per axis: a window of extent k and
 stride s gives rf' = rf + (k − 1)·jump and jump' = jump·s. Where branches join, the receptive
@@ -24,6 +25,7 @@ from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
 
 ONE = (1, 1)
+MEMO_LIMIT = 100_000
 
 
 class Result(NamedTuple):
@@ -71,6 +73,7 @@ class GraphInference:
         self.findings: dict[str, list[Finding]] = {}
         self.graph_findings: list[Finding] = []
         self.port_index: dict[str, int] = {}
+        self.memo = analysis.memo if analysis is not None else {}
 
     # ----- passes
     def run(self) -> None:
@@ -198,15 +201,22 @@ class GraphInference:
             elif kind_name == "Output":
                 result = Result(ins, ins, Cost(), rf, jump)
             else:
-                report = Report(bid, blk.name)
-                out = kind.shape(s, ins, report)
-                found += report.found
-                window = kind.window(s, ins)
+                key = (kind_name, tuple(s.values()), ins)
+                known = self.memo.get(key)
+                if known is None:
+                    report = Report(bid, blk.name)
+                    out = kind.shape(s, ins, report)
+                    known = (out, kind.cost(s, ins, out), kind.window(s, ins))
+                    if report.found:
+                        found += report.found
+                    elif len(self.memo) < MEMO_LIMIT:
+                        self.memo[key] = known
+                out, cost, window = known
                 if window is not None:
                     kh, kw, sh, sw = window
                     rf = (rf[0] + (kh - 1) * jump[0], rf[1] + (kw - 1) * jump[1])
                     jump = (jump[0] * sh, jump[1] * sw)
-                result = Result(ins, (out,), kind.cost(s, ins, out), rf, jump)
+                result = Result(ins, (out,), cost, rf, jump)
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
         self.results[bid] = result
@@ -225,9 +235,9 @@ class GraphInference:
             if w.dst_port < n_in:
                 by_port[w.dst_port].append(w)
             else:
-                found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input port"
-                                     f"{'s' if n_in != 1 else ''} but a wire goes to port {w.dst_port + 1}",
-                                     w.dst_port))
+                found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input"
+                                     f"{'s' if n_in != 1 else ''} but a wire goes to input {w.dst_port + 1}",
+                                     w.dst_port, (w.dst_port + 1, n_in)))
         ins, rf, jump, known = [], [1, 1], [float("inf")] * 2, True
         for port, ws in enumerate(by_port):
             if not ws:
@@ -236,7 +246,7 @@ class GraphInference:
                                      else f"{blk.name} has no input wire", port))
                 known = False
             elif len(ws) > 1:
-                names = ", ".join(self.graph.blocks[w.src].name for w in ws)
+                names = ", ".join(sorted(self.graph.blocks[w.src].name for w in ws))
                 found.append(Finding("port.multiple", ERROR, blk.id, f"input {port + 1} of {blk.name} has "
                                      f"{len(ws)} wires (from {names}); join them with an Add or Concat", port,
                                      (len(ws), 1)))
@@ -318,6 +328,7 @@ class Analysis:
     def __init__(self, design):
         self.design = design
         self.motif_runs: dict[tuple, MotifRun] = {}
+        self.memo: dict[tuple, tuple] = {}  # (kind, settings, input shapes) → (shape, cost, window) of clean blocks
         self.top = GraphInference(design, self)
         self._dirty: set[str] = set()
         self._topology = True

@@ -73,11 +73,9 @@ class Ledger:
         self.order = list(analysis.order)
         self._rows: list[Row] | None = None
         results = analysis.top.results
-        costs = np.zeros((len(self.order), 4), dtype=np.int64)
-        for i, bid in enumerate(self.order):
-            r = results.get(bid)
-            if r is not None:
-                costs[i] = r.cost
+        free = (0, 0, 0, 0)
+        costs = np.array([r.cost if r is not None else free for r in map(results.get, self.order)],
+                         dtype=np.int64).reshape(-1, 4)
         costs[:, 2:] *= self.batch
         self.costs = costs
         self.live = np.asarray(analysis.live_profile(), dtype=np.int64) * (self.batch * self.bytes_per_element)

@@ -9,7 +9,11 @@ Counts are elements per sample; the ledger multiplies by batch size and bytes pe
 """
 from __future__ import annotations
 
+from math import prod
+
 from layerloom.core.kinds import KINDS
+
+VIEWS = frozenset(name for name, kind in KINDS.items() if kind.view)
 
 
 def live_profile(graph, order, results) -> list[int]:
@@ -20,24 +24,28 @@ def live_profile(graph, order, results) -> list[int]:
     size: dict[str, int] = {}
     live = 0
     profile = []
+    append = profile.append
     for bid in order:
         r = results.get(bid)
         if r is None:
-            profile.append(live)
+            append(live)
             continue
         kind_name = blocks[bid].kind
-        consumers = len(out_wires[bid])
-        if KINDS[kind_name].view and in_wires[bid]:
-            src = owner.get(in_wires[bid][0].src)
+        ins = in_wires[bid]
+        if kind_name in VIEWS and ins:
+            src = owner.get(ins[0].src)
             owner[bid] = src
             if src is not None:
-                refs[src] += consumers + (1 if kind_name == "Output" else 0)
-        else:
-            elems = sum(o.elements for o in r.outs) if kind_name != "Output" else 0
-            owner[bid], size[bid], refs[bid] = bid, elems, consumers
+                refs[src] += len(out_wires[bid]) + (kind_name == "Output")
+        elif kind_name != "Output":
+            outs = r.outs
+            elems = prod(outs[0]) if len(outs) == 1 else sum(map(prod, outs))
+            owner[bid] = bid
+            size[bid] = elems
+            refs[bid] = len(out_wires[bid])
             live += elems
-        profile.append(live + r.extra)
-        for w in in_wires[bid]:
+        append(live + r.extra)
+        for w in ins:
             src = owner.get(w.src)
             if src is not None:
                 refs[src] -= 1

@@ -125,13 +125,14 @@ def _mend_channels(place: Place, finding: Finding):
     if branches is None:
         return
     narrow_wire, narrow, wide_wire, wide = branches
-    sh, sw = _ratio(narrow[1], wide[1]), _ratio(narrow[2], wide[2])
+    gate = narrow[1:] == (1, 1)  # a C×1×1 gate broadcasts over the map: no stride needed
+    sh, sw = (1, 1) if gate else (_ratio(narrow[1], wide[1]), _ratio(narrow[2], wide[2]))
     if sh and sw:
         stride = sh if sh == sw else [sh, sw]
         extra = f" and stride {sh}" if stride != 1 and sh == sw else (f" and stride {sh}×{sw}" if stride != 1 else "")
         yield _insert(place, narrow_wire, [("Pointwise", {"out_channels": wide[0], "stride": stride, "bias": False})],
                       f"Insert a 1×1 projection to {wide[0]} channels{extra} after {place.name(narrow_wire.src)}")
-    if narrow[1:] == wide[1:]:
+    if gate or narrow[1:] == wide[1:]:
         conv = _upstream_conv(place, narrow_wire.src)
         if conv is not None:
             groups = place.graph.blocks[conv].settings.get("groups", 1)
@@ -218,7 +219,8 @@ def _mend_output_padding(place: Place, finding: Finding):
 
 @mend("port.multiple")
 def _mend_multiple(place: Place, finding: Finding):
-    wires = [w for w in place.graph.in_wires[place.block] if w.dst_port == finding.port]
+    wires = sorted((w for w in place.graph.in_wires[place.block] if w.dst_port == finding.port),
+                   key=lambda w: place.name(w.src))
     for keep in wires:
         drop = tuple(edits.RemoveWire(place.graph.key, w) for w in wires if w != keep)
         yield Mend(f"Keep only the wire from {place.name(keep.src)}", edits.Edit("Remove wires", drop))

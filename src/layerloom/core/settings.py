@@ -1,8 +1,8 @@
 """Typed block settings: each kind declares its settings once, with type, range and default.
 
-Values as stored in a design (and in a ``.loom`` file) are plain JSON values:
-an ``int``, a ``float``, a ``bool``, a string choice, or for a pair either one ``int`` (the same
-on height and width) or a two-item list ``[h, w]``. ``padding`` also accepts the string ``"same"``.
+Values are plain JSON values: an ``int``, a ``float``, a ``bool``, a string, or for a pair either
+one ``int`` (the same on height and width) or two, ``[h, w]`` in a file and the tuple ``(h, w)`` in
+memory once checked (so settings are hashable). ``padding`` also accepts the string ``"same"``.
 """
 from __future__ import annotations
 
@@ -61,7 +61,7 @@ class Setting:
                 if len(value) != 2:
                     raise SettingError(f"{self.label} must be one number or two (height, width), not {list(value)!r}")
                 h, w = self._int(value[0]), self._int(value[1])
-                return h if h == w else [h, w]
+                return h if h == w else (h, w)
             return self._int(value)
         raise SettingError(f"unknown setting type {t!r}")  # a programming error in a kind
 

@@ -119,7 +119,7 @@ def conv_length(n: int, k: int, s: int, p: int, d: int, name: str, axis: str, re
     ``shape.stride_drops`` when whole input rows or columns at the end are never read.
     """
     span = n + 2 * p - d * (k - 1) - 1
-    if span < 0:
+    if span < (1 - s if ceil else 0):  # in ceil mode a window may overhang the end, as in PyTorch
         raise Stop("shape.collapsed", f"{name}: the {axis} {n} (padding {p}) is smaller than the kernel extent "
                    f"{d * (k - 1) + 1}, so the output {axis} would fall below 1", numbers=(n, d * (k - 1) + 1))
     if ceil:
@@ -141,6 +141,6 @@ def kw(**pairs: Any) -> str:
 
 
 def _py(v: Any) -> str:
-    if isinstance(v, list):
+    if isinstance(v, (list, tuple)):
         return "(" + ", ".join(repr(i) for i in v) + ")"
     return repr(v)

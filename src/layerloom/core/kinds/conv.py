@@ -201,7 +201,7 @@ class ConvTranspose2d(Kind):
 
 def _nd(value, default=1):
     """``None`` when ``value`` is PyTorch's default, so the generated call stays short."""
-    return None if value == default or value == [default, default] else value
+    return None if value == default or value == (default, default) else value
 
 
 def _tail(text: str) -> str:

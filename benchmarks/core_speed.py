@@ -1,0 +1,108 @@
+"""Shape + cost pass speed (prints figures; targets from PRODUCT.md, not asserted).
+
+For designs of about 500, 2,000 and 5,000 blocks: a full pass (every shape, finding and cost, plus
+the ledger totals) on a freshly loaded design; then one edit re-inferred at 5,000 blocks. Beside
+it, the same network built on PyTorch's meta device and run under FlopCounterMode, with the ratio.
+Targets: ≥ 100× faster than torch's pass; 5,000 blocks ≤ 20 ms; one edit ≤ 2 ms.
+
+Run: PYTHONPATH=src:benchmarks python benchmarks/core_speed.py
+"""
+from __future__ import annotations
+
+import statistics
+import time
+
+from synthetic import residual_stack
+
+from layerloom.core.fileformat import dumps, parse
+from layerloom.core.kinds import KINDS
+from layerloom.core.ledger import Ledger
+
+
+def best_of(fn, repeat: int = 7) -> float:
+    times = []
+    for _ in range(repeat):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return min(times) * 1000
+
+
+def layerloom_pass(text: str) -> float:
+    """Milliseconds of a full pass on a design loaded from ``text`` (loading not counted)."""
+    def one():
+        d = parse(text)
+        t = time.perf_counter()
+        Ledger(d.analysis())
+        return (time.perf_counter() - t) * 1000
+    return min(one() for _ in range(7))
+
+
+def torch_pass(design) -> float:
+    """Milliseconds to build ``design`` on the meta device and run it under FlopCounterMode."""
+    import torch
+    from torch import nn
+    from torch.utils.flop_counter import FlopCounterMode
+
+    analysis = design.analysis()
+    order = analysis.order
+
+    def run():
+        with torch.device("meta"):
+            layers = {}
+            for bid in order:
+                b, r = design.blocks[bid], analysis.result(bid)
+                if b.kind not in ("Input", "Output"):
+                    src = KINDS[b.kind].torch_layer(b.settings, r.ins, r.outs[0])
+                    if src is not None:
+                        layers[bid] = eval(src, {"nn": nn})
+            with FlopCounterMode(display=False) as counter:
+                values = {}
+                for bid in order:
+                    b = design.blocks[bid]
+                    args = [values[w.src] for w in sorted(design.in_wires[bid], key=lambda w: w.dst_port)]
+                    if b.kind == "Input":
+                        s = b.settings
+                        values[bid] = torch.zeros(1, s["channels"], s["height"], s["width"])
+                    elif b.kind == "Output":
+                        values[bid] = args[0]
+                    elif bid in layers:
+                        values[bid] = layers[bid](args[0])
+                    else:
+                        values[bid] = sum(args[1:], args[0])
+            return counter.get_total_flops()
+    return best_of(run, 3)
+
+
+def main() -> None:
+    print("Layerloom shape + cost pass (best of 7, ms) against torch meta device + FlopCounterMode (best of 3, ms)")
+    for n in (500, 2000, 5000):
+        design = residual_stack(n)
+        text = dumps(design)
+        ours = layerloom_pass(text)
+        theirs = torch_pass(design)
+        print(f"  {len(design.blocks):5d} blocks: layerloom {ours:7.2f} ms   torch {theirs:9.1f} ms   "
+              f"ratio {theirs / ours:6.0f}×")
+    design = parse(dumps(residual_stack(5000)))
+    Ledger(design.analysis())
+    convs = [b.id for b in design.of_kind("Conv2d")]
+    mid = convs[len(convs) // 2]
+    samples = []
+    for i in range(40):
+        t = time.perf_counter()
+        design.set(mid, out_channels=16 if i % 2 else 24)
+        design.analysis().refresh()
+        samples.append((time.perf_counter() - t) * 1000)
+    print(f"  one edit at {len(design.blocks)} blocks (3×3 width of a middle unit, shapes re-inferred downstream): "
+          f"median {statistics.median(samples):.3f} ms, worst {max(samples):.3f} ms")
+    samples = []
+    for i in range(40):
+        t = time.perf_counter()
+        design.set(mid, bias=bool(i % 2))
+        Ledger(design.analysis())
+        samples.append((time.perf_counter() - t) * 1000)
+    print(f"  same edit plus a fresh ledger (totals, cumulative arrays): median {statistics.median(samples):.2f} ms")
+
+
+if __name__ == "__main__":
+    main()

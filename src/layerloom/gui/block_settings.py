@@ -1,0 +1,317 @@
+"""Block settings: the editor for the selected block (or a short summary of several).
+
+Each setting of the block's kind gets a typed field (a text field for numbers, pairs and
+padding, a check box for on/off, a list for choices). An accepted change is one undoable edit
+(:func:`layerloom.core.edits.set_settings` through :meth:`Document.apply`); a refused one shows the
+reason under its field and the field goes back to the value the block keeps. Fields are set from
+the model with their signals blocked, so nothing echoes back. Below the fields: in-channels and
+shapes from the wires (read-only) and the block's weights and MACs (for the whole batch).
+"""
+from __future__ import annotations
+
+import re
+from collections import Counter
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QFormLayout, QFrame, QLabel, QLineEdit, QScrollArea,
+                               QVBoxLayout, QWidget)
+
+from layerloom.core import edits, units
+from layerloom.core.kinds import KINDS
+from layerloom.core.settings import Setting, SettingError
+from layerloom.gui import theme
+from layerloom.gui.document import Document
+
+_SPLIT = re.compile(r"\s*[×xX*,\s]\s*")
+
+
+def entry_value(setting: Setting, text: str):
+    """The value typed as ``text`` for ``setting``: ``"3×1"`` → ``[3, 1]`` for a pair, ``"64"`` → ``64``.
+
+    Text that is not a number stays text, so the setting's own check names what is wrong with it.
+    """
+    text = text.strip()
+    if setting.type == "padding" and text.lower() == "same":
+        return "same"
+    if setting.type in ("pair", "padding"):
+        parts = [p for p in _SPLIT.split(text) if p]
+        if len(parts) == 2:
+            return [_number(p, int) for p in parts]
+        return _number(text, int)
+    if setting.type == "int":
+        return _number(text, int)
+    if setting.type == "float":
+        return _number(text, float)
+    return text
+
+
+def _number(text: str, cast):
+    try:
+        return cast(text)
+    except ValueError:
+        return text
+
+
+def value_text(value) -> str:
+    """A stored value as typed: ``(3, 1)`` → ``3×1``, ``1e-05`` → ``1e-05``, ``64`` → ``64``."""
+    if isinstance(value, (list, tuple)):
+        return "×".join(str(v) for v in value)
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
+
+
+class Field:
+    """One setting's widget and the inline message under it."""
+
+    def __init__(self, setting: Setting, commit):
+        self.setting = setting
+        t = setting.type
+        if t == "bool":
+            self.widget = QCheckBox(setting.label)
+            self.widget.toggled.connect(lambda on: commit(self, on))
+        elif t == "choice":
+            self.widget = QComboBox()
+            self.widget.addItems(list(setting.choices))
+            self.widget.activated.connect(lambda i: commit(self, self.widget.itemText(i)))
+        else:
+            self.widget = QLineEdit()
+            self.widget.editingFinished.connect(lambda: commit(self, entry_value(setting, self.widget.text())))
+        self.widget.setObjectName(f"setting_{setting.key}")
+        self.widget.setToolTip(setting.help)
+        self.message = QLabel()
+        self.message.setObjectName("field_message")
+        self.message.setWordWrap(True)
+        self.message.hide()
+
+    def show_value(self, value) -> None:
+        """Set the widget from the model without emitting anything."""
+        w = self.widget
+        w.blockSignals(True)
+        if isinstance(w, QCheckBox):
+            w.setChecked(bool(value))
+        elif isinstance(w, QComboBox):
+            w.setCurrentIndex(max(w.findText(str(value)), 0))
+        else:
+            w.setText(value_text(value))
+            w.setCursorPosition(0)
+        w.blockSignals(False)
+
+    def say(self, text: str) -> None:
+        self.message.setText(text)
+        self.message.setVisible(bool(text))
+
+
+class BlockSettings(QWidget):
+    """The Block settings panel, following ``document.selection``."""
+
+    def __init__(self, document: Document, parent=None):
+        super().__init__(parent)
+        self.document = document
+        self.block_id: str | None = None
+        self.fields: dict[str, Field] = {}
+        self._kind_shown: tuple | None = None
+
+        self.heading = QLabel()
+        self.heading.setObjectName("panel_heading")
+        self.heading.setWordWrap(True)
+        self.name_edit = QLineEdit()
+        self.name_edit.setObjectName("block_name")
+        self.name_edit.editingFinished.connect(self._commit_name)
+        self.name_message = QLabel()
+        self.name_message.setObjectName("field_message")
+        self.name_message.setWordWrap(True)
+        self.name_message.hide()
+
+        self.form_host = QWidget()
+        self.form = QFormLayout(self.form_host)
+        self.form.setContentsMargins(0, 0, 0, 0)
+        self.form.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
+
+        self.facts = QLabel()
+        self.facts.setObjectName("block_facts")
+        self.facts.setTextFormat(Qt.TextFormat.RichText)
+        self.facts.setWordWrap(True)
+        self.facts.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+
+        body = QWidget()
+        col = QVBoxLayout(body)
+        col.addWidget(self.heading)
+        col.addWidget(self.name_edit)
+        col.addWidget(self.name_message)
+        col.addWidget(self.form_host)
+        rule = QFrame()
+        rule.setFrameShape(QFrame.Shape.HLine)
+        rule.setObjectName("rule")
+        col.addWidget(rule)
+        col.addWidget(self.facts)
+        col.addStretch(1)
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setFrameShape(QFrame.Shape.NoFrame)
+        scroll.setWidget(body)
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(0, 0, 0, 0)
+        outer.addWidget(scroll)
+
+        document.selection_changed.connect(self._follow_selection)
+        document.changed.connect(self._on_change)
+        document.replaced.connect(lambda: self._follow_selection(document.selection))
+        self._follow_selection(document.selection)
+
+    # ----- model → widgets
+    def _follow_selection(self, ids: list) -> None:
+        self.block_id = ids[0] if len(ids) == 1 else None
+        self._kind_shown = None
+        self.refresh()
+
+    def _on_change(self, change) -> None:
+        if self.block_id is not None and self.block_id not in self.document.design.blocks:
+            self.block_id = None
+        self.refresh()
+
+    def refresh(self) -> None:
+        """Show the selected block (or the summary of several) as the model has it now."""
+        design = self.document.design
+        editing = self.block_id is not None
+        for w in (self.name_edit, self.form_host):
+            w.setVisible(editing)
+        if not editing:
+            self._clear_fields()
+            self.name_message.hide()
+            self._show_summary(self.document.selection)
+            return
+        b = design.blocks[self.block_id]
+        kind = KINDS[b.kind]
+        self.heading.setText(kind.title)
+        self.name_edit.blockSignals(True)
+        self.name_edit.setText(b.name)
+        self.name_edit.blockSignals(False)
+        specs = self._specs(b)
+        shape_key = (self.block_id, tuple(s.key for s in specs), tuple(s.choices for s in specs))
+        if shape_key != self._kind_shown:
+            self._build_fields(specs)
+            self._kind_shown = shape_key
+        for key, field in self.fields.items():
+            field.show_value(b.settings.get(key, field.setting.default))
+        self.facts.setText(self._facts(b))
+
+    def _specs(self, block) -> list[Setting]:
+        """The settings shown for ``block``; a motif instance shows its motif, repeat and parameters."""
+        kind = KINDS[block.kind]
+        if block.kind != "Motif":
+            return list(kind.settings)
+        motif = self.document.design.motifs.get(block.settings["motif"])
+        names = tuple(dict.fromkeys([block.settings["motif"], *self.document.design.motifs]))
+        choose = Setting("motif", "choice", block.settings["motif"], "Motif", choices=names,
+                         help="the motif this block uses")
+        params = [Setting(p, "int", default, p, 0, None, help=f"motif parameter (default {default})")
+                  for p, default in (motif.params.items() if motif is not None else ())]
+        return [choose, kind.settings_by_key["repeat"], *params]
+
+    def _build_fields(self, specs: list[Setting]) -> None:
+        self._clear_fields()
+        for spec in specs:
+            field = Field(spec, self._commit)
+            self.fields[spec.key] = field
+            if spec.type == "bool":
+                self.form.addRow("", field.widget)
+            else:
+                self.form.addRow(spec.label, field.widget)
+            self.form.addRow("", field.message)
+
+    def _clear_fields(self) -> None:
+        # deleteLater: a field may be rebuilt from inside its own signal (choosing another motif)
+        while self.form.rowCount():
+            row = self.form.takeRow(0)
+            for item in (row.labelItem, row.fieldItem):
+                if item is not None and item.widget() is not None:
+                    item.widget().hide()
+                    item.widget().deleteLater()
+        self.fields = {}
+
+    def _facts(self, block) -> str:
+        design = self.document.design
+        analysis = design.analysis()
+        wires = sorted(design.in_wires[block.id], key=lambda w: w.dst_port)
+        ins = [analysis.shape(w.src, w.src_port) for w in wires]
+        result = analysis.result(block.id)
+        rows = []
+        if KINDS[block.kind].input_count(block.settings) or wires:
+            chans = ", ".join(str(s[0]) if s is not None else "?" for s in ins) or "not wired"
+            rows.append(("In channels", f"{chans} {_muted('(from the wire)')}"))
+            rows.append(("Input shape", ", ".join(str(s) if s is not None else "?" for s in ins) or "—"))
+        outs = result.outs if result is not None else ()
+        rows.append(("Output shape", ", ".join(str(s) for s in outs) if outs else "unknown"))
+        if result is not None:
+            rows.append(("Weights", units.count(result.cost.weights)))
+            rows.append(("MACs", f"{units.count(result.cost.macs * design.batch)} {_muted(f'(batch {design.batch})')}"))
+        for f in analysis.findings_of(block.id):
+            rows.append((f.severity.capitalize(), _escape(f.message)))
+        return _table(rows)
+
+    def _show_summary(self, ids: list) -> None:
+        design = self.document.design
+        if not ids:
+            self.heading.setText("Block settings")
+            self.facts.setText(_muted("Select a block on the canvas to see and change its settings."))
+            return
+        self.heading.setText(f"{len(ids)} blocks selected")
+        kinds = Counter(KINDS[design.blocks[b].kind].title for b in ids)
+        analysis = design.analysis()
+        results = [analysis.result(b) for b in ids]
+        weights = sum(r.cost.weights for r in results if r is not None)
+        macs = sum(r.cost.macs for r in results if r is not None) * design.batch
+        rows = [("Kinds", ", ".join(f"{n} × {k}" for k, n in kinds.most_common())),
+                ("Weights", units.count(weights)),
+                ("MACs", f"{units.count(macs)} {_muted(f'(batch {design.batch})')}")]
+        self.facts.setText(_table(rows))
+
+    # ----- widgets → model
+    def _commit(self, field: Field, value) -> None:
+        design, bid = self.document.design, self.block_id
+        if bid is None:
+            return
+        key = field.setting.key
+        old = design.blocks[bid].settings.get(key)
+        try:
+            edit = edits.set_settings(design, bid, {key: value})
+            if edit.ops[0].value == design.blocks[bid].settings:
+                field.show_value(old)  # same value, perhaps typed differently: show it as stored
+                return
+            self.document.apply(edit)
+        except (SettingError, edits.EditError) as e:
+            field.say(f"{e} — kept {value_text(old)}")
+            field.show_value(old)
+            return
+        field.say("")
+
+    def _commit_name(self) -> None:
+        design, bid = self.document.design, self.block_id
+        if bid is None:
+            return
+        name = self.name_edit.text().strip()
+        block = design.blocks[bid]
+        clash = next((b for b in design.blocks.values() if b.name == name and b.id != bid), None)
+        if not name or clash is not None:
+            why = "a block needs a name" if not name else f"the name {name!r} is already used by another block"
+            self.name_message.setText(f"{why} — kept {block.name}")
+            self.name_message.show()
+            self.name_edit.setText(block.name)
+            return
+        self.name_message.hide()
+        if name != block.name:
+            self.document.apply(edits.rename(design, bid, name))
+
+
+def _muted(text: str) -> str:
+    return f"<span style='color:{theme.TEXT_MUTED.name()}'>{text}</span>"
+
+
+def _escape(text: str) -> str:
+    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+
+
+def _table(rows: list[tuple[str, str]]) -> str:
+    cells = "".join(f"<tr><td style='color:{theme.TEXT_MUTED.name()}; padding-right:10px'>{k}</td><td>{v}</td></tr>" for k, v in rows)
+    return f"<table cellspacing='0' cellpadding='2'>{cells}</table>"

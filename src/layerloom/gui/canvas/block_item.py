@@ -1,0 +1,193 @@
+"""A block on the canvas: a plain card with notched ports, a glyph, two lines of text and a cost bar.
+
+The item holds only what it draws (texts, port counts, status, cost share); the canvas scene sets
+that state from the design and its analysis. ``paint`` only draws.
+"""
+from __future__ import annotations
+
+from functools import lru_cache
+from typing import NamedTuple
+
+from PySide6.QtCore import QPointF, QRectF, Qt
+from PySide6.QtGui import QBrush, QFont, QFontMetricsF, QPainterPath, QPen
+from PySide6.QtWidgets import QGraphicsItem, QStyle
+
+from layerloom.gui import theme
+from layerloom.gui.canvas.glyphs import glyph_for
+
+W, H = theme.CARD_WIDTH, theme.CARD_HEIGHT
+TITLE_LEFT = theme.PADDING + theme.GLYPH_SIZE + 6.0
+TITLE_BASE, DETAIL_BASE = 21.0, 39.0
+PORT_REACH = 9.0  # how near (scene pixels) a pointer must come to a notch to take hold of it
+
+
+class CardState(NamedTuple):
+    """Everything a card shows; equal states draw the same picture."""
+
+    kind: str
+    title: str
+    detail: str
+    shape: str
+    n_in: int
+    n_out: int
+    status: str  # "", "note", "warning" or "error"
+    cost_share: float  # 0..1, rounded to a pixel of the bar
+
+
+def port_y(index: int, count: int) -> float:
+    """Vertical place of port ``index`` of ``count`` along a card edge."""
+    return H * (index + 1) / (count + 1)
+
+
+@lru_cache(maxsize=64)
+def card_path(n_in: int, n_out: int) -> QPainterPath:
+    """The card outline with a V notch cut into the left edge per input and the right per output."""
+    body = QPainterPath()
+    body.addRoundedRect(QRectF(0, 0, W, H), theme.CARD_RADIUS, theme.CARD_RADIUS)
+    cuts = QPainterPath()
+    d, h = theme.NOTCH_DEPTH, theme.NOTCH_HALF
+    for x, inward, count in ((0.0, d, n_in), (W, -d, n_out)):
+        for i in range(count):
+            y = port_y(i, count)
+            cuts.moveTo(x - inward * 0.2, y - h)
+            cuts.lineTo(x + inward, y)
+            cuts.lineTo(x - inward * 0.2, y + h)
+            cuts.closeSubpath()
+    return body.subtracted(cuts).simplified() if n_in or n_out else body
+
+
+_fonts: dict[str, QFont] = {}
+_metrics: dict[str, QFontMetricsF] = {}
+
+
+def font(which: str) -> QFont:
+    """A theme font (``title``, ``detail``, ``figure``, ``badge``), made once and shared: do not modify."""
+    f = _fonts.get(which)
+    if f is None:
+        f = _fonts[which] = getattr(theme, f"{which}_font")()
+    return f
+
+
+def metrics(which: str) -> QFontMetricsF:
+    """Metrics of :func:`font` ``(which)``, made once (a Qt application must exist)."""
+    m = _metrics.get(which)
+    if m is None:
+        m = _metrics[which] = QFontMetricsF(font(which))
+    return m
+
+
+class BlockItem(QGraphicsItem):
+    """One block's card. Its position is the card's top-left corner, as stored in the design."""
+
+    def __init__(self, block_id: str, state: CardState, on_moved):
+        super().__init__()
+        self.block_id = block_id
+        self._on_moved = on_moved
+        self.state = state
+        self._title = self._detail = ""
+        self._texts()
+        self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsMovable | QGraphicsItem.GraphicsItemFlag.ItemIsSelectable
+                      | QGraphicsItem.GraphicsItemFlag.ItemSendsScenePositionChanges)
+        self.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        self.setAcceptHoverEvents(False)
+
+    # ----- state
+    def set_state(self, state: CardState) -> None:
+        if state == self.state:
+            return
+        self.state = state
+        self._texts()
+        self.update()
+
+    def _texts(self) -> None:
+        s = self.state
+        room = W - TITLE_LEFT - theme.PADDING
+        self._title = metrics("title").elidedText(s.title, Qt.TextElideMode.ElideRight, room)
+        shape_w = metrics("figure").horizontalAdvance(s.shape) + 8 if s.shape else 0
+        self._detail = metrics("detail").elidedText(s.detail, Qt.TextElideMode.ElideRight,
+                                                    W - 2 * theme.PADDING - shape_w)
+
+    # ----- geometry
+    def boundingRect(self) -> QRectF:
+        m = theme.STATUS_OUTLINE + 4.0
+        return QRectF(-m, -m, W + 2 * m, H + 2 * m)
+
+    def shape(self) -> QPainterPath:
+        """The card with a little room beyond its edges, so the notches can be taken hold of."""
+        p = QPainterPath()
+        p.addRect(QRectF(-4.0, 0, W + 8.0, H))
+        return p
+
+    def input_pos(self, port: int) -> QPointF:
+        """Scene point where a wire into input ``port`` ends (just short of its notch)."""
+        return self.scenePos() + QPointF(-theme.WIRE_GAP, port_y(port, max(self.state.n_in, port + 1)))
+
+    def output_pos(self, port: int) -> QPointF:
+        return self.scenePos() + QPointF(W + theme.WIRE_GAP, port_y(port, max(self.state.n_out, port + 1)))
+
+    def title_rect(self) -> QRectF:
+        return QRectF(TITLE_LEFT - 3, 6.0, W - TITLE_LEFT - theme.PADDING + 6, 20.0)
+
+    def port_at(self, local: QPointF, reach: float = PORT_REACH) -> tuple[str, int] | None:
+        """``("in", i)`` or ``("out", i)`` when ``local`` (item coordinates) is at a notch."""
+        for side, x, count in (("in", 0.0, self.state.n_in), ("out", W, self.state.n_out)):
+            if abs(local.x() - x) > reach + theme.NOTCH_DEPTH:
+                continue
+            for i in range(count):
+                if abs(local.y() - port_y(i, count)) <= reach:
+                    return side, i
+        return None
+
+    def nearest_input(self, local_y: float, taken: set[int]) -> int | None:
+        """The input port nearest ``local_y``, preferring ports with no wire yet."""
+        ports = range(self.state.n_in)
+        free = [p for p in ports if p not in taken] or list(ports)
+        return min(free, key=lambda p: abs(port_y(p, self.state.n_in) - local_y)) if free else None
+
+    # ----- moves
+    def itemChange(self, change, value):
+        if change == QGraphicsItem.GraphicsItemChange.ItemScenePositionHasChanged:
+            self._on_moved(self.block_id)
+        return super().itemChange(change, value)
+
+    # ----- drawing
+    def paint(self, painter, option, widget=None) -> None:
+        s = self.state
+        path = card_path(s.n_in, s.n_out)
+        lod = option.levelOfDetailFromTransform(painter.worldTransform())
+        selected = bool(option.state & QStyle.StateFlag.State_Selected)
+        status = theme.SEVERITY_COLOURS.get(s.status) if s.status in ("error", "warning") else None
+        if selected:
+            painter.setPen(QPen(theme.ACCENT, 2.0))
+            painter.setBrush(Qt.BrushStyle.NoBrush)
+            painter.drawRoundedRect(QRectF(-3.5, -3.5, W + 7, H + 7), theme.CARD_RADIUS + 3, theme.CARD_RADIUS + 3)
+        painter.setBrush(QBrush(theme.CARD))
+        painter.setPen(QPen(status, theme.STATUS_OUTLINE) if status is not None else QPen(theme.CARD_EDGE, theme.OUTLINE))
+        painter.drawPath(path)
+        if s.cost_share > 0:
+            inset = theme.CARD_RADIUS
+            track = QRectF(inset, H - theme.COST_BAR_HEIGHT - 2.0, W - 2 * inset, theme.COST_BAR_HEIGHT)
+            painter.setPen(Qt.PenStyle.NoPen)
+            painter.setBrush(theme.COST_TRACK)
+            painter.drawRect(track)
+            painter.setBrush(theme.COST_BAR)
+            painter.drawRect(QRectF(track.left(), track.top(), max(track.width() * s.cost_share, 1.5), track.height()))
+        if lod < theme.TEXT_MIN_DETAIL:
+            return
+        painter.save()
+        painter.translate(theme.PADDING, 9.0)
+        painter.setPen(QPen(theme.GLYPH, 1.1))
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.drawPath(glyph_for(s.kind, theme.GLYPH_SIZE))
+        painter.restore()
+        painter.setPen(theme.TEXT)
+        painter.setFont(font("title"))
+        painter.drawText(QPointF(TITLE_LEFT, TITLE_BASE), self._title)
+        painter.setPen(theme.TEXT_MUTED)
+        painter.setFont(font("detail"))
+        painter.drawText(QPointF(theme.PADDING, DETAIL_BASE), self._detail)
+        if s.shape:
+            painter.setPen(theme.TEXT)
+            painter.setFont(font("figure"))
+            x = W - theme.PADDING - theme.NOTCH_DEPTH - metrics("figure").horizontalAdvance(s.shape)
+            painter.drawText(QPointF(x, DETAIL_BASE), s.shape)

@@ -1,0 +1,259 @@
+"""The canvas scene: one item per block and per wire of the design, kept in step with the document.
+
+It observes :class:`~layerloom.gui.document.Document`: a change adds, removes or updates only the
+affected items; a move or rename never touches inference; after a change that re-infers, shapes,
+badges and cost bars are read from ``design.analysis()`` and only items whose picture differs are
+updated. Wires attached to a moving block are marked dirty and rebuilt once per event-loop pass.
+"""
+from __future__ import annotations
+
+from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
+from PySide6.QtWidgets import QGraphicsScene
+
+from layerloom.core import edits
+from layerloom.core.findings import SEVERITY_RANK
+from layerloom.core.kinds import KINDS
+from layerloom.core.mends import mends_for
+from layerloom.core.settings import SettingError
+from layerloom.gui import theme
+from layerloom.gui.canvas.badge_item import BadgeItem
+from layerloom.gui.canvas.block_item import H, W, BlockItem, CardState
+from layerloom.gui.canvas.wire_item import WireItem
+
+
+def port_counts(design, block) -> tuple[int, int]:
+    """Input and output port counts of ``block`` (a motif instance takes its motif's)."""
+    kind = KINDS.get(block.kind)
+    if block.kind == "Motif":
+        motif = design.motifs.get(block.settings.get("motif"))
+        if motif is None:
+            return 1, 1
+        ins, outs = motif.ports()
+        return len(ins), len(outs)
+    if kind is None:
+        return 1, 1
+    return kind.input_count(block.settings), kind.output_count(block.settings)
+
+
+def detail_text(block) -> str:
+    """The card's second line: settings in trade notation (a motif instance: motif × repeat)."""
+    kind = KINDS.get(block.kind)
+    if block.kind == "Motif":
+        return f"{block.settings.get('motif', '?')} × {block.settings.get('repeat', 1)}"
+    if kind is None:
+        return block.kind
+    return kind.summary(block.settings) or kind.title
+
+
+class CanvasScene(QGraphicsScene):
+    """Items for a document's design. ``refused`` carries the message of an edit the core refused."""
+
+    refused = Signal(str)
+
+    def __init__(self, document, parent=None):
+        super().__init__(parent)
+        self.document = document
+        self.blocks: dict[str, BlockItem] = {}
+        self.wires: dict = {}  # Wire → WireItem
+        self.badges: dict[str, list[BadgeItem]] = {}
+        self._findings: dict[str, tuple] = {}
+        self._dirty_wires: set = set()
+        self._flush_queued = False
+        self._syncing_selection = False
+        self._total_macs = 0
+        self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
+        document.changed.connect(self._on_changed)
+        document.replaced.connect(self.rebuild)
+        document.selection_changed.connect(self._select_from_document)
+        self.selectionChanged.connect(self._select_to_document)
+        self.rebuild()
+
+    @property
+    def design(self):
+        return self.document.design
+
+    # ----- whole design
+    def rebuild(self) -> None:
+        """Drop every item and make them again for the document's design (a load or a new design)."""
+        self._syncing_selection = True
+        try:
+            self.clear()
+        finally:
+            self._syncing_selection = False
+        self.blocks, self.wires, self.badges, self._findings = {}, {}, {}, {}
+        self._dirty_wires.clear()
+        self._sync_topology()
+        self._refresh_results()
+        self.flush_wires()
+        self.setSceneRect(self._wanted_rect())
+
+    def _wanted_rect(self) -> QRectF:
+        pos = [b.position for b in self.design.blocks.values()]
+        if not pos:
+            return QRectF(-theme.SCENE_MARGIN, -theme.SCENE_MARGIN, 2 * theme.SCENE_MARGIN, 2 * theme.SCENE_MARGIN)
+        xs, ys = [p[0] for p in pos], [p[1] for p in pos]
+        m = theme.SCENE_MARGIN
+        return QRectF(min(xs) - m, min(ys) - m, max(xs) - min(xs) + W + 2 * m, max(ys) - min(ys) + H + 2 * m)
+
+    def grow_to_fit(self) -> None:
+        """Widen the scene rect when blocks come near or past its edges (it never shrinks while editing)."""
+        wanted = self._wanted_rect()
+        current = self.sceneRect()
+        if not current.contains(wanted):
+            self.setSceneRect(current.united(wanted))
+
+    # ----- following the model
+    def _on_changed(self, change) -> None:
+        if "" in change.topology:
+            self._sync_topology()
+        for bid in change.moved.get("", ()):
+            item = self.blocks.get(bid)
+            if item is not None:
+                x, y = self.design.blocks[bid].position
+                if item.pos() != QPointF(x, y):
+                    item.setPos(x, y)
+        for bid in change.renamed.get("", ()):
+            item = self.blocks.get(bid)
+            if item is not None:
+                item.set_state(item.state._replace(title=self.design.blocks[bid].name))
+        if change.reinfers:
+            self._refresh_results()
+        self.flush_wires()
+        if change.moved or change.topology:
+            self.grow_to_fit()
+
+    def _sync_topology(self) -> None:
+        design = self.design
+        for bid in [b for b in self.blocks if b not in design.blocks]:
+            self.removeItem(self.blocks.pop(bid))
+            self.badges.pop(bid, None)
+            self._findings.pop(bid, None)
+        for w in [w for w in self.wires if w not in design.wires]:
+            self.removeItem(self.wires.pop(w))
+            self._dirty_wires.discard(w)
+        for bid, block in design.blocks.items():
+            if bid not in self.blocks:
+                n_in, n_out = port_counts(design, block)
+                item = BlockItem(bid, CardState(block.kind, block.name, detail_text(block), "", n_in, n_out, "", 0.0),
+                                 self._block_moved)
+                item.setPos(*block.position)
+                self.blocks[bid] = item
+                self.addItem(item)
+        for w in design.wires:
+            if w not in self.wires:
+                item = self.wires[w] = WireItem(w)
+                self.addItem(item)
+                self._dirty_wires.add(w)
+
+    def _refresh_results(self) -> None:
+        """Read shapes, findings and MAC shares from the analysis; update items whose picture differs."""
+        design = self.design
+        analysis = design.analysis().refresh()
+        results = analysis.top.results
+        total = sum(r.cost.macs for r in results.values() if r is not None)
+        self._total_macs = total
+        by_block: dict[str, list] = {}
+        for f in analysis.all_findings():
+            by_block.setdefault(f.block, []).append(f)
+        for bid, item in self.blocks.items():
+            block = design.blocks[bid]
+            r = results.get(bid)
+            old = item.state
+            n_in, n_out = port_counts(design, block)
+            found = tuple(by_block.get(bid, ()))
+            status = found[0].severity if found else ""
+            share = round(r.cost.macs / total, 2) if (r is not None and total) else 0.0
+            shape = str(r.outs[0]) if r is not None and r.outs else ""
+            state = CardState(block.kind, block.name, detail_text(block), shape, n_in, n_out, status, share)
+            if (n_in, n_out) != (old.n_in, old.n_out):
+                self._dirty_wires.update(design.in_wires[bid] + design.out_wires[bid])
+            item.set_state(state)
+            if found != self._findings.get(bid, ()):
+                self._set_badges(item, found)
+        for w, item in self.wires.items():
+            r = results.get(w.src)
+            carried = r.outs[w.src_port] if r is not None and w.src_port < len(r.outs) else None
+            if carried != item.carried:
+                item.carried = carried
+                self._dirty_wires.add(w)
+
+    def _set_badges(self, item: BlockItem, found: tuple) -> None:
+        for badge in self.badges.pop(item.block_id, []):
+            badge.setParentItem(None)
+            self.removeItem(badge)
+        self._findings[item.block_id] = found
+        groups: dict = {}
+        for f in found:
+            port = f.port if f.port is not None and f.port < item.state.n_in else None
+            groups.setdefault(port, []).append(f)
+        self.badges[item.block_id] = [
+            BadgeItem(item, port, sorted(fs, key=lambda f: SEVERITY_RANK[f.severity]), self)
+            for port, fs in groups.items()]
+
+    # ----- wires following blocks
+    def _block_moved(self, block_id: str) -> None:
+        g = self.design
+        ws = g.in_wires.get(block_id)
+        if ws is None:
+            return
+        self._dirty_wires.update(ws)
+        self._dirty_wires.update(g.out_wires[block_id])
+        if not self._flush_queued:
+            self._flush_queued = True
+            QTimer.singleShot(0, self.flush_wires)
+
+    def flush_wires(self) -> None:
+        """Re-route every dirty wire once."""
+        self._flush_queued = False
+        blocks = self.blocks
+        for w in self._dirty_wires:
+            item = self.wires.get(w)
+            if item is not None:
+                item.set_geometry(blocks[w.src].output_pos(w.src_port), blocks[w.dst].input_pos(w.dst_port))
+        self._dirty_wires.clear()
+
+    # ----- selection, both ways
+    def _select_to_document(self) -> None:
+        if self._syncing_selection:
+            return
+        self._syncing_selection = True
+        try:
+            self.document.select([i.block_id for i in self.selectedItems() if isinstance(i, BlockItem)])
+        finally:
+            self._syncing_selection = False
+
+    def _select_from_document(self, ids: list) -> None:
+        if self._syncing_selection:
+            return
+        self._syncing_selection = True
+        try:
+            wanted = set(ids)
+            for item in self.selectedItems():
+                if not isinstance(item, BlockItem) or item.block_id not in wanted:
+                    item.setSelected(False)
+            for bid in ids:
+                item = self.blocks.get(bid)
+                if item is not None and not item.isSelected():
+                    item.setSelected(True)
+        finally:
+            self._syncing_selection = False
+
+    # ----- edits
+    def apply(self, edit) -> bool:
+        """Apply ``edit`` through the document (one undo step); on refusal emit ``refused`` and return False."""
+        try:
+            self.document.apply(edit)
+        except (edits.EditError, SettingError) as e:
+            self.refused.emit(str(e))
+            return False
+        return True
+
+    def mends(self, finding):
+        return mends_for(self.design, finding)
+
+    def apply_mend(self, mend) -> bool:
+        return self.apply(mend.edit)
+
+    def total_macs(self) -> int:
+        """MACs of the whole design per sample, as of the last refresh."""
+        return self._total_macs

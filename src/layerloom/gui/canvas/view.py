@@ -1,0 +1,456 @@
+"""The canvas view: shows a document's design left → right and turns mouse and keys into edits.
+
+Every change goes through ``document.apply`` as one undoable edit (add, wire, move, delete, paste,
+rename, Tidy, mends). Pan with the middle button or space + drag, zoom about the cursor with the
+wheel. Quick add and rename in place are plain widgets over the view, never scene items.
+"""
+from __future__ import annotations
+
+from PySide6.QtCore import QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
+from PySide6.QtGui import QCursor, QGuiApplication, QImage, QKeySequence, QPainter
+from PySide6.QtWidgets import QGraphicsView
+
+from layerloom.core import clipboard, edits
+from layerloom.core.graph import Wire
+from layerloom.core.kinds import KINDS
+from layerloom.core.layout import COLUMN, tidy_positions
+from layerloom.gui import theme
+from layerloom.gui.canvas.block_item import H, W, BlockItem
+from layerloom.gui.canvas.name_editor import NameEditor
+from layerloom.gui.canvas.quick_add import QuickAdd
+from layerloom.gui.canvas.scene import CanvasScene
+from layerloom.gui.canvas.wire_item import DraftWire, WireItem
+
+KIND_MIME = "application/x-layerloom-kind"
+"""Drag-and-drop type of a kind from Parts; the data is the kind's name in UTF-8."""
+
+PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down and right
+ZOOM_STEP = 1.25
+
+
+class CanvasView(QGraphicsView):
+    """The canvas for ``document``. ``message`` carries a refusal or hint for a status line."""
+
+    message = Signal(str)
+
+    def __init__(self, document, parent=None):
+        super().__init__(parent)
+        self.document = document
+        self.canvas_scene = CanvasScene(document, self)
+        self.setScene(self.canvas_scene)
+        self.canvas_scene.refused.connect(self.message)
+        self.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
+        self.setViewportUpdateMode(QGraphicsView.ViewportUpdateMode.SmartViewportUpdate)
+        self.setCacheMode(QGraphicsView.CacheModeFlag.CacheBackground)
+        self.setOptimizationFlag(QGraphicsView.OptimizationFlag.DontAdjustForAntialiasing, True)
+        self.setDragMode(QGraphicsView.DragMode.RubberBandDrag)
+        self.setRubberBandSelectionMode(Qt.ItemSelectionMode.IntersectsItemShape)
+        self.setTransformationAnchor(QGraphicsView.ViewportAnchor.AnchorUnderMouse)
+        self.setResizeAnchor(QGraphicsView.ViewportAnchor.AnchorViewCenter)
+        self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
+        self.setAcceptDrops(True)
+        self.setObjectName("canvas")
+        self._pan_from: QPoint | None = None
+        self._space = False
+        self._draft: DraftWire | None = None
+        self._draft_from: tuple[str, int] | None = None
+        self._quick = QuickAdd(self)
+        self._quick.hide()
+        self._quick.chosen.connect(self._quick_chosen)
+        self._quick_spot = QPointF()
+        self._quick_source: tuple[str, int] | None = None
+        self._names = NameEditor(self)
+        self._names.committed.connect(self._rename)
+        self._paste_text, self._paste_count = "", 0
+        document.replaced.connect(self.fit_all)
+
+    # ----- looking around
+    def _zoom(self, factor: float) -> None:
+        now = self.transform().m11()
+        factor = max(theme.ZOOM_MIN / now, min(theme.ZOOM_MAX / now, factor))
+        self.scale(factor, factor)
+
+    def zoom_in(self) -> None:
+        self._zoom_about_centre(ZOOM_STEP)
+
+    def zoom_out(self) -> None:
+        self._zoom_about_centre(1 / ZOOM_STEP)
+
+    def _zoom_about_centre(self, factor: float) -> None:
+        anchor = self.transformationAnchor()
+        self.setTransformationAnchor(QGraphicsView.ViewportAnchor.AnchorViewCenter)
+        self._zoom(factor)
+        self.setTransformationAnchor(anchor)
+
+    def zoom_level(self) -> float:
+        return self.transform().m11()
+
+    def fit_all(self) -> None:
+        """Show every block (never magnified beyond 1.25×)."""
+        rect = self.canvas_scene.itemsBoundingRect()
+        if rect.isEmpty():
+            return
+        self.fitInView(rect.adjusted(-40, -40, 40, 40), Qt.AspectRatioMode.KeepAspectRatio)
+        if self.transform().m11() > 1.25:
+            self.resetTransform()
+            self.scale(1.25, 1.25)
+            self.centerOn(rect.center())
+
+    def center_on(self, block_id: str) -> None:
+        item = self.canvas_scene.blocks.get(block_id)
+        if item is not None:
+            self.centerOn(item.sceneBoundingRect().center())
+
+    def wheelEvent(self, event) -> None:
+        self._zoom(1.0015 ** event.angleDelta().y())
+        event.accept()
+
+    def drawBackground(self, painter, rect: QRectF) -> None:
+        painter.fillRect(rect, theme.CANVAS)
+        scale = self.transform().m11()
+        step = theme.GRID_STEP
+        major = step * theme.GRID_MAJOR_EVERY
+        for spacing, colour in ((step, theme.GRID_MINOR), (major, theme.GRID_MAJOR)):
+            if spacing * scale < 8:
+                continue
+            left, top = int(rect.left() // spacing) * spacing, int(rect.top() // spacing) * spacing
+            lines = []
+            x = left
+            while x < rect.right():
+                lines.append(QLineF(x, rect.top(), x, rect.bottom()))
+                x += spacing
+            y = top
+            while y < rect.bottom():
+                lines.append(QLineF(rect.left(), y, rect.right(), y))
+                y += spacing
+            painter.setPen(colour)
+            painter.drawLines(lines)
+
+    # ----- mouse
+    def _block_at(self, view_pos: QPoint, reach: float = 0.0) -> BlockItem | None:
+        if reach:
+            s = self.mapToScene(view_pos)
+            items = self.canvas_scene.items(QRectF(s.x() - reach, s.y() - reach, 2 * reach, 2 * reach))
+        else:
+            items = self.items(view_pos)
+        for item in items:
+            while item is not None and not isinstance(item, BlockItem):
+                item = item.parentItem()
+            if item is not None:
+                return item
+        return None
+
+    def mousePressEvent(self, event) -> None:
+        button = event.button()
+        if button == Qt.MouseButton.MiddleButton or (button == Qt.MouseButton.LeftButton and self._space):
+            self._pan_from = event.position().toPoint()
+            self.viewport().setCursor(Qt.CursorShape.ClosedHandCursor)
+            event.accept()
+            return
+        if button == Qt.MouseButton.LeftButton:
+            item = self._block_at(event.position().toPoint())
+            if item is not None:
+                port = item.port_at(item.mapFromScene(self.mapToScene(event.position().toPoint())))
+                if port is not None and port[0] == "out":
+                    self._start_wire(item, port[1])
+                    event.accept()
+                    return
+        super().mousePressEvent(event)
+
+    def mouseMoveEvent(self, event) -> None:
+        if self._pan_from is not None:
+            p = event.position().toPoint()
+            delta = p - self._pan_from
+            self._pan_from = p
+            self.horizontalScrollBar().setValue(self.horizontalScrollBar().value() - delta.x())
+            self.verticalScrollBar().setValue(self.verticalScrollBar().value() - delta.y())
+            event.accept()
+            return
+        if self._draft is not None:
+            self._draft.reach(self.mapToScene(event.position().toPoint()))
+            event.accept()
+            return
+        super().mouseMoveEvent(event)
+        self.canvas_scene.flush_wires()
+
+    def mouseReleaseEvent(self, event) -> None:
+        if self._pan_from is not None and event.button() in (Qt.MouseButton.MiddleButton, Qt.MouseButton.LeftButton):
+            self._pan_from = None
+            self.viewport().setCursor(Qt.CursorShape.OpenHandCursor if self._space else Qt.CursorShape.ArrowCursor)
+            event.accept()
+            return
+        if self._draft is not None and event.button() == Qt.MouseButton.LeftButton:
+            self._finish_wire(event.position().toPoint())
+            event.accept()
+            return
+        super().mouseReleaseEvent(event)
+        if event.button() == Qt.MouseButton.LeftButton:
+            self._commit_moves()
+
+    def mouseDoubleClickEvent(self, event) -> None:
+        item = self._block_at(event.position().toPoint())
+        if item is not None and event.button() == Qt.MouseButton.LeftButton:
+            self._start_rename(item)
+            event.accept()
+            return
+        super().mouseDoubleClickEvent(event)
+
+    def _commit_moves(self) -> None:
+        """One undoable move for every selected block the drag left somewhere new."""
+        blocks = self.document.design.blocks
+        moved = {}
+        for item in self.canvas_scene.selectedItems():
+            if isinstance(item, BlockItem) and item.block_id in blocks:
+                p = (item.pos().x(), item.pos().y())
+                if p != tuple(blocks[item.block_id].position):
+                    moved[item.block_id] = p
+        if moved:
+            self.canvas_scene.apply(edits.move(self.document.design, moved))
+
+    # ----- wiring by dragging from an output notch
+    def _start_wire(self, item: BlockItem, port: int) -> None:
+        self._draft_from = (item.block_id, port)
+        self._draft = DraftWire(item.output_pos(port))
+        self.canvas_scene.addItem(self._draft)
+
+    def _finish_wire(self, view_pos: QPoint) -> None:
+        self.canvas_scene.removeItem(self._draft)
+        self._draft = None
+        src, src_port = self._draft_from
+        self._draft_from = None
+        target = self._block_at(view_pos, reach=8.0)
+        if target is None:
+            self.quick_add(at=view_pos, source=(src, src_port))
+            return
+        if target.block_id == src:
+            return
+        local = target.mapFromScene(self.mapToScene(view_pos))
+        hit = target.port_at(local)
+        design = self.document.design
+        if hit is not None and hit[0] == "in":
+            port = hit[1]
+        else:
+            port = target.nearest_input(local.y(), {w.dst_port for w in design.in_wires[target.block_id]})
+        if port is None:
+            self.message.emit(f"{design.blocks[target.block_id].name} takes no input")
+            return
+        try:
+            edit = edits.connect(design, Wire(src, src_port, target.block_id, port))
+        except edits.EditError as e:
+            self.message.emit(str(e))
+            return
+        self.canvas_scene.apply(edit)
+
+    # ----- keys
+    def keyPressEvent(self, event) -> None:
+        key, mods = event.key(), event.modifiers()
+        if key in (Qt.Key.Key_Delete, Qt.Key.Key_Backspace):
+            self.delete_selection()
+        elif key == Qt.Key.Key_F2:
+            self.rename_selected()
+        elif key == Qt.Key.Key_Space and not event.isAutoRepeat():
+            self._space = True
+            self.viewport().setCursor(Qt.CursorShape.OpenHandCursor)
+        elif event.matches(QKeySequence.StandardKey.Copy):
+            self.copy()
+        elif event.matches(QKeySequence.StandardKey.Paste):
+            self.paste()
+        elif event.matches(QKeySequence.StandardKey.SelectAll):
+            self.select_all()
+        elif key == Qt.Key.Key_D and mods & Qt.KeyboardModifier.ControlModifier:
+            self.duplicate()
+        elif event.text().isprintable() and event.text().strip() and not mods & (
+                Qt.KeyboardModifier.ControlModifier | Qt.KeyboardModifier.AltModifier):
+            self.quick_add(text=event.text())
+        else:
+            super().keyPressEvent(event)
+            return
+        event.accept()
+
+    def keyReleaseEvent(self, event) -> None:
+        if event.key() == Qt.Key.Key_Space and not event.isAutoRepeat():
+            self._space = False
+            if self._pan_from is None:
+                self.viewport().setCursor(Qt.CursorShape.ArrowCursor)
+        super().keyReleaseEvent(event)
+
+    # ----- adding blocks
+    def dragEnterEvent(self, event) -> None:
+        if event.mimeData().hasFormat(KIND_MIME):
+            event.acceptProposedAction()
+        else:
+            super().dragEnterEvent(event)
+
+    def dragMoveEvent(self, event) -> None:
+        if event.mimeData().hasFormat(KIND_MIME):
+            event.acceptProposedAction()
+        else:
+            super().dragMoveEvent(event)
+
+    def dropEvent(self, event) -> None:
+        if not event.mimeData().hasFormat(KIND_MIME):
+            super().dropEvent(event)
+            return
+        kind = bytes(event.mimeData().data(KIND_MIME)).decode("utf-8")
+        event.acceptProposedAction()
+        self.add_kind(kind, self.mapToScene(event.position().toPoint()))
+
+    def _selected_source(self) -> tuple[str, int] | None:
+        """The one selected block's first output, if exactly one block with an output is selected."""
+        sel = self.document.selection
+        item = self.canvas_scene.blocks.get(sel[0]) if len(sel) == 1 else None
+        return (item.block_id, 0) if item is not None and item.state.n_out else None
+
+    def add_kind(self, kind: str, centre: QPointF, source: tuple[str, int] | None = None,
+                 from_selection: bool = True) -> str | None:
+        """Add a block of ``kind`` centred at scene point ``centre`` as one edit, wired from ``source``
+        (or from the one selected block when ``from_selection``); selects it and returns its id."""
+        spec = KINDS.get(kind)
+        if spec is None:
+            self.message.emit(f"there is no block kind {kind!r}")
+            return None
+        takes_input = kind == "Motif" or spec.input_count(spec.defaults) > 0
+        if source is None and from_selection and takes_input:
+            source = self._selected_source()
+        design = self.document.design
+        edit, bid = edits.add_block(design, kind, {}, position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
+                                    inputs=[source] if source is not None and takes_input else ())
+        if self.canvas_scene.apply(edit):
+            self.document.select([bid])
+            return bid
+        return None
+
+    def quick_add(self, text: str = "", at: QPoint | None = None, source: tuple[str, int] | None = None) -> None:
+        """Open Quick add at the cursor (or view point ``at``); the block chosen lands there, wired
+        from ``source`` or else from the one selected block (then placed to its right)."""
+        if at is None:
+            at = self.mapFromGlobal(QCursor.pos())
+            if not self.viewport().rect().contains(at):
+                at = self.viewport().rect().center()
+        self._quick_spot = self.mapToScene(at)
+        self._quick_source = source
+        self._quick.open_at(at.x(), at.y(), text)
+
+    def _quick_chosen(self, kind: str) -> None:
+        spot, source = self._quick_spot, self._quick_source
+        self._quick_source = None
+        if source is None:
+            source = self._selected_source()
+            if source is not None:
+                item = self.canvas_scene.blocks[source[0]]
+                spot = item.pos() + QPointF(COLUMN + W / 2, H / 2)
+        self.add_kind(kind, spot, source, from_selection=False)
+        self.setFocus()
+
+    # ----- selection and edits
+    def select_all(self) -> None:
+        self.document.select(list(self.document.design.blocks))
+
+    def delete_selection(self) -> None:
+        """Delete the selected blocks (with their wires) and the selected wires, as one edit."""
+        design = self.document.design
+        ids = [i.block_id for i in self.canvas_scene.selectedItems() if isinstance(i, BlockItem)]
+        gone = set(ids)
+        wires = [i.wire for i in self.canvas_scene.selectedItems()
+                 if isinstance(i, WireItem) and i.wire.src not in gone and i.wire.dst not in gone]
+        if not ids and not wires:
+            return
+        ops = tuple(op for w in wires for op in edits.disconnect(design, w).ops)
+        if ids:
+            edit = edits.remove_blocks(design, ids)
+            label = edit.label
+            ops += edit.ops
+        else:
+            label = "Remove wire" if len(wires) == 1 else "Remove wires"
+        self.canvas_scene.apply(edits.Edit(label, ops))
+
+    def copy(self) -> dict | None:
+        """Copy the selected blocks and the wires among them to the clipboard as JSON text."""
+        if not self.document.selection:
+            return None
+        data = clipboard.copy_blocks(self.document.design, self.document.selection)
+        QGuiApplication.clipboard().setText(clipboard.to_text(data))
+        return data
+
+    def paste(self) -> None:
+        text = QGuiApplication.clipboard().text()
+        try:
+            data = clipboard.from_text(text)
+        except clipboard.ClipboardError as e:
+            self.message.emit(str(e))
+            return
+        self._paste_count = self._paste_count + 1 if text == self._paste_text else 1
+        self._paste_text = text
+        self._paste(data, self._paste_count * PASTE_STEP)
+
+    def duplicate(self) -> None:
+        if self.document.selection:
+            self._paste(clipboard.copy_blocks(self.document.design, self.document.selection), PASTE_STEP)
+
+    def _paste(self, data: dict, step: float) -> None:
+        try:
+            edit, ids = clipboard.paste_edit(self.document.design, data, (step, step))
+        except clipboard.ClipboardError as e:
+            self.message.emit(str(e))
+            return
+        if ids and self.canvas_scene.apply(edit):
+            self.document.select(ids)
+
+    def tidy(self) -> None:
+        """Lay the design out left → right with Tidy, as one undoable edit, and show it all."""
+        design = self.document.design
+        changed = {b: p for b, p in tidy_positions(design).items() if tuple(design.blocks[b].position) != p}
+        if changed:
+            self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
+        self.fit_all()
+
+    def rename_selected(self) -> None:
+        sel = self.document.selection
+        if len(sel) == 1 and sel[0] in self.canvas_scene.blocks:
+            self._start_rename(self.canvas_scene.blocks[sel[0]])
+
+    def _start_rename(self, item: BlockItem) -> None:
+        self.ensureVisible(item.sceneBoundingRect(), 20, 20)
+        rect = self.mapFromScene(item.mapToScene(item.title_rect())).boundingRect()
+        rect.setHeight(max(rect.height(), self._names.sizeHint().height()))
+        rect.setWidth(max(rect.width(), 120))
+        self._names.start(item.block_id, self.document.design.blocks[item.block_id].name, rect)
+
+    def _rename(self, block_id: str, name: str) -> None:
+        design = self.document.design
+        if block_id in design.blocks:
+            self.canvas_scene.apply(edits.rename(design, block_id, name))
+
+    # ----- pictures
+    def _picture_rect(self) -> QRectF:
+        return self.canvas_scene.itemsBoundingRect().adjusted(-30, -30, 30, 30)
+
+    def save_png(self, path, scale: float = 2.0) -> bool:
+        """Write a picture of the whole canvas (all blocks) to ``path`` as PNG."""
+        rect = self._picture_rect()
+        image = QImage(QSize(max(int(rect.width() * scale), 1), max(int(rect.height() * scale), 1)),
+                       QImage.Format.Format_ARGB32_Premultiplied)
+        image.fill(theme.CANVAS)
+        painter = QPainter(image)
+        painter.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
+        self.canvas_scene.render(painter, QRectF(image.rect()), rect)
+        painter.end()
+        return image.save(str(path), "PNG")
+
+    def save_svg(self, path) -> bool:
+        """Write a picture of the whole canvas to ``path`` as SVG."""
+        from PySide6.QtSvg import QSvgGenerator
+
+        rect = self._picture_rect()
+        gen = QSvgGenerator()
+        gen.setFileName(str(path))
+        gen.setSize(rect.size().toSize())
+        gen.setViewBox(QRectF(0, 0, rect.width(), rect.height()))
+        gen.setTitle(self.document.design.name)
+        painter = QPainter()
+        if not painter.begin(gen):
+            return False
+        painter.fillRect(QRectF(0, 0, rect.width(), rect.height()), theme.CANVAS)
+        self.canvas_scene.render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
+        painter.end()
+        return True

@@ -1,0 +1,123 @@
+"""A wire on the canvas: a left → right curve whose stroke width grows with the channel count.
+
+The path, its padded bounding rect, the stroked hit shape and the label's place are computed in
+:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``); ``paint`` only draws them.
+"""
+from __future__ import annotations
+
+from math import log2
+
+from PySide6.QtCore import QPointF, QRectF, Qt
+from PySide6.QtGui import QPainterPath, QPainterPathStroker, QPen
+from PySide6.QtWidgets import QGraphicsItem, QStyle
+
+from layerloom.core.graph import Wire
+from layerloom.gui import theme
+from layerloom.gui.canvas.block_item import font, metrics
+
+HIT_WIDTH = 10.0  # a thin wire is still easy to click
+
+
+def stroke_width(channels: int | None) -> float:
+    """Stroke width for a wire carrying ``channels`` channels (or features): log scale, clamped."""
+    if not channels:
+        return theme.WIRE_MIN_WIDTH
+    w = theme.WIRE_MIN_WIDTH + theme.WIRE_WIDTH_PER_DOUBLING * log2(max(channels, 1))
+    return min(w, theme.WIRE_MAX_WIDTH)
+
+
+def curve(a: QPointF, b: QPointF) -> QPainterPath:
+    """A smooth curve leaving ``a`` and entering ``b`` horizontally."""
+    p = QPainterPath(a)
+    reach = max(abs(b.x() - a.x()) * 0.5, 40.0)
+    p.cubicTo(QPointF(a.x() + reach, a.y()), QPointF(b.x() - reach, b.y()), b)
+    return p
+
+
+class WireItem(QGraphicsItem):
+    """One wire; lives in scene coordinates (its own position stays at the origin)."""
+
+    def __init__(self, wire: Wire):
+        super().__init__()
+        self.wire = wire
+        self.carried = None  # the Shape the wire carries (None while unknown); set by the scene
+        self.label = ""
+        self.width = theme.WIRE_MIN_WIDTH
+        self.known = False
+        self._path = QPainterPath()
+        self._hit = QPainterPath()
+        self._bounds = QRectF()
+        self._label_rect = QRectF()
+        self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
+        self.setZValue(-1.0)
+
+    def set_geometry(self, a: QPointF, b: QPointF) -> None:
+        """Route the wire from ``a`` to ``b``; width and label follow :attr:`carried`."""
+        shape = self.carried
+        self.prepareGeometryChange()
+        self.known = shape is not None
+        self.label = str(shape) if shape is not None else ""
+        self.width = stroke_width(shape[0] if shape is not None else None)
+        self._path = curve(a, b)
+        stroker = QPainterPathStroker()
+        stroker.setWidth(max(self.width, HIT_WIDTH))
+        self._hit = stroker.createStroke(self._path)
+        bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
+        if self.label:
+            fm = metrics("figure")
+            mid = self._path.pointAtPercent(0.5)
+            w, h = fm.horizontalAdvance(self.label) + 6.0, fm.height() + 1.0
+            self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
+            bounds = bounds.united(self._label_rect)
+        else:
+            self._label_rect = QRectF()
+        self._bounds = bounds
+
+    def boundingRect(self) -> QRectF:
+        return self._bounds
+
+    def shape(self) -> QPainterPath:
+        return self._hit
+
+    def paint(self, painter, option, widget=None) -> None:
+        selected = bool(option.state & QStyle.StateFlag.State_Selected)
+        colour = theme.ACCENT if selected else (theme.WIRE if self.known else theme.WIRE_UNKNOWN)
+        pen = QPen(colour, self.width, Qt.PenStyle.SolidLine if self.known else Qt.PenStyle.DashLine,
+                   Qt.PenCapStyle.FlatCap)
+        painter.setPen(pen)
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.drawPath(self._path)
+        if not self.label or option.levelOfDetailFromTransform(painter.worldTransform()) < theme.TEXT_MIN_DETAIL:
+            return
+        painter.setPen(Qt.PenStyle.NoPen)
+        painter.setBrush(theme.LABEL_BACK)
+        painter.drawRoundedRect(self._label_rect, 3.0, 3.0)
+        painter.setPen(theme.ACCENT if selected else theme.TEXT_MUTED)
+        painter.setFont(font("figure"))
+        painter.drawText(self._label_rect, Qt.AlignmentFlag.AlignCenter, self.label)
+
+
+class DraftWire(QGraphicsItem):
+    """The wire being drawn from an output notch to the pointer (no hit shape, never selected)."""
+
+    def __init__(self, start: QPointF):
+        super().__init__()
+        self._start = start
+        self._path = QPainterPath()
+        self._bounds = QRectF()
+        self.setZValue(10.0)
+        self.setAcceptedMouseButtons(Qt.MouseButton.NoButton)
+        self.reach(start)
+
+    def reach(self, end: QPointF) -> None:
+        self.prepareGeometryChange()
+        self._path = curve(self._start, end)
+        self._bounds = self._path.boundingRect().adjusted(-3, -3, 3, 3)
+
+    def boundingRect(self) -> QRectF:
+        return self._bounds
+
+    def paint(self, painter, option, widget=None) -> None:
+        painter.setPen(QPen(theme.ACCENT, 2.0, Qt.PenStyle.DashLine))
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.drawPath(self._path)

@@ -1,0 +1,249 @@
+"""The editor window: the canvas in the middle, the shelf (Parts, Findings) along its bottom edge,
+Block settings in the right column (a dock area the Depth ledger will join), menus, and a status
+bar with the design's totals.
+
+``launch(files)`` is what ``layerloom [FILE]`` runs.
+"""
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from PySide6.QtCore import QSettings, Qt
+from PySide6.QtGui import QAction, QIcon, QKeySequence
+from PySide6.QtWidgets import QApplication, QDockWidget, QLabel, QMainWindow, QPushButton
+
+from layerloom.core import units
+from layerloom.core.ledger import Ledger
+from layerloom.gui.block_settings import BlockSettings
+from layerloom.gui.canvas import CanvasView
+from layerloom.gui.document import Document
+from layerloom.gui.files import FileKeeper, Prompts
+from layerloom.resources import resource
+
+ORGANISATION, APPLICATION = "Layerloom Workshop", "Layerloom"
+APP_ICON = "icons/layerloom.svg"
+STYLE_SHEET = "style.qss"
+Key = QKeySequence.StandardKey
+
+
+def house_settings() -> QSettings:
+    """Where the editor keeps its window layout and recent files between runs."""
+    return QSettings(ORGANISATION, APPLICATION)
+
+
+class MainWindow(QMainWindow):
+    """One window editing one design. ``prompts``, ``settings`` and ``scratch_dir`` (where an unsaved
+    design's autosave goes) can be given, as tests do; otherwise the user's own are used."""
+
+    def __init__(self, files: list[str] = (), *, prompts: Prompts | None = None, settings: QSettings | None = None,
+                 scratch_dir: str | Path | None = None):
+        super().__init__()
+        from layerloom.gui.shelf import Shelf  # after QApplication exists (tiles paint glyphs)
+
+        self.setObjectName("main_window")
+        self.setWindowIcon(QIcon(str(resource(APP_ICON))))
+        self.setStyleSheet(resource(STYLE_SHEET).read_text(encoding="utf-8"))
+        self.settings = settings if settings is not None else house_settings()
+        self.document = Document(parent=self)
+        self.prompts = prompts if prompts is not None else Prompts(self)
+        self.files = FileKeeper(self.document, self.prompts, self.settings, scratch_dir, parent=self)
+
+        self.canvas = CanvasView(self.document)
+        self.setCentralWidget(self.canvas)
+        self.shelf = Shelf(self.document)
+        self.block_settings = BlockSettings(self.document)
+        self.shelf_dock = self._dock("Shelf", "shelf_dock", self.shelf, Qt.DockWidgetArea.BottomDockWidgetArea)
+        self.shelf_dock.setTitleBarWidget(QLabel())  # the tabs say what it is
+        self.settings_dock = self._dock("Block settings", "block_settings_dock", self.block_settings,
+                                        Qt.DockWidgetArea.RightDockWidgetArea)
+        self.setCorner(Qt.Corner.BottomRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
+        self.setDockNestingEnabled(True)
+        self.shelf.findings.block_chosen.connect(self.canvas.center_on)
+        self.canvas.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
+
+        self._build_status_bar()
+        self._build_menus()
+        self.document.changed.connect(self._on_change)
+        self.document.replaced.connect(self._refresh_totals)
+        self.document.path_changed.connect(self._refresh_title)
+        self.document.undo_stack.cleanChanged.connect(lambda clean: self.setWindowModified(not clean))
+        self.files.said.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        self.files.recent_changed.connect(self._fill_recent)
+
+        self.resize(1400, 860)
+        self.restoreGeometry(self.settings.value("window/geometry", b""))
+        self.restoreState(self.settings.value("window/state", b""))
+        self.files.start(list(files))
+        self._refresh_title()
+        self._refresh_totals()
+        self.canvas.fit_all()
+
+    def _dock(self, title: str, name: str, widget, area) -> QDockWidget:
+        dock = QDockWidget(title, self)
+        dock.setObjectName(name)
+        dock.setWidget(widget)
+        dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
+                         | QDockWidget.DockWidgetFeature.DockWidgetClosable)
+        self.addDockWidget(area, dock)
+        return dock
+
+    # ----- menus
+    def _action(self, menu, text: str, slot, shortcut=None, name: str | None = None) -> QAction:
+        action = QAction(text, self)
+        if shortcut is not None:
+            action.setShortcut(QKeySequence(shortcut))
+        action.triggered.connect(slot)
+        action.setObjectName(name or text.lower().replace("…", "").replace(" ", "_"))
+        menu.addAction(action)
+        return action
+
+    def _build_menus(self) -> None:
+        bar, c, f = self.menuBar(), self.canvas, self.files
+        file_menu = bar.addMenu("&File")
+        self._action(file_menu, "New", f.new, Key.New)
+        self._action(file_menu, "Open…", f.open, Key.Open)
+        self.recent_menu = file_menu.addMenu("Open recent")
+        self._fill_recent()
+        file_menu.addSeparator()
+        self._action(file_menu, "Save", f.save, Key.Save)
+        self._action(file_menu, "Save as…", f.save_as, Key.SaveAs)
+        export = file_menu.addMenu("Export")
+        self._action(export, "PyTorch module…", self.export_module, name="export_module")
+        self._action(export, "Canvas as PNG…", lambda: self.export_picture("png"), name="export_png")
+        self._action(export, "Canvas as SVG…", lambda: self.export_picture("svg"), name="export_svg")
+        file_menu.addSeparator()
+        self._action(file_menu, "Quit", self.close, Key.Quit)
+
+        edit = bar.addMenu("&Edit")
+        stack = self.document.undo_stack
+        for action, key in ((stack.createUndoAction(self, "Undo"), Key.Undo),
+                            (stack.createRedoAction(self, "Redo"), Key.Redo)):
+            action.setShortcut(QKeySequence(key))
+            edit.addAction(action)
+        edit.addSeparator()
+        self._action(edit, "Copy", c.copy, Key.Copy)
+        self._action(edit, "Paste", c.paste, Key.Paste)
+        self._action(edit, "Duplicate", c.duplicate, "Ctrl+D")
+        self._action(edit, "Delete", c.delete_selection, Key.Delete)
+        self._action(edit, "Select all", c.select_all, Key.SelectAll)
+        self._action(edit, "Rename block", c.rename_selected, "F2", name="rename")
+        edit.addSeparator()
+        self._action(edit, "Quick add…", c.quick_add, "Ctrl+K", name="quick_add")
+
+        view = bar.addMenu("&View")
+        self._action(view, "Zoom in", c.zoom_in, Key.ZoomIn)
+        self._action(view, "Zoom out", c.zoom_out, Key.ZoomOut)
+        self._action(view, "Fit to view", c.fit_all, "Ctrl+0")
+        self._action(view, "Tidy", c.tidy, "Ctrl+L")
+        view.addSeparator()
+        view.addAction(self.shelf_dock.toggleViewAction())
+        view.addAction(self.settings_dock.toggleViewAction())
+        self.shelf_dock.toggleViewAction().setText("Shelf (Parts, Findings)")
+
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        recent = self.files.recent_files()
+        for path in recent:
+            self.recent_menu.addAction(Path(path).name, lambda p=path: self._open_recent(p)).setToolTip(path)
+        self.recent_menu.setEnabled(bool(recent))
+
+    def _open_recent(self, path: str) -> None:
+        if not Path(path).exists():
+            self.prompts.error("Cannot open design", f"{path} no longer exists; it is taken off the recent list.")
+            self.files.forget(path)
+            return
+        self.files.open_path(path)
+
+    # ----- export
+    def export_module(self) -> None:
+        """Write the design as a PyTorch module; a design with errors is refused with its findings."""
+        from layerloom.export import ExportRefused, module_source
+
+        try:
+            source = module_source(self.document.design)
+        except ExportRefused as e:
+            self.shelf_dock.show()
+            self.shelf.show_findings()
+            self.prompts.error("Not exported", f"{e}\n\nThe Findings tab lists them with their mends.")
+            return
+        except ValueError as e:
+            self.prompts.error("Not exported", str(e))
+            return
+        stem = self.document.path.stem if self.document.path else self.document.design.name
+        path = self.prompts.save_path("Export PyTorch module", f"{stem.replace('-', '_')}.py", "Python source (*.py)")
+        if path:
+            self._write_out(lambda: Path(path).write_text(source, encoding="utf-8"), path)
+
+    def export_picture(self, fmt: str) -> None:
+        stem = self.document.path.stem if self.document.path else self.document.design.name
+        path = self.prompts.save_path(f"Export canvas as {fmt.upper()}", f"{stem}.{fmt}",
+                                      f"{fmt.upper()} picture (*.{fmt})")
+        if path:
+            save = self.canvas.save_png if fmt == "png" else self.canvas.save_svg
+            self._write_out(lambda: save(path), path)
+
+    def _write_out(self, write, path: str) -> None:
+        """Run ``write`` (False or OSError means it failed) and say how it went."""
+        try:
+            written = write() is not False
+            why = "the file could not be written"
+        except OSError as e:
+            written, why = False, e.strerror or str(e)
+        if not written:
+            self.prompts.error("Not exported", f"{path}: {why}")
+            return
+        self.statusBar().showMessage(f"Exported {Path(path).name}", 6000)
+
+    # ----- title and status
+    def _build_status_bar(self) -> None:
+        bar = self.statusBar()
+        self.totals_label = QLabel()
+        self.totals_label.setObjectName("totals")
+        self.findings_button = QPushButton()
+        self.findings_button.setObjectName("findings_count")
+        self.findings_button.setFlat(True)
+        self.findings_button.setCursor(Qt.CursorShape.PointingHandCursor)
+        self.findings_button.clicked.connect(lambda: (self.shelf_dock.show(), self.shelf.show_findings()))
+        bar.addPermanentWidget(self.totals_label)
+        bar.addPermanentWidget(self.findings_button)
+
+    def _on_change(self, change) -> None:
+        if change.reinfers:
+            self._refresh_totals()
+
+    def _refresh_totals(self) -> None:
+        design = self.document.design
+        t = Ledger(design.analysis()).totals
+        self.totals_label.setText(f"Weights {units.count(t.weights)}   ·   MACs {units.count(t.macs)}   ·   "
+                                  f"Peak activations {units.size(t.peak_memory)}   "
+                                  f"(batch {design.batch}, {design.dtype})")
+        errors, warnings = self.shelf.findings.counts()
+        self.findings_button.setText(f"{errors} error{'s' if errors != 1 else ''}, "
+                                     f"{warnings} warning{'s' if warnings != 1 else ''}")
+        self.findings_button.setProperty("severity", "error" if errors else ("warning" if warnings else "clear"))
+        self.findings_button.style().polish(self.findings_button)
+
+    def _refresh_title(self) -> None:
+        self.setWindowTitle(f"{self.files.display_name}[*] — Layerloom")
+        self.setWindowModified(self.document.modified)
+
+    # ----- closing
+    def closeEvent(self, event) -> None:
+        if not self.files.close():
+            event.ignore()
+            return
+        self.settings.setValue("window/geometry", self.saveGeometry())
+        self.settings.setValue("window/state", self.saveState())
+        event.accept()
+
+
+def launch(files: list[str]) -> int:
+    """Run the editor on ``files[0]`` (or a new design) until its window closes; the exit code."""
+    app = QApplication.instance() or QApplication(sys.argv[:1])
+    app.setOrganizationName(ORGANISATION)
+    app.setApplicationName(APPLICATION)
+    app.setWindowIcon(QIcon(str(resource(APP_ICON))))
+    window = MainWindow(files)
+    window.show()
+    return app.exec()

@@ -1,0 +1,188 @@
+"""Files and safety in the editor window: save and reopen, autosave and recovery after a crash, a
+broken file, closing with unsaved changes, recent files, export, window layout kept between runs.
+
+Questions to the user go through a scripted stand-in for :class:`layerloom.gui.files.Prompts`.
+"""
+from pathlib import Path
+
+from PySide6.QtCore import QSettings, Qt
+
+from layerloom.core import edits, fileformat
+from layerloom.gui.main_window import MainWindow
+
+SAMPLES = Path(__file__).resolve().parents[2] / "samples"
+
+
+class ScriptedPrompts:
+    """Answers the editor's questions from a script and records what was asked."""
+
+    def __init__(self, save_answer="cancel", recover=True, open_choice=None, save_choice=None):
+        self.save_answer, self.recover = save_answer, recover
+        self.open_choice, self.save_choice = open_choice, save_choice
+        self.asked: list[tuple[str, str]] = []
+
+    def ask_save_changes(self, name):
+        self.asked.append(("save changes", name))
+        return self.save_answer
+
+    def ask_recover(self, path):
+        self.asked.append(("recover", str(path)))
+        return self.recover
+
+    def open_path(self, folder):
+        return str(self.open_choice) if self.open_choice else None
+
+    def save_path(self, caption, suggested, file_filter):
+        self.asked.append(("save path", caption))
+        return str(self.save_choice) if self.save_choice else None
+
+    def error(self, title, text):
+        self.asked.append((title, text))
+
+
+def open_window(qtbot, tmp_path, files=(), prompts=None):
+    prompts = prompts or ScriptedPrompts()
+    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat)
+    window = MainWindow(list(map(str, files)), prompts=prompts, settings=settings, scratch_dir=tmp_path / "scratch")
+    qtbot.addWidget(window)
+    window.show()
+    qtbot.waitExposed(window)
+    return window, prompts
+
+
+def add_conv(window):
+    doc = window.document
+    src = doc.design.of_kind("Input")[0].id
+    edit, bid = edits.add_block(doc.design, "Conv2d", {"out_channels": 24}, inputs=[(src, 0)], position=(240, 0))
+    doc.apply(edit)
+    return bid
+
+
+def press(qtbot, window, key_sequence_name):
+    """Trigger a menu command by its shortcut, as a user would."""
+    action = window.findChild(type(window.menuBar().actions()[0]), key_sequence_name)
+    window.activateWindow()
+    qtbot.keySequence(window.canvas, action.shortcut())
+    return action
+
+
+def test_save_then_reopen_gives_the_same_design(qtbot, tmp_path):
+    window, prompts = open_window(qtbot, tmp_path)
+    add_conv(window)
+    assert window.isWindowModified() and "[*]" in window.windowTitle()
+    prompts.save_choice = tmp_path / "doorstep"
+    press(qtbot, window, "save")
+    target = tmp_path / "doorstep.loom"
+    assert target.exists() and not window.isWindowModified()
+    assert "doorstep.loom" in window.windowTitle()
+    again, _ = open_window(qtbot, tmp_path, [target])
+    assert fileformat.dumps(again.document.design) == fileformat.dumps(window.document.design)
+    assert str(target.resolve()) in again.files.recent_files()
+    assert [a.text() for a in again.recent_menu.actions()][0] == "doorstep.loom"
+
+
+def test_autosave_then_crash_then_recover_on_next_start(qtbot, tmp_path):
+    window, _ = open_window(qtbot, tmp_path)
+    assert window.files.autosave() is None  # nothing unsaved, nothing written
+    add_conv(window)
+    copy = window.files.autosave()  # the timer's slot
+    assert copy == tmp_path / "scratch" / "unsaved.loom.autosave" and copy.exists()
+    window.files.timer.stop()  # the process "dies" here: no close, the copy stays
+    restarted, prompts = open_window(qtbot, tmp_path, prompts=ScriptedPrompts(recover=True))
+    assert prompts.asked[0][0] == "recover"
+    assert fileformat.dumps(restarted.document.design) == fileformat.dumps(window.document.design)
+    assert restarted.isWindowModified()  # recovered work is not saved yet
+    restarted.files.write(tmp_path / "kept.loom")
+    assert not copy.exists()
+
+
+def test_autosave_of_a_saved_file_sits_beside_it_and_declining_removes_it(qtbot, tmp_path):
+    target = tmp_path / "bench.loom"
+    fileformat.save(fileformat.load(SAMPLES / "fastener_sorter.loom"), target)
+    window, _ = open_window(qtbot, tmp_path, [target])
+    add_conv(window)
+    copy = window.files.autosave()
+    assert copy == target.resolve().with_name("bench.loom.autosave")
+    window.files.timer.stop()
+    restarted, prompts = open_window(qtbot, tmp_path, [target], ScriptedPrompts(recover=False))
+    assert prompts.asked[0][0] == "recover"
+    assert not copy.exists()
+    assert fileformat.dumps(restarted.document.design) == target.read_text(encoding="utf-8")
+
+
+def test_broken_file_is_reported_and_the_open_design_is_kept(qtbot, tmp_path):
+    broken = tmp_path / "broken.loom"
+    broken.write_text('{"format": "layerloom-design", "version": 1, "blocks": [', encoding="utf-8")
+    before_bytes = broken.read_bytes()
+    window, prompts = open_window(qtbot, tmp_path, [SAMPLES / "leaf_blight_grader.loom"])
+    kept = fileformat.dumps(window.document.design)
+    prompts.open_choice = broken
+    press(qtbot, window, "open")
+    title, text = prompts.asked[-1]
+    assert title == "Cannot open design" and "broken.loom" in text and "not valid JSON" in text
+    assert fileformat.dumps(window.document.design) == kept
+    assert window.document.path.name == "leaf_blight_grader.loom"
+    assert broken.read_bytes() == before_bytes
+
+
+def test_starting_on_a_broken_file_says_why_and_starts_a_new_design(qtbot, tmp_path):
+    broken = tmp_path / "half.loom"
+    broken.write_text('{"format": "something-else", "version": 1}', encoding="utf-8")
+    window, prompts = open_window(qtbot, tmp_path, [broken])
+    assert prompts.asked[0][0] == "Cannot open design" and "not a Layerloom design" in prompts.asked[0][1]
+    assert [b.kind for b in window.document.design.blocks.values()] == ["Input"]
+    assert window.document.path is None
+
+
+def test_closing_with_unsaved_changes_asks(qtbot, tmp_path):
+    window, prompts = open_window(qtbot, tmp_path)
+    add_conv(window)
+    window.files.autosave()
+    prompts.save_answer = "cancel"
+    assert not window.close()
+    assert window.isVisible() and prompts.asked[-1][0] == "save changes"
+    prompts.save_answer = "save"
+    prompts.save_choice = tmp_path / "closing.loom"
+    assert window.close()
+    assert fileformat.load(tmp_path / "closing.loom").blocks.keys() == window.document.design.blocks.keys()
+    assert not (tmp_path / "scratch" / "unsaved.loom.autosave").exists()
+
+
+def test_discard_on_close_removes_the_autosave_and_layout_is_kept(qtbot, tmp_path):
+    window, prompts = open_window(qtbot, tmp_path)
+    window.resize(1000, 640)
+    window.settings_dock.hide()
+    add_conv(window)
+    copy = window.files.autosave()
+    prompts.save_answer = "discard"
+    assert window.close() and not copy.exists()
+    again, _ = open_window(qtbot, tmp_path)
+    assert (again.width(), again.height()) == (1000, 640)
+    assert not again.settings_dock.isVisible()
+
+
+def test_status_bar_totals_follow_the_design(qtbot, tmp_path):
+    window, _ = open_window(qtbot, tmp_path, [SAMPLES / "shelf_gap_counter_clash.loom"])
+    assert window.findings_button.text() == "1 error, 0 warnings"
+    before = window.totals_label.text()
+    assert "Weights" in before and "MACs" in before and "iB" in before
+    bid = add_conv(window)
+    assert window.totals_label.text() != before
+    # 24 filters of 3×3×3 + 24 biases = 672 weights added (PyTorch: sum(p.numel()) of nn.Conv2d(3, 24, 3))
+    assert window.document.design.analysis().result(bid).cost.weights == 672
+    qtbot.mouseClick(window.findings_button, Qt.MouseButton.LeftButton)
+    assert window.shelf.currentWidget() is window.shelf.findings
+
+
+def test_export_refuses_a_design_with_errors_and_writes_a_clean_one(qtbot, tmp_path):
+    window, prompts = open_window(qtbot, tmp_path, [SAMPLES / "shelf_gap_counter_clash.loom"])
+    window.findChild(type(window.menuBar().actions()[0]), "export_module").trigger()
+    title, text = prompts.asked[-1]
+    assert title == "Not exported" and "join.channels" in text
+    assert window.shelf.currentWidget() is window.shelf.findings
+    window.files.open_path(SAMPLES / "leaf_blight_grader.loom")
+    prompts.save_choice = tmp_path / "grader.py"
+    window.findChild(type(window.menuBar().actions()[0]), "export_module").trigger()
+    source = (tmp_path / "grader.py").read_text(encoding="utf-8")
+    compile(source, "grader.py", "exec")
+    assert "nn.Module" in source
