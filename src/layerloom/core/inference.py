@@ -116,20 +116,20 @@ class GraphInference:
                 indeg[d] -= 1
                 if indeg[d] == 0:
                     queue.append(d)
-        insertion = {b: i for i, b in enumerate(blocks)}
-        queue.sort(key=lambda b: (level[b], insertion[b]))
+        top = max(level.values(), default=-1) + 1
+        columns: list[list[str]] = [[] for _ in range(top + 1)]  # the last holds blocks on or after a loop
+        for b in blocks:  # insertion order within each level
+            columns[level[b] if indeg[b] == 0 else top].append(b)
         found: list[Finding] = []
-        if len(queue) < len(blocks):
-            stuck = [b for b in blocks if indeg[b] > 0]
-            found += self._cycles(stuck)
-            top = level[queue[-1]] + 1 if queue else 0
-            for b in stuck:
+        if columns[top]:
+            found += self._cycles(columns[top])
+            for b in columns[top]:
                 level[b] = top
                 self.results[b] = None
-            queue += stuck
-        self.order = queue
+        order = [b for column in columns for b in column]
+        self.order = order
         self.level = level
-        self.position = {b: i for i, b in enumerate(queue)}
+        self.position = {b: i for i, b in enumerate(order)}
         for gone in set(self.results) - blocks.keys():
             del self.results[gone]
             self.findings.pop(gone, None)

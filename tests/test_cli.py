@@ -1,0 +1,90 @@
+"""The command line on the samples, as a user runs it (in a subprocess, through ``python -m``)."""
+from __future__ import annotations
+
+import csv
+import io
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+SAMPLES = sorted((ROOT / "samples").glob("*.loom"))
+
+
+def run(*args: str) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "layerloom", *args], capture_output=True, text=True,
+                          cwd=ROOT, env={"PYTHONPATH": str(ROOT / "src"), "PATH": "/usr/bin:/bin"})
+
+
+def test_samples_exist_and_one_has_a_deliberate_clash():
+    assert len(SAMPLES) >= 3
+    codes = {p.name: run("check", str(p)).returncode for p in SAMPLES}
+    assert sorted(codes.values()) == [0] * (len(SAMPLES) - 1) + [1], codes
+
+
+def test_check_lists_the_clash_with_its_mend_and_exits_1():
+    r = run("check", "samples/shelf_gap_counter_clash.loom")
+    assert r.returncode == 1
+    assert "join.channels" in r.stdout and "64 channels to 128 channels" in r.stdout
+    assert "mend: Insert a 1×1 projection to 128 channels and stride 2" in r.stdout
+
+
+def test_check_json():
+    r = run("check", "samples/shelf_gap_counter_clash.loom", "--json")
+    data = json.loads(r.stdout)
+    assert data["errors"] == 1
+    (f,) = data["findings"]
+    assert f["code"] == "join.channels" and f["block_name"] == "add_2" and f["mends"]
+
+
+def test_ledger_table_totals_match_json_and_csv():
+    r = run("ledger", "samples/fastener_sorter.loom")
+    assert r.returncode == 0, r.stderr
+    data = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json").stdout)
+    total = data["totals"]
+    assert f"{total['weights']:,}" in r.stdout and f"{total['macs']:,}" in r.stdout
+    assert sum(b["weights"] for b in data["blocks"]) == total["weights"]
+    rows = list(csv.DictReader(io.StringIO(run("ledger", "samples/fastener_sorter.loom", "--csv").stdout)))
+    assert [row["block"] for row in rows] == [b["name"] for b in data["blocks"]]
+    assert sum(int(row["MACs"]) for row in rows) == total["macs"]
+
+
+def test_ledger_overrides_input_dtype_and_batch():
+    base = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json").stdout)
+    big = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json", "--input", "3x256x256",
+                         "--dtype", "fp16", "--batch", "4").stdout)
+    assert big["blocks"][0]["shape"] == [3, 256, 256]
+    assert big["totals"]["weights"] == base["totals"]["weights"]  # weights do not depend on the input size
+    # every map doubles in height and width (3×3 / 2 with padding 1 halves even sizes exactly), so
+    # convolution MACs scale with the area (×4) and the batch (×4); the Linear head only with the batch
+    # (common practice: MACs = output elements × in-channels/groups × kernel area)
+    head = sum(b["macs"] for b in base["blocks"] if b["kind"] == "Linear")
+    assert big["totals"]["macs"] == 16 * (base["totals"]["macs"] - head) + 4 * head
+    # fp16 halves the bytes per element; 4 samples and 4× the area multiply them by 16
+    assert big["blocks"][0]["out_memory_bytes"] == base["blocks"][0]["out_memory_bytes"] * 16 // 2
+
+
+@pytest.mark.parametrize("args, words", [
+    (("ledger", "samples/none.loom"), ["samples/none.loom", "cannot read"]),
+    (("ledger", "samples/fastener_sorter.loom", "--input", "3x0x4"), ["--input", "below 1"]),
+    (("ledger", "samples/fastener_sorter.loom", "--input", "tall"), ["--input", "C×H×W"]),
+    (("ledger", "samples/fastener_sorter.loom", "--batch", "0"), ["--batch", "at least 1"]),
+])
+def test_bad_input_gets_a_clear_message_and_exit_2(args, words):
+    r = run(*args)
+    assert r.returncode == 2
+    for w in words:
+        assert w in r.stderr
+
+
+def test_broken_file_names_the_place(tmp_path):
+    data = json.loads((ROOT / "samples/fastener_sorter.loom").read_text())
+    data["blocks"][1]["settings"]["stride"] = 0
+    bad = tmp_path / "bad.loom"
+    bad.write_text(json.dumps(data))
+    r = run("check", str(bad))
+    assert r.returncode == 2
+    assert "blocks[1] (stem)" in r.stderr and "Stride 0 is below the minimum 1" in r.stderr
