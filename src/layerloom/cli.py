@@ -16,8 +16,10 @@ from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
+from layerloom.core.baseline import compare, snapshot
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
+from layerloom.core.targets import CAUTION, PRESETS, preset
 
 COMMANDS = ("check", "ledger", "export")
 
@@ -39,6 +41,11 @@ def _open(args) -> Design:
         design.set(inputs[0].id, channels=c, height=h, width=w)
     if getattr(args, "dtype", None):
         design.set_field("dtype", args.dtype)
+    if getattr(args, "target", None):
+        try:
+            design.set_field("target", preset(args.target))
+        except KeyError as e:
+            raise UsageError(f"--target: {e.args[0]}") from None
     if getattr(args, "batch", None) is not None:
         if args.batch < 1:
             raise UsageError(f"--batch must be at least 1, not {args.batch}")
@@ -72,6 +79,7 @@ def _check(args) -> int:
 
 
 LEDGER_COLUMNS = ("step", "block", "kind", "depth", "out shape", "weights", "MACs", "out memory", "receptive field")
+TARGET_COLUMNS = ("est. time", "bound")
 
 
 def _rf(rf) -> str:
@@ -84,6 +92,7 @@ def _rf(rf) -> str:
 def _ledger(args) -> int:
     design = _open(args)
     ledger = Ledger(design.analysis())
+    baseline = _baseline(args, design)
     rows, t = ledger.rows, ledger.totals
     peak_name = design.blocks[t.peak_block].name if t.peak_block else "—"
     if args.json:
@@ -93,27 +102,42 @@ def _ledger(args) -> int:
                         "shape": list(r.shape) if r.shape else None, "weights": r.weights, "buffers": r.buffers,
                         "macs": r.macs, "other_ops": r.other, "out_memory_bytes": r.memory,
                         "receptive_field": list(r.rf) if r.rf else None, "jump": list(r.jump) if r.jump else None,
-                        "intensity_macs_per_byte": round(r.intensity, 3)} for r in rows],
+                        "bytes_moved": r.moved, "intensity_macs_per_byte": round(r.intensity, 3),
+                        "latency_s": r.latency, "bound": r.bound or None} for r in rows],
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
-                       "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name}},
+                       "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
+                       "latency_s": t.latency},
+            "target": ledger.target.to_data() if ledger.target else None,
+            "budget": design.budget,
+            "baseline": None if baseline is None else {
+                "name": baseline["name"],
+                "totals": [{"metric": d.metric, "current": d.current, "baseline": d.baseline, "delta": d.delta,
+                            "percent": d.percent} for d in compare(ledger, baseline)]}},
             indent=1, ensure_ascii=False))
         return 0
     if args.csv:
         out = csv.writer(sys.stdout, lineterminator="\n")
         out.writerow(("step", "block", "kind", "depth", "out shape", "weights", "buffers", "MACs", "other ops",
-                      "out memory bytes", "receptive field"))
+                      "out memory bytes", "receptive field", "bytes moved", "MACs per byte", "est. seconds", "bound"))
         for i, r in enumerate(rows, 1):
             out.writerow((i, r.name, r.kind, r.depth, str(r.shape or ""), r.weights, r.buffers, r.macs, r.other,
-                          r.memory, _rf(r.rf)))
+                          r.memory, _rf(r.rf), r.moved, f"{r.intensity:.3f}",
+                          "" if r.latency is None else f"{r.latency:.3e}", r.bound))
         return 0
-    table = [LEDGER_COLUMNS] + [(str(i), r.name, r.kind, str(r.depth), str(r.shape or "?"),
-                                 units.count(r.weights) if r.weights else "·", units.count(r.macs) if r.macs else "·",
-                                 units.size(r.memory) if r.memory else "·", _rf(r.rf))
-                                for i, r in enumerate(rows, 1)]
-    widths = [max(len(row[c]) for row in table) for c in range(len(LEDGER_COLUMNS))]
-    right = {0, 3, 5, 6, 7, 8}
+    timed = ledger.latency is not None
+    table = [LEDGER_COLUMNS + (TARGET_COLUMNS if timed else ())]
+    for i, r in enumerate(rows, 1):
+        cells = (str(i), r.name, r.kind, str(r.depth), str(r.shape or "?"),
+                 units.count(r.weights) if r.weights else "·", units.count(r.macs) if r.macs else "·",
+                 units.size(r.memory) if r.memory else "·", _rf(r.rf))
+        if timed:
+            cells += (f"{r.latency * 1e6:.1f} µs" if r.latency else "·", r.bound)
+        table.append(cells)
+    widths = [max(len(row[c]) for row in table) for c in range(len(table[0]))]
+    right = {0, 3, 5, 6, 7, 8, 9}
     for n, row in enumerate(table):
-        print("  ".join(cell.rjust(w) if c in right else cell.ljust(w) for c, (cell, w) in enumerate(zip(row, widths))))
+        print("  ".join(cell.rjust(w) if c in right else cell.ljust(w)
+                        for c, (cell, w) in enumerate(zip(row, widths))).rstrip())
         if n == 0:
             print("  ".join("─" * w for w in widths))
     print()
@@ -121,6 +145,18 @@ def _ledger(args) -> int:
           f" · buffers {units.count(t.buffers)} · MACs {units.count(t.macs)} ({t.macs:,})")
     print(f"peak live activations {units.size(t.peak_memory)} at {peak_name} (batch {ledger.batch}, {ledger.dtype};"
           " first-order: execution in depth order, no in-place reuse)")
+    if timed:
+        print(f"estimated latency {t.latency * 1e3:.3g} ms on {ledger.target.name} ({ledger.target.assumptions}). "
+              f"{CAUTION}")
+    for f in design.analysis().budget_findings():
+        print(f"over budget: {f.message}")
+    if baseline is not None:
+        print(f"\nagainst baseline {baseline['name']!r}:")
+        for d in compare(ledger, baseline):
+            pct = "" if d.percent is None else f" ({d.percent:+.1f} %)"
+            fmt = (lambda v: f"{v * 1e3:.3g} ms") if d.metric == "latency" else (
+                units.size if d.metric == "peak_memory" else units.count)
+            print(f"  {d.label:<24} {fmt(d.current):>10}  was {fmt(d.baseline):>10}  change {fmt(d.delta):>10}{pct}")
     errors = [f for f in design.findings() if f.severity == ERROR]
     if errors:
         print(f"{len(errors)} error finding(s): blocks after them are not counted; see `layerloom check {args.file}`")
@@ -156,6 +192,16 @@ def _export(args) -> int:
     return 0 if report.ok else 1
 
 
+def _baseline(args, design) -> dict | None:
+    """The baseline to compare with: ``--baseline FILE`` (its current ledger), else the design's pinned one."""
+    if not getattr(args, "baseline", None):
+        return design.baseline
+    other = load(args.baseline)
+    if design.target is not None and other.target is None:
+        other.set_field("target", design.target)
+    return snapshot(Ledger(other.analysis()), other.name)
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="layerloom", description="Sketch convolutional networks, check their shapes, "
                                 "count what they cost. With only a FILE (or nothing), opens the editor.")
@@ -173,6 +219,10 @@ def _parser() -> argparse.ArgumentParser:
     led.add_argument("--input", metavar="CxHxW", help="override the input shape, e.g. 3x224x224")
     led.add_argument("--dtype", choices=tuple(DTYPES), help="element type for memory figures")
     led.add_argument("--batch", type=int, help="batch size N (default: the design's)")
+    led.add_argument("--target", metavar="NAME", help="estimate latency on a target preset: "
+                     + "; ".join(f"'{t.name}'" for t in PRESETS))
+    led.add_argument("--baseline", metavar="OTHER.loom", help="compare totals with another design "
+                     "(default: the baseline pinned in FILE, if any)")
     led.set_defaults(run=_ledger)
     ex = sub.add_parser("export", help="write the design as a PyTorch nn.Module; refuses a design with errors")
     ex.add_argument("file", help="a .loom design")

@@ -104,6 +104,9 @@ class Design(Graph):
             raise ValueError(f"element type {dtype!r} is not one of {', '.join(DTYPES)}")
         self.name, self.batch, self.dtype, self.notes = name, batch, dtype, notes
         self.motifs: dict[str, Motif] = {}
+        self.budget: dict = {}  # limits, see layerloom.core.budget
+        self.target = None  # a layerloom.core.targets.Target for latency estimates, or None
+        self.baseline: dict | None = None  # a pinned ledger, see layerloom.core.baseline
         self._listeners: list[Callable[[Change], None]] = []
         self._pending: Change | None = None
         self._analysis = None
@@ -146,7 +149,17 @@ class Design(Graph):
         return self.add("Motif", *inputs, name=name or self.fresh_name(motif), motif=motif, repeat=repeat, **params)
 
     def set_field(self, name: str, value: Any) -> None:
-        """Change a design-wide field (``batch``, ``dtype``, ``name``, ``notes``) as one edit."""
+        """Change a design-wide field (``batch``, ``dtype``, ``name``, ``notes``, ``budget``,
+        ``target``, ``baseline``) as one edit."""
+        if name == "budget":
+            from layerloom.core.budget import check_budget
+
+            try:
+                value = check_budget(value)
+            except ValueError as e:
+                raise edits.EditError(str(e)) from None
+        if name not in ("name", "batch", "dtype", "notes", "budget", "target", "baseline"):
+            raise edits.EditError(f"a design has no field {name!r}")
         if name == "dtype" and value not in DTYPES:
             raise edits.EditError(f"element type {value!r} is not one of {', '.join(DTYPES)}")
         if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or value < 1):

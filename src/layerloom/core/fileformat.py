@@ -16,6 +16,7 @@ from layerloom.core import edits
 from layerloom.core.design import Design
 from layerloom.core.graph import Wire
 from layerloom.core.settings import SettingError
+from layerloom.core.targets import Target
 from layerloom.resources import resource
 
 FORMAT, VERSION = "layerloom-design", 1
@@ -95,8 +96,19 @@ def _place(data: Any, path: list) -> str:
 
 
 def _build(data: dict) -> Design:
-    design = Design(data.get("name", "untitled"), data.get("batch", 1), data.get("dtype", "fp32"),
+    # JSON Schema counts 2.0 as an integer; whole numbers are stored as int from here on
+    design = Design(data.get("name", "untitled"), int(data.get("batch", 1)), data.get("dtype", "fp32"),
                     data.get("notes", ""))
+    design.budget = dict(data.get("budget", {}))
+    if "target" in data:
+        try:
+            design.target = Target.from_data(data["target"])
+        except ValueError as e:
+            raise LoomFileError(f"target: {e}") from None
+    design.baseline = data.get("baseline")
+    lengths = {k: len(v) for k, v in (design.baseline or {}).get("blocks", {}).items()}
+    if len(set(lengths.values())) > 1:
+        raise LoomFileError(f"baseline.blocks: the lists differ in length ({lengths})")
     motifs = data.get("motifs", [])
     ops: list = []
     seen = set()
@@ -104,7 +116,7 @@ def _build(data: dict) -> Design:
         if m["name"] in seen:
             raise LoomFileError(f"motifs[{i}]: motif name {m['name']!r} is used twice")
         seen.add(m["name"])
-        ops.append(edits.AddMotif(m["name"], dict(m.get("params", {}))))
+        ops.append(edits.AddMotif(m["name"], {k: int(v) for k, v in m.get("params", {}).items()}))
     design.apply(edits.Edit("Load", tuple(ops)))
     with design.bulk():
         for i, m in enumerate(motifs):
@@ -133,7 +145,7 @@ def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> 
         for end, bid in (("from", src), ("to", dst)):
             if bid not in ids:
                 raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {bid!r}")
-        wire = Wire(src, sp, dst, dp)
+        wire = Wire(src, int(sp), dst, int(dp))
         if wire in seen:
             raise LoomFileError(f"{where}wires[{i}]: the same wire appears twice")
         seen.add(wire)
@@ -154,6 +166,12 @@ def to_data(design: Design) -> dict:
 
     data: dict[str, Any] = {"format": FORMAT, "version": VERSION, "name": design.name, "batch": design.batch,
                             "dtype": design.dtype, "notes": design.notes}
+    if design.budget:
+        data["budget"] = design.budget
+    if design.target is not None:
+        data["target"] = design.target.to_data()
+    if design.baseline is not None:
+        data["baseline"] = design.baseline
     if design.motifs:
         data["motifs"] = [{"name": m.name, "params": m.params, "blocks": blocks(m), "wires": wires(m)}
                           for m in design.motifs.values()]

@@ -37,6 +37,12 @@ CODES: dict[str, str] = {
     "motif.recursive": "a motif contains itself",
     "motif.repeat_shape": "a repeated motif changes the shape, so its copies cannot be stacked",
     "motif.ports": "an instance's ports do not match its motif",
+    "motif.param": "a motif parameter is unknown or its value does not fit the setting it feeds",
+    "budget.weights": "the weights pass the design's budget",
+    "budget.macs": "the MACs pass the design's budget",
+    "budget.memory": "the peak live activation memory passes the design's budget",
+    "budget.latency_ms": "the estimated latency on the target passes the design's budget",
+    "budget.no_target": "a latency budget is set but no target to estimate latency on",
 }
 
 

@@ -334,6 +334,7 @@ class Analysis:
         self._topology = True
         self._stale = True
         self._profile: list[int] | None = None
+        self._budget: tuple = (None, [])
         self.revision = 0  # counts refreshes that may have changed results
         design.subscribe(self._on_change)
 
@@ -398,15 +399,30 @@ class Analysis:
 
     def findings_of(self, block_id: str) -> list[Finding]:
         top = self.refresh().top
-        return top.findings.get(block_id, []) + [f for f in top.graph_findings if f.block == block_id]
+        return (top.findings.get(block_id, []) + [f for f in top.graph_findings if f.block == block_id]
+                + [f for f in self.budget_findings() if f.block == block_id])
 
     def all_findings(self) -> list[Finding]:
-        """Every finding, errors first, then warnings, then notes (each in depth order)."""
+        """Every finding, errors first, then warnings, then notes (each in depth order), including
+        the budget findings (:mod:`layerloom.core.budget`)."""
         top = self.refresh().top
         pos = top.position
-        found = [f for fs in top.findings.values() for f in fs] + top.graph_findings
+        found = [f for fs in top.findings.values() for f in fs] + top.graph_findings + self.budget_findings()
         found.sort(key=lambda f: pos.get(f.block, -1))
         return sort_findings(found)
+
+    def budget_findings(self) -> list[Finding]:
+        """Where the design passes its budget (cached until the design or its budget changes)."""
+        d = self.design
+        if not d.budget:
+            return []
+        key = (self.revision, tuple(sorted(d.budget.items())), d.target, d.batch, d.dtype)
+        if self._budget[0] != key:
+            from layerloom.core.budget import budget_findings
+            from layerloom.core.ledger import Ledger
+
+            self._budget = (key, budget_findings(Ledger(self), d.budget))
+        return self._budget[1]
 
     def live_profile(self) -> list[int]:
         """Live activation elements per sample at each step of :attr:`order`."""

@@ -20,21 +20,27 @@ them for users):
 - **intensity** (arithmetic intensity): MACs per byte moved, where bytes moved are the block's
   weights plus its input and output activations at the element type (first order: no caches,
   no fusion).
+- **estimated latency** (with a target, see :mod:`layerloom.core.targets`): per block
+  max(MACs / peak MAC rate, bytes moved / bandwidth) + the target's per-layer overhead, for blocks
+  that compute (not Input, Output or views); a first-order roofline estimate.
 - **depth order**: topological order by longest-path level from the inputs, ties broken by the
   order blocks were added; **depth** is that level.
 """
 from __future__ import annotations
 
+from math import prod
 from typing import NamedTuple
 
 import numpy as np
 
 from layerloom.core.design import DTYPES
+from layerloom.core.kinds import KINDS
 from layerloom.core.shapes import Shape
+from layerloom.core.targets import Target
 
 
 class Row(NamedTuple):
-    """One block's line in the ledger (memory in bytes, operations for the whole batch)."""
+    """One block's line in the ledger (memory in bytes, operations for the whole batch, time in s)."""
 
     block: str
     name: str
@@ -48,7 +54,10 @@ class Row(NamedTuple):
     memory: int
     rf: tuple[float, float] | None
     jump: tuple[float, float] | None
-    intensity: float
+    moved: int  # bytes: weights + input and output activations
+    intensity: float  # MACs per byte moved
+    latency: float | None  # seconds on the target, None without one
+    bound: str  # "compute", "memory" or "" (no target, or a block that does no work)
 
 
 class Totals(NamedTuple):
@@ -59,34 +68,61 @@ class Totals(NamedTuple):
     peak_memory: int  # bytes
     peak_block: str | None  # where the peak is reached
     weight_bytes: int
+    latency: float | None  # seconds on the target, None without one
 
 
 class Ledger:
-    """Costs of a design as it is now; see the module docstring for what is counted."""
+    """Costs of a design as it is now; see the module docstring for what is counted.
 
-    def __init__(self, analysis):
+    ``target`` overrides the design's own target for latency estimates.
+    """
+
+    def __init__(self, analysis, target: Target | None = None):
         analysis.refresh()
         self.analysis = analysis
         design = analysis.design
         self.batch, self.dtype = design.batch, design.dtype
         self.bytes_per_element = DTYPES[design.dtype]
+        self.target = target if target is not None else design.target
         self.order = list(analysis.order)
         self._rows: list[Row] | None = None
         results = analysis.top.results
+        self._results = [results.get(b) for b in self.order]
         free = (0, 0, 0, 0)
-        costs = np.array([r.cost if r is not None else free for r in map(results.get, self.order)],
+        costs = np.array([r.cost if r is not None else free for r in self._results],
                          dtype=np.int64).reshape(-1, 4)
         costs[:, 2:] *= self.batch
         self.costs = costs
         self.live = np.asarray(analysis.live_profile(), dtype=np.int64) * (self.batch * self.bytes_per_element)
         peak_at = int(self.live.argmax()) if len(self.live) else None
         t = costs.sum(axis=0)
+        self.latency = self._latency() if self.target is not None else None
         self.totals = Totals(int(t[0]), int(t[1]), int(t[2]), int(t[3]),
                              int(self.live[peak_at]) if peak_at is not None else 0,
                              self.order[peak_at] if peak_at is not None else None,
-                             int(t[0]) * self.bytes_per_element)
+                             int(t[0]) * self.bytes_per_element,
+                             float(self.latency.sum()) if self.latency is not None else None)
+
+    def _latency(self) -> np.ndarray:
+        """Estimated seconds per block on the target (zeros for blocks that do no work)."""
+        t = self.target
+        work = np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
+        compute = self.costs[:, 2] / t.macs_per_second
+        memory = self.moved / t.bytes_per_second
+        return np.where(work, np.maximum(compute, memory) + t.overhead, 0.0)
+
+    def _works(self, block_id: str) -> bool:
+        kind = self.analysis.design.blocks[block_id].kind
+        return kind not in ("Input", "Output") and not KINDS[kind].view
 
     # ----- along depth (arrays in depth order)
+    @property
+    def moved(self) -> np.ndarray:
+        """Bytes each block moves: weights plus input and output activations."""
+        n = self.batch
+        elems = [(sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n if r is not None else 0 for r in self._results]
+        return (self.costs[:, 0] + np.asarray(elems, dtype=np.int64)) * self.bytes_per_element
+
     @property
     def cumulative_weights(self) -> np.ndarray:
         return np.cumsum(self.costs[:, 0])
@@ -94,6 +130,10 @@ class Ledger:
     @property
     def cumulative_macs(self) -> np.ndarray:
         return np.cumsum(self.costs[:, 2])
+
+    @property
+    def cumulative_latency(self) -> np.ndarray | None:
+        return np.cumsum(self.latency) if self.latency is not None else None
 
     @property
     def running_peak(self) -> np.ndarray:
@@ -104,21 +144,24 @@ class Ledger:
     @property
     def rows(self) -> list[Row]:
         if self._rows is None:
-            self._rows = [self._row(bid) for bid in self.order]
+            moved = self.moved
+            self._rows = [self._row(i, bid, int(moved[i])) for i, bid in enumerate(self.order)]
         return self._rows
 
-    def _row(self, bid: str) -> Row:
-        from layerloom.core.kinds import KINDS
-
+    def _row(self, i: int, bid: str, moved: int) -> Row:
         a = self.analysis
         blk = a.design.blocks[bid]
-        r = a.top.results.get(bid)
+        r = self._results[i]
         if r is None:
-            return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), None, 0, 0, 0, 0, 0, None, None, 0.0)
-        n, bpe = self.batch, self.bytes_per_element
-        out_elems = 0 if KINDS[blk.kind].view else sum(o.elements for o in r.outs)
-        in_elems = sum(x.elements for x in r.ins)
-        w, b, m, o = r.cost
-        moved = (w + n * (in_elems + sum(x.elements for x in r.outs))) * bpe
-        return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), r.outs[0] if r.outs else None, w, b, m * n, o * n,
-                   out_elems * n * bpe, r.rf, r.jump, (m * n / moved) if moved else 0.0)
+            return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), None, 0, 0, 0, 0, 0, None, None, 0, 0.0,
+                       0.0 if self.latency is not None else None, "")
+        w, b, m, o = (int(v) for v in self.costs[i])
+        out_bytes = 0 if KINDS[blk.kind].view else sum(map(prod, r.outs)) * self.batch * self.bytes_per_element
+        latency, bound = None, ""
+        if self.latency is not None:
+            latency = float(self.latency[i])
+            if latency:
+                compute = m / self.target.macs_per_second
+                bound = "compute" if compute >= moved / self.target.bytes_per_second else "memory"
+        return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), r.outs[0] if r.outs else None, w, b, m, o,
+                   out_bytes, r.rf, r.jump, moved, m / moved if moved else 0.0, latency, bound)

@@ -1,0 +1,64 @@
+"""Baselines: a frozen copy of a design's ledger, pinned to compare later versions against.
+
+A baseline is plain JSON-ready data (saved inside the ``.loom`` file): the totals and, per block
+in depth order, the name and the cumulative weights, MACs and latency and the live activation
+bytes, so the Depth ledger can overlay the old curves on the new.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+from typing import NamedTuple
+
+METRICS = (("weights", "weights"), ("macs", "MACs"), ("peak_memory", "peak live activations"),
+           ("latency", "estimated latency"))
+
+
+class Difference(NamedTuple):
+    """One total, now and in the baseline; ``percent`` is None when the baseline is 0."""
+
+    metric: str
+    label: str
+    current: float
+    baseline: float
+
+    @property
+    def delta(self) -> float:
+        return self.current - self.baseline
+
+    @property
+    def percent(self) -> float | None:
+        return 100.0 * self.delta / self.baseline if self.baseline else None
+
+
+def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
+    """Freeze ``ledger`` as a baseline called ``name`` (dated ``when``, default today)."""
+    t = ledger.totals
+    data = {
+        "name": name,
+        "pinned": (when or _dt.date.today()).isoformat(),
+        "batch": ledger.batch,
+        "dtype": ledger.dtype,
+        "totals": {"weights": t.weights, "macs": t.macs, "peak_memory": t.peak_memory},
+        "blocks": {
+            "name": [ledger.analysis.design.blocks[b].name for b in ledger.order],
+            "weights": [int(v) for v in ledger.cumulative_weights],
+            "macs": [int(v) for v in ledger.cumulative_macs],
+            "live": [int(v) for v in ledger.live],
+        },
+    }
+    if ledger.latency is not None:
+        data["totals"]["latency"] = t.latency
+        data["blocks"]["latency"] = [float(v) for v in ledger.cumulative_latency]
+        data["target"] = ledger.target.name
+    return data
+
+
+def compare(ledger, baseline: dict) -> list[Difference]:
+    """Totals of ``ledger`` beside those of ``baseline`` (latency only when both have it)."""
+    now = ledger.totals._asdict()
+    out = []
+    for key, label in METRICS:
+        if now.get(key) is None or key not in baseline["totals"]:
+            continue
+        out.append(Difference(key, label, float(now[key]), float(baseline["totals"][key])))
+    return out
