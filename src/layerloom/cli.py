@@ -7,7 +7,6 @@ be used (the message says where and why).
 from __future__ import annotations
 
 import argparse
-import csv
 import json
 import sys
 
@@ -16,6 +15,7 @@ from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
+from layerloom.core.ledger_csv import ledger_csv, rf_text
 from layerloom.core.baseline import compare, snapshot
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
@@ -82,13 +82,6 @@ LEDGER_COLUMNS = ("step", "block", "kind", "depth", "out shape", "weights", "MAC
 TARGET_COLUMNS = ("est. time", "bound")
 
 
-def _rf(rf) -> str:
-    if rf is None:
-        return ""
-    h, w = (int(round(v)) for v in rf)
-    return f"{h}" if h == w else f"{h}×{w}"
-
-
 def _ledger(args) -> int:
     design = _open(args)
     ledger = Ledger(design.analysis())
@@ -116,20 +109,14 @@ def _ledger(args) -> int:
             indent=1, ensure_ascii=False))
         return 0
     if args.csv:
-        out = csv.writer(sys.stdout, lineterminator="\n")
-        out.writerow(("step", "block", "kind", "depth", "out shape", "weights", "buffers", "MACs", "other ops",
-                      "out memory bytes", "receptive field", "bytes moved", "MACs per byte", "est. seconds", "bound"))
-        for i, r in enumerate(rows, 1):
-            out.writerow((i, r.name, r.kind, r.depth, str(r.shape or ""), r.weights, r.buffers, r.macs, r.other,
-                          r.memory, _rf(r.rf), r.moved, f"{r.intensity:.3f}",
-                          "" if r.latency is None else f"{r.latency:.3e}", r.bound))
+        sys.stdout.write(ledger_csv(ledger))
         return 0
     timed = ledger.latency is not None
     table = [LEDGER_COLUMNS + (TARGET_COLUMNS if timed else ())]
     for i, r in enumerate(rows, 1):
         cells = (str(i), r.name, r.kind, str(r.depth), str(r.shape or "?"),
                  units.count(r.weights) if r.weights else "·", units.count(r.macs) if r.macs else "·",
-                 units.size(r.memory) if r.memory else "·", _rf(r.rf))
+                 units.size(r.memory) if r.memory else "·", rf_text(r.rf))
         if timed:
             cells += (f"{r.latency * 1e6:.1f} µs" if r.latency else "·", r.bound)
         table.append(cells)

@@ -6,6 +6,7 @@ Questions to the user go through a scripted stand-in for :class:`layerloom.gui.f
 from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt
+from PySide6.QtGui import QAction
 
 from layerloom.core import edits, fileformat
 from layerloom.gui.main_window import MainWindow
@@ -58,10 +59,11 @@ def add_conv(window):
     return bid
 
 
-def press(qtbot, window, key_sequence_name):
+def press(qtbot, window, action_name):
     """Trigger a menu command by its shortcut, as a user would."""
-    action = window.findChild(type(window.menuBar().actions()[0]), key_sequence_name)
-    window.activateWindow()
+    action = window.findChild(QAction, action_name)
+    with qtbot.waitActive(window):
+        window.activateWindow()
     qtbot.keySequence(window.canvas, action.shortcut())
     return action
 
@@ -150,14 +152,14 @@ def test_closing_with_unsaved_changes_asks(qtbot, tmp_path):
 
 def test_discard_on_close_removes_the_autosave_and_layout_is_kept(qtbot, tmp_path):
     window, prompts = open_window(qtbot, tmp_path)
-    window.resize(1000, 640)
+    window.resize(760, 540)
     window.settings_dock.hide()
     add_conv(window)
     copy = window.files.autosave()
     prompts.save_answer = "discard"
     assert window.close() and not copy.exists()
     again, _ = open_window(qtbot, tmp_path)
-    assert (again.width(), again.height()) == (1000, 640)
+    assert (again.width(), again.height()) == (760, 540)
     assert not again.settings_dock.isVisible()
 
 
@@ -176,13 +178,23 @@ def test_status_bar_totals_follow_the_design(qtbot, tmp_path):
 
 def test_export_refuses_a_design_with_errors_and_writes_a_clean_one(qtbot, tmp_path):
     window, prompts = open_window(qtbot, tmp_path, [SAMPLES / "shelf_gap_counter_clash.loom"])
-    window.findChild(type(window.menuBar().actions()[0]), "export_module").trigger()
+    window.findChild(QAction, "export_module").trigger()
     title, text = prompts.asked[-1]
     assert title == "Not exported" and "join.channels" in text
     assert window.shelf.currentWidget() is window.shelf.findings
     window.files.open_path(SAMPLES / "leaf_blight_grader.loom")
     prompts.save_choice = tmp_path / "grader.py"
-    window.findChild(type(window.menuBar().actions()[0]), "export_module").trigger()
+    window.findChild(QAction, "export_module").trigger()
     source = (tmp_path / "grader.py").read_text(encoding="utf-8")
     compile(source, "grader.py", "exec")
     assert "nn.Module" in source
+
+
+def test_export_canvas_pictures(qtbot, tmp_path):
+    window, prompts = open_window(qtbot, tmp_path, [SAMPLES / "fastener_sorter.loom"])
+    for fmt in ("png", "svg"):
+        prompts.save_choice = tmp_path / f"sorter.{fmt}"
+        window.findChild(QAction, f"export_{fmt}").trigger()
+    assert (tmp_path / "sorter.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # the PNG signature (PNG spec)
+    svg = (tmp_path / "sorter.svg").read_text(encoding="utf-8")
+    assert svg.count("<path") >= len(window.document.design.blocks)  # at least one outline per card

@@ -124,6 +124,16 @@ class Ledger:
         return (self.costs[:, 0] + np.asarray(elems, dtype=np.int64)) * self.bytes_per_element
 
     @property
+    def out_memory(self) -> np.ndarray:
+        """Bytes of the tensor each block allocates (0 for views and blocks without a shape)."""
+        elems = [sum(map(prod, r.outs)) if r is not None and self._allocates(b) else 0
+                 for b, r in zip(self.order, self._results)]
+        return np.asarray(elems, dtype=np.int64) * (self.batch * self.bytes_per_element)
+
+    def _allocates(self, block_id: str) -> bool:
+        return not KINDS[self.analysis.design.blocks[block_id].kind].view
+
+    @property
     def cumulative_weights(self) -> np.ndarray:
         return np.cumsum(self.costs[:, 0])
 
@@ -156,7 +166,7 @@ class Ledger:
             return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), None, 0, 0, 0, 0, 0, None, None, 0, 0.0,
                        0.0 if self.latency is not None else None, "")
         w, b, m, o = (int(v) for v in self.costs[i])
-        out_bytes = 0 if KINDS[blk.kind].view else sum(map(prod, r.outs)) * self.batch * self.bytes_per_element
+        out_bytes = sum(map(prod, r.outs)) * self.batch * self.bytes_per_element if self._allocates(bid) else 0
         latency, bound = None, ""
         if self.latency is not None:
             latency = float(self.latency[i])

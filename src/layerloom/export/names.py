@@ -2,14 +2,14 @@
 plain one-line text for docstrings and comments.
 
 Nothing a design holds can become code: identifiers keep only ASCII letters, digits and
-underscores (accents are dropped, other characters become ``_``), never start with a digit or an
+underscores (accents are dropped, ``×`` reads as ``x``, other characters become ``_``), never start with a digit or an
 underscore, and avoid keywords, builtins, the names the generated file itself uses and the
 attributes of ``nn.Module``; duplicates get ``_2``, ``_3``, … Text for docstrings and comments
 loses quotes, backslashes, line breaks and invisible characters.
 
 >>> taken = set()
 >>> identifier("3×3 conv", "conv", taken), identifier("class", "conv", taken), identifier("", "conv", taken)
-('conv_3_3_conv', 'class_', 'conv')
+('conv_3x3_conv', 'class_', 'conv')
 """
 from __future__ import annotations
 
@@ -42,7 +42,9 @@ _NOT_WORD = re.compile(r"[^0-9A-Za-z]+")
 
 
 def _ascii_words(text: str) -> list[str]:
-    folded = unicodedata.normalize("NFKD", str(text)).encode("ascii", "ignore").decode("ascii")
+    """Runs of ASCII letters and digits: accents dropped, ``×`` read as ``x``, anything else splits."""
+    folded = "".join(ch if ch.isascii() else "" if unicodedata.combining(ch) else " "
+                     for ch in unicodedata.normalize("NFKD", str(text).replace("×", "x")))
     return [w for w in _NOT_WORD.split(folded) if w]
 
 

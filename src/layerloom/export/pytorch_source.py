@@ -82,8 +82,8 @@ def export(design, class_name: str | None = None, date: datetime.date | str | No
     used = {b.kind for g in (design, *writer.used_motifs()) for b in g.blocks.values()}
     unscriptable = tuple(sorted(k for k in used if not KINDS[k].scriptable))
     header = _header(design, analysis, top, unscriptable, date, bool(writer.signatures))
-    parts = [header, "import torch\nfrom torch import nn\n", f'__all__ = ["{writer.class_name}"]\n', *writer.classes]
-    return Export("\n\n".join(parts), writer.class_name, top.outputs, top.modules, unscriptable)
+    preamble = f'{header}\n\nimport torch\nfrom torch import nn\n\n__all__ = ["{writer.class_name}"]\n'
+    return Export("\n\n".join([preamble, *writer.classes]), writer.class_name, top.outputs, top.modules, unscriptable)
 
 
 def _header(design, analysis, top: "_Written", unscriptable, date, motifs: bool) -> str:
@@ -95,7 +95,7 @@ def _header(design, analysis, top: "_Written", unscriptable, date, motifs: bool)
               f"torch.jit.script refuses it because of these kinds: {', '.join(unscriptable)}.")
     lines = [f"{plain_text(design.name)}: a PyTorch module exported from a Layerloom design.", "",
              f"Input (NCHW): {inputs or 'none'}.",
-             f"Totals per sample: {totals.weights:,} weights (learned parameters), {totals.macs // batch:,} MACs",
+             f"Totals: {totals.weights:,} weights (learned parameters) and {totals.macs // batch:,} MACs per sample",
              "(multiply-accumulates of convolutions and linear layers).",
              script, f"Exported on {when}."]
     if motifs:

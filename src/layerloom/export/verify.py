@@ -3,7 +3,8 @@
 The generated module is built and run once on zeros of the design's input shape (batch N from
 the design) in eval mode. For every top-level block it compares
 
-- the output shape (NCHW): read from the forward's variables, each named after its block;
+- the output shape (NCHW): read from the forward's local variables, each named after its block, at
+  the end of the forward (a forward hook would miss joins, which are expressions, not modules);
 - the weights: ``sum(p.numel())`` over the block's layer (or motif instance);
 - the MACs: ``torch.utils.flop_counter.FlopCounterMode`` FLOPs of the block's layer / 2
   (joins, activations, norms and pooling count 0 in both);
@@ -115,6 +116,9 @@ def verify(design, source: str | os.PathLike) -> VerifyReport:
     from layerloom.export.pytorch_source import export
 
     module = load_module(source)
+    if not getattr(module, "__all__", None):
+        raise ValueError(f"{source if not isinstance(source, str) else 'the source'} is not a Layerloom export: "
+                         "it has no __all__ naming the design's class")
     class_name = module.__all__[0]
     plan = export(design, class_name)
     model = getattr(module, class_name)().eval()
@@ -130,16 +134,22 @@ def verify(design, source: str | os.PathLike) -> VerifyReport:
         blk = design.blocks[row.block]
         attr = plan.modules.get(row.block)
         layer = getattr(model, attr) if attr else None
-        tensors = [variables[v] if k is None else variables[v][k] for v, k in plan.outputs[row.block]]
+        tensors = [_value(variables, v, k) for v, k in plan.outputs[row.block]]
         rows.append(BlockCheck(
             blk.name, blk.kind, tuple((batch, *s) for s in analysis.result(row.block).outs),
-            tuple(tuple(x.shape) for x in tensors),
+            tuple(tuple(x.shape) if x is not None else () for x in tensors),
             row.weights, sum(p.numel() for p in layer.parameters()) if layer is not None else 0,
             row.macs, sum(flops.get(f"{class_name}.{attr}", {}).values()) // 2 if attr else 0))
     t = ledger.totals
     total = BlockCheck("total", "", (), (), t.weights, sum(p.numel() for p in model.parameters()),
                        t.macs, counter.get_total_flops() // 2)
     return VerifyReport(tuple(rows), total)
+
+
+def _value(variables: dict, name: str, index: int | None):
+    """The forward's variable ``name`` (item ``index`` of it, for a motif with several outputs), or None."""
+    x = variables.get(name)
+    return x if index is None or x is None else x[index]
 
 
 def _forward_locals(model, inputs) -> dict:

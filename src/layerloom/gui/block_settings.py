@@ -149,21 +149,26 @@ class BlockSettings(QWidget):
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         scroll.setWidget(body)
+        self.setMinimumWidth(260)
         outer = QVBoxLayout(self)
         outer.setContentsMargins(0, 0, 0, 0)
         outer.addWidget(scroll)
 
         document.selection_changed.connect(self._follow_selection)
         document.changed.connect(self._on_change)
-        document.replaced.connect(lambda: self._follow_selection(document.selection))
-        self._follow_selection(document.selection)
+        document.replaced.connect(self._on_replaced)
+        self._on_replaced()
 
     # ----- model → widgets
     def _follow_selection(self, ids: list) -> None:
         self.block_id = ids[0] if len(ids) == 1 else None
         self._kind_shown = None
         self.refresh()
+
+    def _on_replaced(self) -> None:
+        self._follow_selection(self.document.selection)
 
     def _on_change(self, change) -> None:
         if self.block_id is not None and self.block_id not in self.document.design.blocks:
@@ -313,5 +318,6 @@ def _escape(text: str) -> str:
 
 
 def _table(rows: list[tuple[str, str]]) -> str:
-    cells = "".join(f"<tr><td style='color:{theme.TEXT_MUTED.name()}; padding-right:10px'>{k}</td><td>{v}</td></tr>" for k, v in rows)
+    key_style = f"color:{theme.TEXT_MUTED.name()}; padding-right:10px"
+    cells = "".join(f"<tr><td style='{key_style}'>{k}</td><td>{v}</td></tr>" for k, v in rows)
     return f"<table cellspacing='0' cellpadding='2'>{cells}</table>"

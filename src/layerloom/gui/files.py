@@ -194,7 +194,8 @@ class FileKeeper(QObject):
         try:
             fileformat.save(self.document.design, path)
         except OSError as e:
-            self.prompts.error("Cannot save design", f"{path}: {e.strerror or e}\nThe design is still open and unsaved.")
+            self.prompts.error("Cannot save design",
+                               f"{path}: {e.strerror or e}\nThe design is still open and unsaved.")
             return False
         self.drop_autosave()  # the copy under the old name (or of the unsaved design)
         self.document.mark_saved(path.resolve())

@@ -19,11 +19,14 @@ from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
+from layerloom.gui.shelf import Shelf
 from layerloom.resources import resource
 
 ORGANISATION, APPLICATION = "Layerloom Workshop", "Layerloom"
 APP_ICON = "icons/layerloom.svg"
 STYLE_SHEET = "style.qss"
+SETTINGS_WIDTH, SHELF_HEIGHT = 380, 215  # first-run sizes of the right column and the shelf, in pixels
+SETTINGS_SHARE = 0.48  # first-run share of the right column's height for Block settings (the Depth ledger below)
 Key = QKeySequence.StandardKey
 
 
@@ -39,8 +42,6 @@ class MainWindow(QMainWindow):
     def __init__(self, files: list[str] = (), *, prompts: Prompts | None = None, settings: QSettings | None = None,
                  scratch_dir: str | Path | None = None):
         super().__init__()
-        from layerloom.gui.shelf import Shelf  # after QApplication exists (tiles paint glyphs)
-
         self.setObjectName("main_window")
         self.setWindowIcon(QIcon(str(resource(APP_ICON))))
         self.setStyleSheet(resource(STYLE_SHEET).read_text(encoding="utf-8"))
@@ -57,23 +58,30 @@ class MainWindow(QMainWindow):
         self.shelf_dock.setTitleBarWidget(QLabel())  # the tabs say what it is
         self.settings_dock = self._dock("Block settings", "block_settings_dock", self.block_settings,
                                         Qt.DockWidgetArea.RightDockWidgetArea)
+        from layerloom.gui.depth_ledger import DepthLedger  # pyqtgraph, after QApplication exists
+
+        self.depth_ledger = DepthLedger(self.document)
+        self.ledger_dock = self._dock("Depth ledger", "depth_ledger_dock", self.depth_ledger,
+                                      Qt.DockWidgetArea.RightDockWidgetArea)
+        self.splitDockWidget(self.settings_dock, self.ledger_dock, Qt.Orientation.Vertical)
+        self.depth_ledger.block_activated.connect(self.canvas.center_on)
         self.setCorner(Qt.Corner.BottomRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
         self.setDockNestingEnabled(True)
+        self.resize(1400, 860)  # first run; a saved geometry replaces it below
         self.shelf.findings.block_chosen.connect(self.canvas.center_on)
-        self.canvas.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        self.canvas.message.connect(self.say)
 
         self._build_status_bar()
         self._build_menus()
         self.document.changed.connect(self._on_change)
         self.document.replaced.connect(self._refresh_totals)
         self.document.path_changed.connect(self._refresh_title)
-        self.document.undo_stack.cleanChanged.connect(lambda clean: self.setWindowModified(not clean))
-        self.files.said.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        self.document.undo_stack.cleanChanged.connect(self._refresh_title)
+        self.files.said.connect(self.say)
         self.files.recent_changed.connect(self._fill_recent)
 
-        self.resize(1400, 860)
         self.restoreGeometry(self.settings.value("window/geometry", b""))
-        self.restoreState(self.settings.value("window/state", b""))
+        self._first_run = not self.restoreState(self.settings.value("window/state", b""))
         self.files.start(list(files))
         self._refresh_title()
         self._refresh_totals()
@@ -129,7 +137,7 @@ class MainWindow(QMainWindow):
         self._action(edit, "Select all", c.select_all, Key.SelectAll)
         self._action(edit, "Rename block", c.rename_selected, "F2", name="rename")
         edit.addSeparator()
-        self._action(edit, "Quick add…", c.quick_add, "Ctrl+K", name="quick_add")
+        self._action(edit, "Quick add…", lambda: c.quick_add(), "Ctrl+K", name="quick_add")
 
         view = bar.addMenu("&View")
         self._action(view, "Zoom in", c.zoom_in, Key.ZoomIn)
@@ -139,6 +147,15 @@ class MainWindow(QMainWindow):
         view.addSeparator()
         view.addAction(self.shelf_dock.toggleViewAction())
         view.addAction(self.settings_dock.toggleViewAction())
+        view.addAction(self.ledger_dock.toggleViewAction())
+
+        design = bar.addMenu("&Design")
+        self._action(design, "Budget and target…", self.edit_budget, name="budget")
+        self._action(design, "Pin as baseline", self.depth_ledger.pin_baseline, name="pin_baseline")
+        self._action(design, "Baseline from another design…", lambda: self.depth_ledger.baseline_from_file(),
+                     name="baseline_from_file")
+        self._action(design, "Clear baseline", self.depth_ledger.clear_baseline, name="clear_baseline")
+        self._action(design, "Export ledger as CSV…", lambda: self.depth_ledger.export_csv(), name="export_csv")
         self.shelf_dock.toggleViewAction().setText("Shelf (Parts, Findings)")
 
     def _fill_recent(self) -> None:
@@ -155,6 +172,11 @@ class MainWindow(QMainWindow):
             return
         self.files.open_path(path)
 
+    def edit_budget(self) -> None:
+        from layerloom.gui.budget_dialog import BudgetDialog
+
+        BudgetDialog(self.document, self.settings, self).exec()
+
     # ----- export
     def export_module(self) -> None:
         """Write the design as a PyTorch module; a design with errors is refused with its findings."""
@@ -163,8 +185,7 @@ class MainWindow(QMainWindow):
         try:
             source = module_source(self.document.design)
         except ExportRefused as e:
-            self.shelf_dock.show()
-            self.shelf.show_findings()
+            self.show_findings()
             self.prompts.error("Not exported", f"{e}\n\nThe Findings tab lists them with their mends.")
             return
         except ValueError as e:
@@ -193,7 +214,7 @@ class MainWindow(QMainWindow):
         if not written:
             self.prompts.error("Not exported", f"{path}: {why}")
             return
-        self.statusBar().showMessage(f"Exported {Path(path).name}", 6000)
+        self.say(f"Exported {Path(path).name}")
 
     # ----- title and status
     def _build_status_bar(self) -> None:
@@ -204,7 +225,7 @@ class MainWindow(QMainWindow):
         self.findings_button.setObjectName("findings_count")
         self.findings_button.setFlat(True)
         self.findings_button.setCursor(Qt.CursorShape.PointingHandCursor)
-        self.findings_button.clicked.connect(lambda: (self.shelf_dock.show(), self.shelf.show_findings()))
+        self.findings_button.clicked.connect(self.show_findings)
         bar.addPermanentWidget(self.totals_label)
         bar.addPermanentWidget(self.findings_button)
 
@@ -224,9 +245,27 @@ class MainWindow(QMainWindow):
         self.findings_button.setProperty("severity", "error" if errors else ("warning" if warnings else "clear"))
         self.findings_button.style().polish(self.findings_button)
 
+    def show_findings(self) -> None:
+        self.shelf_dock.show()
+        self.shelf.show_findings()
+
+    def say(self, text: str) -> None:
+        """A passing message in the status bar."""
+        self.statusBar().showMessage(text, 6000)
+
     def _refresh_title(self) -> None:
         self.setWindowTitle(f"{self.files.display_name}[*] — Layerloom")
         self.setWindowModified(self.document.modified)
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if self._first_run:  # docks take their sizes only once the window is laid out
+            self._first_run = False
+            self.resizeDocks([self.settings_dock], [SETTINGS_WIDTH], Qt.Orientation.Horizontal)
+            self.resizeDocks([self.shelf_dock], [SHELF_HEIGHT], Qt.Orientation.Vertical)
+            column = self.settings_dock.height() + self.ledger_dock.height()
+            self.resizeDocks([self.settings_dock, self.ledger_dock],
+                             [int(column * SETTINGS_SHARE), int(column * (1 - SETTINGS_SHARE))], Qt.Orientation.Vertical)
 
     # ----- closing
     def closeEvent(self, event) -> None:

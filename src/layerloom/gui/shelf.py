@@ -203,8 +203,8 @@ class Shelf(QTabWidget):
         self._count(*self.findings.counts())
 
     def _count(self, errors: int, warnings: int) -> None:
-        extra = ", ".join(t for t in (f"{errors} ✕" if errors else "", f"{warnings} !" if warnings else "") if t)
-        self.setTabText(1, f"Findings ({extra})" if extra else "Findings")
+        parts = [f"{n} {word}{'s' if n != 1 else ''}" for n, word in ((errors, "error"), (warnings, "warning")) if n]
+        self.setTabText(1, "Findings · " + ", ".join(parts) if parts else "Findings")
 
     def show_findings(self) -> None:
         self.setCurrentWidget(self.findings)

@@ -10,8 +10,8 @@ from PySide6.QtGui import QColor, QFont
 
 # ----- colours
 CANVAS = QColor("#f4f5f2")  # the canvas behind everything
-GRID_MINOR = QColor("#e7e9e4")
-GRID_MAJOR = QColor("#dcdfd8")
+GRID_MINOR = QColor("#edeeea")
+GRID_MAJOR = QColor("#e2e4de")
 CARD = QColor("#ffffff")
 CARD_EDGE = QColor("#b9bdb4")
 TEXT = QColor("#23262a")
@@ -23,7 +23,6 @@ LABEL_BACK = QColor(244, 245, 242, 225)  # canvas colour, slightly see-through, 
 COST_BAR = QColor("#55606a")
 COST_TRACK = QColor("#eceee9")
 ACCENT = QColor("#1f7a78")  # selection, focus, the wire being drawn
-ACCENT_SOFT = QColor(31, 122, 120, 40)  # rubber band fill
 ERROR = QColor("#d0342c")
 WARNING = QColor("#d08a12")
 NOTE = QColor("#8a9199")
@@ -72,13 +71,14 @@ OUTLINE = 1.0
 STATUS_OUTLINE = 2.0
 
 # ----- wires
-WIRE_MIN_WIDTH = 1.2
-WIRE_MAX_WIDTH = 10.0
-WIRE_WIDTH_PER_DOUBLING = 0.75  # extra stroke width each time the channel count doubles
+WIRE_MIN_WIDTH = 1.2  # for 2 channels or fewer (and for wires whose shape is unknown)
+WIRE_MAX_WIDTH = 12.0
+WIRE_WIDTH_PER_DOUBLING = 1.1  # extra stroke width each time the channel count doubles
 
 # ----- canvas
 GRID_STEP = 20.0
 GRID_MAJOR_EVERY = 5
 SCENE_MARGIN = 1500.0  # free space kept around the blocks
 TEXT_MIN_DETAIL = 0.3  # below this zoom level text is not drawn
+SHAPE_MIN_DETAIL = 0.08  # below this, cards are plain rectangles and wires hairlines
 ZOOM_MIN, ZOOM_MAX = 0.04, 4.0

@@ -31,7 +31,8 @@ class BadgeItem(QGraphicsItem):
         n_in = parent.state.n_in
         if port is not None and port < n_in:
             y = port_y(port, n_in)
-            self._rect = QRectF(-w - 2.0, y - h - 5.0, w, h)  # left of the notch, above the wire
+            above = port < n_in / 2 or n_in == 1  # upper ports above their wire, lower ones below
+            self._rect = QRectF(-w - 2.0, y - h - 6.0 if above else y + 6.0, w, h)
         else:
             self._rect = QRectF(W - w - 8.0, -h / 2, w, h)  # riding the card's top edge
         self.setToolTip("\n".join(f"{f.code}: {f.message}" for f in findings))

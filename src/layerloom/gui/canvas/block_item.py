@@ -18,6 +18,11 @@ from layerloom.gui.canvas.glyphs import glyph_for
 W, H = theme.CARD_WIDTH, theme.CARD_HEIGHT
 TITLE_LEFT = theme.PADDING + theme.GLYPH_SIZE + 6.0
 TITLE_BASE, DETAIL_BASE = 21.0, 39.0
+_MARGIN = theme.STATUS_OUTLINE + 4.0
+BOUNDS = QRectF(-_MARGIN, -_MARGIN, W + 2 * _MARGIN, H + 2 * _MARGIN)
+CARD_RECT = QRectF(0, 0, W, H)
+SELECTED = QStyle.StateFlag.State_Selected
+ELIDE = Qt.TextElideMode.ElideRight
 PORT_REACH = 9.0  # how near (scene pixels) a pointer must come to a notch to take hold of it
 
 
@@ -68,6 +73,12 @@ def font(which: str) -> QFont:
     return f
 
 
+@lru_cache(maxsize=4096)
+def advance(which: str, text: str) -> float:
+    """Width of ``text`` in the theme font ``which`` (remembered: the same shapes recur everywhere)."""
+    return metrics(which).horizontalAdvance(text)
+
+
 def metrics(which: str) -> QFontMetricsF:
     """Metrics of :func:`font` ``(which)``, made once (a Qt application must exist)."""
     m = _metrics.get(which)
@@ -85,6 +96,7 @@ class BlockItem(QGraphicsItem):
         self._on_moved = on_moved
         self.state = state
         self._title = self._detail = ""
+        self._shape_row = DETAIL_BASE
         self._texts()
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsMovable | QGraphicsItem.GraphicsItemFlag.ItemIsSelectable
                       | QGraphicsItem.GraphicsItemFlag.ItemSendsScenePositionChanges)
@@ -100,17 +112,27 @@ class BlockItem(QGraphicsItem):
         self.update()
 
     def _texts(self) -> None:
+        """Elide the texts once; the output shape shares the second line, or moves up beside the
+        title when the settings need the whole line (a motif's name)."""
         s = self.state
         room = W - TITLE_LEFT - theme.PADDING
-        self._title = metrics("title").elidedText(s.title, Qt.TextElideMode.ElideRight, room)
-        shape_w = metrics("figure").horizontalAdvance(s.shape) + 8 if s.shape else 0
-        self._detail = metrics("detail").elidedText(s.detail, Qt.TextElideMode.ElideRight,
-                                                    W - 2 * theme.PADDING - shape_w)
+        shape_w = advance("figure", s.shape) + 8 if s.shape else 0
+        detail_room = W - 2 * theme.PADDING - theme.NOTCH_DEPTH
+        title_w = advance("title", s.title)
+        detail_w = advance("detail", s.detail)
+        self._shape_row = DETAIL_BASE
+        if detail_w + shape_w > detail_room and title_w + shape_w <= room:
+            self._shape_row = TITLE_BASE
+        else:
+            detail_room -= shape_w
+        if self._shape_row == TITLE_BASE:
+            room -= shape_w
+        self._title = s.title if title_w <= room else metrics("title").elidedText(s.title, ELIDE, room)
+        self._detail = s.detail if detail_w <= detail_room else metrics("detail").elidedText(s.detail, ELIDE, detail_room)
 
     # ----- geometry
     def boundingRect(self) -> QRectF:
-        m = theme.STATUS_OUTLINE + 4.0
-        return QRectF(-m, -m, W + 2 * m, H + 2 * m)
+        return BOUNDS
 
     def shape(self) -> QPainterPath:
         """The card with a little room beyond its edges, so the notches can be taken hold of."""
@@ -153,10 +175,13 @@ class BlockItem(QGraphicsItem):
     # ----- drawing
     def paint(self, painter, option, widget=None) -> None:
         s = self.state
-        path = card_path(s.n_in, s.n_out)
         lod = option.levelOfDetailFromTransform(painter.worldTransform())
-        selected = bool(option.state & QStyle.StateFlag.State_Selected)
         status = theme.SEVERITY_COLOURS.get(s.status) if s.status in ("error", "warning") else None
+        if lod < theme.SHAPE_MIN_DETAIL:  # a speck: a plain rectangle in the status colour
+            painter.fillRect(CARD_RECT, status if status is not None else theme.CARD_EDGE)
+            return
+        path = card_path(s.n_in, s.n_out)
+        selected = bool(option.state & SELECTED)
         if selected:
             painter.setPen(QPen(theme.ACCENT, 2.0))
             painter.setBrush(Qt.BrushStyle.NoBrush)
@@ -189,5 +214,5 @@ class BlockItem(QGraphicsItem):
         if s.shape:
             painter.setPen(theme.TEXT)
             painter.setFont(font("figure"))
-            x = W - theme.PADDING - theme.NOTCH_DEPTH - metrics("figure").horizontalAdvance(s.shape)
-            painter.drawText(QPointF(x, DETAIL_BASE), s.shape)
+            x = W - theme.PADDING - theme.NOTCH_DEPTH - advance("figure", s.shape)
+            painter.drawText(QPointF(x, self._shape_row), s.shape)

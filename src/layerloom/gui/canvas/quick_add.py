@@ -6,9 +6,11 @@ It is a plain child widget of the canvas view, never an item in the scene.
 from __future__ import annotations
 
 from PySide6.QtCore import QEvent, Qt, Signal
+from PySide6.QtGui import QPalette
 from PySide6.QtWidgets import QFrame, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout
 
 from layerloom.core.kinds import KINDS
+from layerloom.gui import theme
 
 ROWS = 8
 
@@ -41,6 +43,10 @@ class QuickAdd(QFrame):
         self.list = QListWidget(self)
         self.list.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.list.setUniformItemSizes(True)
+        palette = self.list.palette()
+        palette.setColor(QPalette.ColorRole.Highlight, theme.ACCENT)
+        palette.setColor(QPalette.ColorRole.HighlightedText, theme.CARD)
+        self.list.setPalette(palette)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.setSpacing(3)

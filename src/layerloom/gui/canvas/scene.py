@@ -163,8 +163,9 @@ class CanvasScene(QGraphicsScene):
             found = tuple(by_block.get(bid, ()))
             status = found[0].severity if found else ""
             share = round(r.cost.macs / total, 2) if (r is not None and total) else 0.0
+            detail = detail_text(block)
             shape = str(r.outs[0]) if r is not None and r.outs else ""
-            state = CardState(block.kind, block.name, detail_text(block), shape, n_in, n_out, status, share)
+            state = CardState(block.kind, block.name, detail, "" if shape == detail else shape, n_in, n_out, status, share)
             if (n_in, n_out) != (old.n_in, old.n_out):
                 self._dirty_wires.update(design.in_wires[bid] + design.out_wires[bid])
             item.set_state(state)
@@ -200,7 +201,7 @@ class CanvasScene(QGraphicsScene):
         self._dirty_wires.update(g.out_wires[block_id])
         if not self._flush_queued:
             self._flush_queued = True
-            QTimer.singleShot(0, self.flush_wires)
+            QTimer.singleShot(0, self, self.flush_wires)
 
     def flush_wires(self) -> None:
         """Re-route every dirty wire once."""

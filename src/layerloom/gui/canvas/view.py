@@ -7,7 +7,7 @@ wheel. Quick add and rename in place are plain widgets over the view, never scen
 from __future__ import annotations
 
 from PySide6.QtCore import QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QCursor, QGuiApplication, QImage, QKeySequence, QPainter
+from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette
 from PySide6.QtWidgets import QGraphicsView
 
 from layerloom.core import clipboard, edits
@@ -16,6 +16,7 @@ from layerloom.core.kinds import KINDS
 from layerloom.core.layout import COLUMN, tidy_positions
 from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import H, W, BlockItem
+from layerloom.gui.canvas.block_item import font as block_font
 from layerloom.gui.canvas.name_editor import NameEditor
 from layerloom.gui.canvas.quick_add import QuickAdd
 from layerloom.gui.canvas.scene import CanvasScene
@@ -50,6 +51,9 @@ class CanvasView(QGraphicsView):
         self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         self.setAcceptDrops(True)
         self.setObjectName("canvas")
+        palette = self.palette()
+        palette.setColor(QPalette.ColorRole.Highlight, theme.ACCENT)  # the rubber band
+        self.setPalette(palette)
         self._pan_from: QPoint | None = None
         self._space = False
         self._draft: DraftWire | None = None
@@ -102,7 +106,16 @@ class CanvasView(QGraphicsView):
             self.centerOn(item.sceneBoundingRect().center())
 
     def wheelEvent(self, event) -> None:
+        """Zoom about the point under the cursor: it stays where it was on screen."""
+        pos = event.position()
+        under = self.mapToScene(pos.toPoint())
+        anchor = self.transformationAnchor()
+        self.setTransformationAnchor(QGraphicsView.ViewportAnchor.NoAnchor)
         self._zoom(1.0015 ** event.angleDelta().y())
+        self.setTransformationAnchor(anchor)
+        drift = self.mapFromScene(under) - pos.toPoint()
+        self.horizontalScrollBar().setValue(self.horizontalScrollBar().value() + drift.x())
+        self.verticalScrollBar().setValue(self.verticalScrollBar().value() + drift.y())
         event.accept()
 
     def drawBackground(self, painter, rect: QRectF) -> None:
@@ -261,7 +274,10 @@ class CanvasView(QGraphicsView):
             self.duplicate()
         elif event.text().isprintable() and event.text().strip() and not mods & (
                 Qt.KeyboardModifier.ControlModifier | Qt.KeyboardModifier.AltModifier):
-            self.quick_add(text=event.text())
+            if self._quick.isVisible():  # typed faster than the focus moved
+                self._quick.edit.insert(event.text())
+            else:
+                self.quick_add(text=event.text())
         else:
             super().keyPressEvent(event)
             return
@@ -414,6 +430,9 @@ class CanvasView(QGraphicsView):
         rect = self.mapFromScene(item.mapToScene(item.title_rect())).boundingRect()
         rect.setHeight(max(rect.height(), self._names.sizeHint().height()))
         rect.setWidth(max(rect.width(), 120))
+        font = QFont(block_font("title"))
+        font.setPointSizeF(max(font.pointSizeF() * self.zoom_level(), 7.0))
+        self._names.setFont(font)
         self._names.start(item.block_id, self.document.design.blocks[item.block_id].name, rect)
 
     def _rename(self, block_id: str, name: str) -> None:

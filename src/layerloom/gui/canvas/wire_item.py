@@ -1,28 +1,30 @@
 """A wire on the canvas: a left → right curve whose stroke width grows with the channel count.
 
-The path, its padded bounding rect, the stroked hit shape and the label's place are computed in
-:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``); ``paint`` only draws them.
+The path, its padded bounding rect and the label's place are computed in
+:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``), the stroked hit shape on the
+first hit test after it; all are cached, and ``paint`` only draws them.
 """
 from __future__ import annotations
 
 from math import log2
 
-from PySide6.QtCore import QPointF, QRectF, Qt
+from PySide6.QtCore import QLineF, QPointF, QRectF, Qt
 from PySide6.QtGui import QPainterPath, QPainterPathStroker, QPen
 from PySide6.QtWidgets import QGraphicsItem, QStyle
 
 from layerloom.core.graph import Wire
 from layerloom.gui import theme
-from layerloom.gui.canvas.block_item import font, metrics
+from layerloom.gui.canvas.block_item import advance, font, metrics
 
 HIT_WIDTH = 10.0  # a thin wire is still easy to click
+SELECTED = QStyle.StateFlag.State_Selected
 
 
 def stroke_width(channels: int | None) -> float:
     """Stroke width for a wire carrying ``channels`` channels (or features): log scale, clamped."""
     if not channels:
         return theme.WIRE_MIN_WIDTH
-    w = theme.WIRE_MIN_WIDTH + theme.WIRE_WIDTH_PER_DOUBLING * log2(max(channels, 1))
+    w = theme.WIRE_MIN_WIDTH + theme.WIRE_WIDTH_PER_DOUBLING * max(log2(channels) - 1.0, 0.0)
     return min(w, theme.WIRE_MAX_WIDTH)
 
 
@@ -45,7 +47,8 @@ class WireItem(QGraphicsItem):
         self.width = theme.WIRE_MIN_WIDTH
         self.known = False
         self._path = QPainterPath()
-        self._hit = QPainterPath()
+        self._chord = QLineF()
+        self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
         self._label_rect = QRectF()
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
@@ -59,14 +62,13 @@ class WireItem(QGraphicsItem):
         self.label = str(shape) if shape is not None else ""
         self.width = stroke_width(shape[0] if shape is not None else None)
         self._path = curve(a, b)
-        stroker = QPainterPathStroker()
-        stroker.setWidth(max(self.width, HIT_WIDTH))
-        self._hit = stroker.createStroke(self._path)
+        self._chord = QLineF(a, b)
+        self._hit = None  # stroked on first use (hit tests), then kept until the path changes
         bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
         if self.label:
             fm = metrics("figure")
             mid = self._path.pointAtPercent(0.5)
-            w, h = fm.horizontalAdvance(self.label) + 6.0, fm.height() + 1.0
+            w, h = advance("figure", self.label) + 6.0, fm.height() + 1.0
             self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
             bounds = bounds.united(self._label_rect)
         else:
@@ -77,17 +79,26 @@ class WireItem(QGraphicsItem):
         return self._bounds
 
     def shape(self) -> QPainterPath:
+        if self._hit is None:
+            stroker = QPainterPathStroker()
+            stroker.setWidth(max(self.width, HIT_WIDTH))
+            self._hit = stroker.createStroke(self._path)
         return self._hit
 
     def paint(self, painter, option, widget=None) -> None:
-        selected = bool(option.state & QStyle.StateFlag.State_Selected)
+        lod = option.levelOfDetailFromTransform(painter.worldTransform())
+        if lod < theme.SHAPE_MIN_DETAIL:  # far out: a hairline between the ends
+            painter.setPen(theme.WIRE)
+            painter.drawLine(self._chord)
+            return
+        selected = bool(option.state & SELECTED)
         colour = theme.ACCENT if selected else (theme.WIRE if self.known else theme.WIRE_UNKNOWN)
         pen = QPen(colour, self.width, Qt.PenStyle.SolidLine if self.known else Qt.PenStyle.DashLine,
                    Qt.PenCapStyle.FlatCap)
         painter.setPen(pen)
         painter.setBrush(Qt.BrushStyle.NoBrush)
         painter.drawPath(self._path)
-        if not self.label or option.levelOfDetailFromTransform(painter.worldTransform()) < theme.TEXT_MIN_DETAIL:
+        if not self.label or lod < theme.TEXT_MIN_DETAIL:
             return
         painter.setPen(Qt.PenStyle.NoPen)
         painter.setBrush(theme.LABEL_BACK)

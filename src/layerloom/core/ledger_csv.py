@@ -1,0 +1,29 @@
+"""The ledger as CSV text (for ``layerloom ledger --csv`` and the Depth ledger's CSV export)."""
+from __future__ import annotations
+
+import csv
+import io
+
+HEADINGS = ("step", "block", "kind", "depth", "out shape", "weights", "buffers", "MACs", "other ops",
+            "out memory bytes", "live bytes", "receptive field", "bytes moved", "MACs per byte", "est. seconds",
+            "bound")
+
+
+def rf_text(rf) -> str:
+    """Receptive field as ``35`` (square) or ``35×19``; empty when unknown."""
+    if rf is None:
+        return ""
+    h, w = (int(round(v)) for v in rf)
+    return f"{h}" if h == w else f"{h}×{w}"
+
+
+def ledger_csv(ledger) -> str:
+    """One row per block in depth order, with the headings above."""
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(HEADINGS)
+    for i, r in enumerate(ledger.rows):
+        w.writerow((i + 1, r.name, r.kind, r.depth, str(r.shape or ""), r.weights, r.buffers, r.macs, r.other,
+                    r.memory, int(ledger.live[i]), rf_text(r.rf), r.moved, f"{r.intensity:.3f}",
+                    "" if r.latency is None else f"{r.latency:.3e}", r.bound))
+    return out.getvalue()
