@@ -14,7 +14,6 @@ random. What must hold:
 from __future__ import annotations
 
 import json
-import math
 
 import hypothesis.strategies as st
 from hypothesis import HealthCheck, assume, given, settings
@@ -25,7 +24,6 @@ from layerloom.core.design import DTYPES
 from layerloom.core.findings import ERROR
 from layerloom.core.graph import Wire
 from layerloom.core.kinds import KINDS
-from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
 
 ACTIVATIONS = ("ReLU", "ReLU6", "GELU", "SiLU", "Sigmoid", "Tanh", "Hardswish", "LeakyReLU")
@@ -323,6 +321,7 @@ def insert_edit(draw, d: Design) -> edits.Edit:
 
 KEEPING_ORDER = (settings_edit, add_edit, connect_edit, rename_edit, move_edit, field_edit)
 REMOVING = (remove_edit, disconnect_edit, insert_edit)
+RESHAPING = (add_edit, connect_edit, move_edit, field_edit) + REMOVING  # every edit but renames
 
 
 def _totals(d: Design):
@@ -364,12 +363,23 @@ def _snapshot(d: Design):
 def test_incremental_equals_fresh_load(d, data):
     d.ledger()  # results exist before the edits, so what follows is incremental
     for _ in range(data.draw(st.integers(1, 6))):
-        maker = data.draw(st.sampled_from((settings_edit,) * 4 + KEEPING_ORDER + REMOVING))
+        maker = data.draw(st.sampled_from((settings_edit,) * 4 + RESHAPING))
         d.apply(maker(data.draw, d))
         if data.draw(st.booleans()):
             _check_sound(d)
     fresh = fileformat.parse(fileformat.dumps(d))
     assert _snapshot(d) == _snapshot(fresh)
+
+
+@settings(max_examples=examples(50))
+@given(designs(max_steps=6), st.data())
+def test_findings_follow_renames(d, data):
+    """Finding messages name blocks; after a rename they name the new name, as a fresh load does."""
+    d.apply(connect_edit(data.draw, d))  # often adds a finding (a loop, a second wire on a port)
+    d.findings()
+    named = sorted({f.block for f in d.findings() if f.block in d.blocks}) or sorted(d.blocks)
+    d.apply(edits.rename(d, data.draw(st.sampled_from(named)), data.draw(st.text(min_size=1, max_size=8))))
+    assert d.findings() == fileformat.parse(fileformat.dumps(d)).findings()
 
 
 # ----- broken files ----------------------------------------------------------------------------

@@ -63,8 +63,9 @@ class Change:
 
     @property
     def reinfers(self) -> bool:
-        """True when shapes, findings or costs may differ (a move or rename never re-infers)."""
-        return bool(self.dirty or self.topology or self.motifs or self.fields & {"batch", "dtype"})
+        """True when shapes, findings or costs may differ. A move never re-infers; a rename refreshes
+        only the findings that name the block."""
+        return bool(self.dirty or self.topology or self.motifs or self.renamed or self.fields & {"batch", "dtype"})
 
 
 class Motif(Graph):

@@ -118,6 +118,18 @@ class RemoveMotif(NamedTuple):
         return AddMotif(m.name, m.params)
 
 
+class SetMotifParams(NamedTuple):
+    """Replace a motif's parameters (names → default values)."""
+
+    name: str
+    params: dict
+
+    def apply(self, design) -> "SetMotifParams":
+        motif = design.motifs[self.name]
+        old, motif.params = motif.params, dict(self.params)
+        return SetMotifParams(self.name, old)
+
+
 @dataclass(frozen=True)
 class Edit:
     """A labelled sequence of operations, applied in order (undone in reverse)."""

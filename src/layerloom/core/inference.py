@@ -37,6 +37,7 @@ class Result(NamedTuple):
     rf: tuple[float, float]
     jump: tuple[float, float]
     extra: int = 0  # transient elements inside a motif instance beyond its inputs and outputs
+    extra_freed: int = 0  # the same when the instance is the last reader of its inputs (may be < 0)
 
 
 class MotifRun(NamedTuple):
@@ -46,7 +47,8 @@ class MotifRun(NamedTuple):
     cost: Cost
     rf: tuple[float, float]  # receptive field of one use, from a port with rf 1 and jump 1
     jump: tuple[float, float]
-    extra: int
+    extra: int  # inner peak beyond outputs, inputs kept alive by the caller
+    extra_freed: int  # inner peak beyond inputs and outputs, inputs freed inside after their last use
     findings: tuple[Finding, ...]
 
 
@@ -73,19 +75,22 @@ class GraphInference:
         self.findings: dict[str, list[Finding]] = {}
         self.graph_findings: list[Finding] = []
         self.port_index: dict[str, int] = {}
+        self.stuck: set[str] = set()  # blocks on a loop or after one: no results
         self.memo = analysis.memo if analysis is not None else {}
 
     # ----- passes
     def run(self) -> None:
         """Infer every block."""
-        self._reorder()
+        self.reorder()
         for bid in self.order:
             self._compute(bid)
 
     def update(self, dirty: set[str], topology: bool) -> None:
         """Infer again the ``dirty`` blocks and whatever downstream changes because of them."""
         if topology:
-            self._reorder()
+            before = self.stuck
+            self.reorder()
+            dirty = set(dirty) | (before ^ self.stuck)  # blocks that joined or left a loop
         position, out_wires = self.position, self.graph.out_wires
         heap = [(position[b], b) for b in dirty if b in position]
         heapq.heapify(heap)
@@ -101,7 +106,10 @@ class GraphInference:
                         heapq.heappush(heap, (position[w.dst], w.dst))
 
     # ----- order, cycles, dead ends
-    def _reorder(self) -> None:
+    def reorder(self) -> None:
+        """Depth order and levels (Kahn's algorithm, levels bucketed in insertion order: graphlib's
+        sorter is several times slower at thousands of blocks), loops named with graphlib, and the
+        graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks, out_wires = g.blocks, g.out_wires
         indeg = {b: len(ws) for b, ws in g.in_wires.items()}
@@ -121,11 +129,11 @@ class GraphInference:
         for b in blocks:  # insertion order within each level
             columns[level[b] if indeg[b] == 0 else top].append(b)
         found: list[Finding] = []
+        self.stuck = set(columns[top])
         if columns[top]:
             found += self._cycles(columns[top])
             for b in columns[top]:
                 level[b] = top
-                self.results[b] = None
         order = [b for column in columns for b in column]
         self.order = order
         self.level = level
@@ -177,19 +185,25 @@ class GraphInference:
         found: list[Finding] = []
         old = self.results.get(bid)
         result = None
+        if bid in self.stuck:
+            self.results[bid] = None
+            self.findings.pop(bid, None)
+            return old is not None
         try:
             if self.params is not None:
-                s = self._resolve(blk)
+                s = self.resolved_settings(blk)
             motif = self._motif(blk) if kind_name == "Motif" else None
             n_in = len(motif.ports()[0]) if motif is not None else kind.input_count(s)
             wires = g.in_wires[bid]
             if n_in == 1 and len(wires) == 1 and wires[0].dst_port == 0:
                 w = wires[0]
                 r = self.results.get(w.src)
-                if r is not None and w.src_port < len(r.outs):
+                if r is not None and w.src_port < len(r.outs) and g.blocks[w.src].kind != "Output":
                     ins, rf, jump = (r.outs[w.src_port],), r.rf, r.jump
                 else:
                     ins = None
+                    if r is not None:
+                        found.append(self._no_such_output(blk, w, r))
             else:
                 ins, rf, jump = self._gather(blk, n_in, wires, found)
             if kind_name == "Input":
@@ -254,13 +268,21 @@ class GraphInference:
             else:
                 w = ws[0]
                 r = self.results.get(w.src)
-                if r is None or w.src_port >= len(r.outs):
+                if r is None or w.src_port >= len(r.outs) or self.graph.blocks[w.src].kind == "Output":
                     known = False
+                    if r is not None:
+                        found.append(self._no_such_output(blk, w, r))
                     continue
                 ins.append(r.outs[w.src_port])
                 rf = [max(rf[0], r.rf[0]), max(rf[1], r.rf[1])]
                 jump = [min(jump[0], r.jump[0]), min(jump[1], r.jump[1])]
         return (tuple(ins), tuple(rf), tuple(jump)) if known else (None, None, None)
+
+    def _no_such_output(self, blk, w, r) -> Finding:
+        src = self.graph.blocks[w.src]
+        n = 0 if src.kind == "Output" else len(r.outs)
+        return Finding("port.missing", ERROR, blk.id, f"{blk.name} is wired from output {w.src_port + 1} of "
+                       f"{src.name}, which has {n} output{'s' if n != 1 else ''}", w.dst_port, (w.src_port + 1, n))
 
     def _input(self, blk, s) -> Result | None:
         if self.ports is None:
@@ -272,7 +294,8 @@ class GraphInference:
             shape = self.ports[k]
         return Result((), (shape,), Cost(), ONE, ONE)
 
-    def _resolve(self, blk) -> dict:
+    def resolved_settings(self, blk) -> dict:
+        """``blk``'s settings with motif parameter references replaced by this run's values."""
         s = blk.settings
         if not any(type(v) is dict for v in s.values()):
             return s
@@ -313,7 +336,7 @@ class GraphInference:
             rf = (rf[0] + (run.rf[0] - 1) * jump[0], rf[1] + (run.rf[1] - 1) * jump[1])
             jump = (jump[0] * run.jump[0], jump[1] * run.jump[1])
         cost = Cost(*(v * repeat for v in run.cost)) if repeat > 1 else run.cost
-        return Result(ins, run.outs, cost, rf, jump, run.extra)
+        return Result(ins, run.outs, cost, rf, jump, run.extra, run.extra_freed)
 
 
 class Analysis:
@@ -341,11 +364,14 @@ class Analysis:
     def _on_change(self, change) -> None:
         if not change.reinfers:
             return
-        if change.motifs or any(change.dirty.keys() - {""}) or change.topology - {""}:
+        if change.motifs or (change.dirty.keys() | change.renamed.keys() | change.topology) - {""}:
             self.motif_runs.clear()
             self._dirty.update(b.id for b in self.design.of_kind("Motif"))
         self._dirty |= change.dirty.get("", set())
-        self._topology = self._topology or "" in change.topology
+        renamed = change.renamed.get("", set()) & self.design.blocks.keys()
+        if renamed:  # finding messages name blocks: the renamed ones and the blocks they feed
+            self._dirty |= renamed | {w.dst for b in renamed for w in self.design.out_wires[b]}
+        self._topology = self._topology or "" in change.topology or bool(renamed)
         self._stale = True
 
     def refresh(self) -> "Analysis":
@@ -371,11 +397,13 @@ class Analysis:
             done = [inner.results[b] for b in out_ids if inner.results.get(b)]
             rf = (max((r.rf[0] for r in done), default=1), max((r.rf[1] for r in done), default=1))
             jump = (max((r.jump[0] for r in done), default=1), max((r.jump[1] for r in done), default=1))
-            peak = max(live_profile(motif, inner.order, inner.results), default=0)
-            ends = sum(x.elements for x in ins) + sum(o.elements for o in outs if o is not None)
+            kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
+            freed = max(live_profile(motif, inner.order, inner.results), default=0)
+            ends = sum(o.elements for o in outs if o is not None)
+            ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
             cost = _add_costs(r.cost for r in inner.results.values() if r is not None)
-            run = MotifRun(outs, cost, rf, jump, max(peak - ends, 0), findings)
+            run = MotifRun(outs, cost, rf, jump, max(kept - ends, 0), freed - ends - ins_size, findings)
             self.motif_runs[key] = run
         return run
 

@@ -14,7 +14,7 @@ COLUMN, ROW = 230.0, 120.0
 def tidy_positions(graph, sweeps: int = 4) -> dict[str, tuple[float, float]]:
     """New positions for every block of ``graph`` (a design or a motif)."""
     inference = GraphInference(graph, None)
-    inference._reorder()
+    inference.reorder()
     level = inference.level
     columns: dict[int, list[str]] = {}
     for bid in inference.order:

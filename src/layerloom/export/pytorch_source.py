@@ -216,4 +216,4 @@ class _Writer:
 
 def _settings(inference, blk) -> dict:
     """The block's settings with motif parameters filled in (inside a motif)."""
-    return inference._resolve(blk) if inference.params is not None else blk.settings
+    return inference.resolved_settings(blk) if inference.params is not None else blk.settings
