@@ -124,7 +124,10 @@ def _gate(draw, d, x):
 
 def _motifs(d: Design) -> None:
     """Motifs of the random designs: a residual unit (repeatable), a two-port fork with two
-    outputs, and a motif that holds a repeated use of the residual unit."""
+    outputs, a motif that holds a use of the residual unit repeated by a parameter, a stage whose
+    kernel, padding, stride, groups and depthwise multiplier are parameters, a resampler whose
+    scale and pooled size are parameters, and a classifier head (its Linear needs C*H*W, so it is
+    written per input shape)."""
     m = d.motif("unit", width=4, channels=8)
     i = m.input("x")
     y = m.add("Pointwise", i, out_channels={"param": "width"}, bias=False)
@@ -135,23 +138,58 @@ def _motifs(d: Design) -> None:
     a, b = f.input("a"), f.input("b")
     f.add("Output", f.add("Pointwise", f.add("Concat", a, b), out_channels={"param": "out"}))
     f.add("Output", f.add("Multiply", a, b))
-    n = d.motif("nest", width=2, channels=8)
+    n = d.motif("nest", width=2, channels=8, times=2)
     i = n.input()
-    y = n.add("Motif", i, motif="unit", repeat=2, width={"param": "width"}, channels={"param": "channels"})
+    y = n.add("Motif", i, motif="unit", repeat={"param": "times"}, width={"param": "width"},
+              channels={"param": "channels"})
     n.add("Output", n.add("SiLU", y))
+    s = d.motif("stage", groups=1, out=4, kernel=3, pad=1, stride=1, mult=1)
+    i = s.input()
+    y = s.add("Conv2d", i, out_channels=_p("out"), kernel=_p("kernel"), padding=_p("pad"), stride=_p("stride"),
+              groups=_p("groups"), bias=False)
+    y = s.add("Depthwise", y, kernel=3, padding=1, multiplier=_p("mult"))
+    s.add("Output", s.add("BatchNorm2d", s.add("Concat", y, s.add("Pointwise", y, out_channels=3))))
+    r = d.motif("resample", scale=2, size=2)
+    i = r.input()
+    r.add("Output", r.add("AdaptiveAvgPool2d", r.add("Upsample", i, scale=_p("scale")), output=_p("size")))
+    c = d.motif("classifier", classes=4)
+    i = c.input()
+    c.add("Output", c.add("Linear", c.add("Flatten", c.add("AdaptiveAvgPool2d", i, output=2)),
+                          out_features=_p("classes")))
 
 
-def _use(draw, d, x):
+def _p(name: str) -> dict:
+    return {"param": name}
+
+
+MOTIFS = ("unit", "fork", "nest", "stage", "resample")
+
+
+def _use(draw, d, x, which=None):
     c = _shape(d, x)[0]
-    which = draw(st.sampled_from(["unit", "fork", "nest"]))
+    which = which or draw(st.sampled_from(MOTIFS))
     if which == "fork":
         y = d.add("Tanh", x)
         m = d.use("fork", x, y, out=draw(st.integers(1, 6)))
         return d.add("Concat", (m, 0), (m, 1))
-    return d.use(which, x, repeat=draw(st.integers(1, 3)), width=draw(st.integers(1, 6)), channels=c)
+    if which == "stage":
+        g, k = draw(st.sampled_from(_divisors(c))), draw(st.sampled_from([1, 3]))
+        return d.use("stage", x, groups=g, out=g * draw(st.integers(1, max(1, 8 // g))), kernel=k, pad=k // 2,
+                     stride=draw(st.sampled_from([1, 2])), mult=draw(st.sampled_from([1, 2])))
+    if which == "resample":
+        return d.use("resample", x, scale=draw(st.integers(1, 2)), size=draw(st.integers(1, 4)))
+    return d.use(which, x, repeat=draw(st.integers(1, 3)), width=draw(st.integers(1, 6)), channels=c,
+                 **({"times": draw(st.integers(1, 3))} if which == "nest" else {}))
 
 
-STEPS = (_conv, _pointwise, _depthwise, _transposed, _pool, _norm_act, _resize, _residual, _concat, _gate, _use)
+def _uses(draw, d, x):
+    """Two uses of one motif in a row, each with its own parameter values."""
+    which = draw(st.sampled_from(MOTIFS))
+    return _use(draw, d, _use(draw, d, x, which), which)
+
+
+STEPS = (_conv, _pointwise, _depthwise, _transposed, _pool, _norm_act, _resize, _residual, _concat, _gate,
+         _use, _use, _uses, _uses)  # motif uses drawn more often than plain blocks
 
 
 @st.composite
@@ -167,8 +205,10 @@ def designs(draw) -> Design:
         x = step(draw, d, x)
         if draw(st.integers(0, 9)) == 0:
             outputs.append(x)
-    head = draw(st.sampled_from(["none", "pool", "flatten"]))
-    if head != "none":
+    head = draw(st.sampled_from(["none", "pool", "flatten", "motif"]))
+    if head == "motif":
+        x = d.use("classifier", x, classes=draw(st.integers(1, 10)))
+    elif head != "none":
         if head == "pool":
             x = d.add("AdaptiveAvgPool2d", x)
         x = d.add("Flatten", x)

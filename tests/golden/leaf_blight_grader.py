@@ -6,9 +6,9 @@ Totals: 81,845 weights (learned parameters) and 61,607,168 MACs per sample
 torch.jit.script accepts it (every kind used allows it).
 Exported on 2024-01-01.
 
-Each motif is one class per combination of input shapes and parameter values it is used with, so
-every constructor lists its layers with fixed sizes (the numbers in the ledger); a repeat x N is
-an nn.Sequential of N instances.
+Each motif is one class: its constructor takes the channel counts of its input ports and the
+motif's parameters (with the motif's defaults), each use passes its own values, and a repeat x N
+is an nn.Sequential of N instances.
 """
 
 import torch
@@ -18,23 +18,23 @@ __all__ = ["LeafBlightGrader"]
 
 
 class InvertedResidual(nn.Module):
-    """Motif 'inverted_residual' for input (N, 24, 48, 48), expand=96, width=24."""
+    """Motif 'inverted_residual' for any input channels; the comments show its first use: (N, 24, 48, 48), expand=96, width=24."""
 
-    def __init__(self):
+    def __init__(self, in_channels, expand=96, width=24):
         super().__init__()
-        self.expand = nn.Conv2d(24, 96, kernel_size=1, bias=False)
-        self.bn_1 = nn.BatchNorm2d(96)
+        self.expand = nn.Conv2d(in_channels, expand, kernel_size=1, bias=False)
+        self.bn_1 = nn.BatchNorm2d(expand)
         self.relu6_1 = nn.ReLU6()
-        self.spatial = nn.Conv2d(96, 96, kernel_size=3, padding=1, groups=96, bias=False)
-        self.bn_2 = nn.BatchNorm2d(96)
+        self.spatial = nn.Conv2d(expand, expand, kernel_size=3, padding=1, groups=expand, bias=False)
+        self.bn_2 = nn.BatchNorm2d(expand)
         self.relu6_2 = nn.ReLU6()
         self.squeeze = nn.AdaptiveAvgPool2d(1)
-        self.excite_down = nn.Conv2d(96, 8, kernel_size=1)
+        self.excite_down = nn.Conv2d(expand, 8, kernel_size=1)
         self.relu_1 = nn.ReLU()
-        self.excite_up = nn.Conv2d(8, 96, kernel_size=1)
+        self.excite_up = nn.Conv2d(8, expand, kernel_size=1)
         self.sigmoid_1 = nn.Sigmoid()
-        self.project = nn.Conv2d(96, 24, kernel_size=1, bias=False)
-        self.bn_3 = nn.BatchNorm2d(24)
+        self.project = nn.Conv2d(expand, width, kernel_size=1, bias=False)
+        self.bn_3 = nn.BatchNorm2d(width)
 
     def forward(self, x):
         expand = self.expand(x)                  # (N, 96, 48, 48)
@@ -55,44 +55,6 @@ class InvertedResidual(nn.Module):
         return residual
 
 
-class InvertedResidual_2(nn.Module):
-    """Motif 'inverted_residual' for input (N, 40, 24, 24), expand=160, width=40."""
-
-    def __init__(self):
-        super().__init__()
-        self.expand = nn.Conv2d(40, 160, kernel_size=1, bias=False)
-        self.bn_1 = nn.BatchNorm2d(160)
-        self.relu6_1 = nn.ReLU6()
-        self.spatial = nn.Conv2d(160, 160, kernel_size=3, padding=1, groups=160, bias=False)
-        self.bn_2 = nn.BatchNorm2d(160)
-        self.relu6_2 = nn.ReLU6()
-        self.squeeze = nn.AdaptiveAvgPool2d(1)
-        self.excite_down = nn.Conv2d(160, 8, kernel_size=1)
-        self.relu_1 = nn.ReLU()
-        self.excite_up = nn.Conv2d(8, 160, kernel_size=1)
-        self.sigmoid_1 = nn.Sigmoid()
-        self.project = nn.Conv2d(160, 40, kernel_size=1, bias=False)
-        self.bn_3 = nn.BatchNorm2d(40)
-
-    def forward(self, x):
-        expand = self.expand(x)                  # (N, 160, 24, 24)
-        bn_1 = self.bn_1(expand)                 # (N, 160, 24, 24)
-        relu6_1 = self.relu6_1(bn_1)             # (N, 160, 24, 24)
-        spatial = self.spatial(relu6_1)          # (N, 160, 24, 24)
-        bn_2 = self.bn_2(spatial)                # (N, 160, 24, 24)
-        relu6_2 = self.relu6_2(bn_2)             # (N, 160, 24, 24)
-        squeeze = self.squeeze(relu6_2)          # (N, 160, 1, 1)
-        excite_down = self.excite_down(squeeze)  # (N, 8, 1, 1)
-        relu_1 = self.relu_1(excite_down)        # (N, 8, 1, 1)
-        excite_up = self.excite_up(relu_1)       # (N, 160, 1, 1)
-        sigmoid_1 = self.sigmoid_1(excite_up)    # (N, 160, 1, 1)
-        gate = relu6_2 * sigmoid_1               # (N, 160, 24, 24)
-        project = self.project(gate)             # (N, 40, 24, 24)
-        bn_3 = self.bn_3(project)                # (N, 40, 24, 24)
-        residual = bn_3 + x                      # (N, 40, 24, 24)
-        return residual
-
-
 class LeafBlightGrader(nn.Module):
     """The design 'leaf-blight-grader' (15 blocks)."""
 
@@ -103,10 +65,10 @@ class LeafBlightGrader(nn.Module):
         self.relu6_1 = nn.ReLU6()
         self.reduce_1 = nn.Conv2d(16, 16, kernel_size=3, stride=2, padding=1, groups=16, bias=False)
         self.widen_1 = nn.Conv2d(16, 24, kernel_size=1, bias=False)
-        self.stage_1 = nn.Sequential(*[InvertedResidual() for _ in range(2)])
+        self.stage_1 = nn.Sequential(*[InvertedResidual(in_channels=24, expand=96, width=24) for _ in range(2)])
         self.reduce_2 = nn.Conv2d(24, 24, kernel_size=3, stride=2, padding=1, groups=24, bias=False)
         self.widen_2 = nn.Conv2d(24, 40, kernel_size=1, bias=False)
-        self.stage_2 = nn.Sequential(*[InvertedResidual_2() for _ in range(3)])
+        self.stage_2 = nn.Sequential(*[InvertedResidual(in_channels=40, expand=160, width=40) for _ in range(3)])
         self.head = nn.Conv2d(40, 256, kernel_size=1, bias=False)
         self.pool_1 = nn.AdaptiveAvgPool2d(1)
         self.flatten_1 = nn.Flatten(1)

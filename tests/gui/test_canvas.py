@@ -13,7 +13,7 @@ from PySide6.QtGui import QWheelEvent, QContextMenuEvent, QDragEnterEvent, QDrag
 from PySide6.QtTest import QTest
 from PySide6.QtWidgets import QApplication
 
-from layerloom.core import edits
+from layerloom.core import edits, units
 from layerloom.core.design import Design
 from layerloom.core.fileformat import dumps, load
 from layerloom.core.graph import Wire
@@ -375,8 +375,9 @@ def test_samples_open_with_one_card_per_block(qtbot, sample, tmp_path):
     assert set(scene.blocks) == set(d.blocks) and set(scene.wires) == set(d.wires)
     errors = {f.block for f in d.findings() if f.severity == "error"}
     assert {b for b, i in scene.blocks.items() if i.state.status == "error"} == errors
-    for b in d.of_kind("Motif"):  # a motif instance shows its motif's name and × N
+    for b in d.of_kind("Motif"):  # a motif instance shows its motif's name, × N and the MACs of all its repeats
         assert scene.blocks[b.id].state.detail == f"{b.settings['motif']} × {b.settings['repeat']}"
+        assert scene.blocks[b.id].state.cost == f"{units.count(d.analysis().result(b.id).cost.macs)} MACs"
     shot(view, f"sample_{sample}")
     view.resetTransform()
     view.center_on(min(errors) if errors else next(iter(d.blocks)))

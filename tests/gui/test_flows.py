@@ -8,7 +8,7 @@ from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QDragEnterEvent, QDropEvent, QKeySequence
 from PySide6.QtWidgets import QApplication
 
-from test_window_files import SAMPLES, open_window
+from test_window_files import SAMPLES, open_window, sample_copy
 from test_window_panels import type_into
 
 SHOTS = Path(__file__).resolve().parents[1] / "screenshots"
@@ -111,7 +111,7 @@ def test_screenshots_of_the_sample_designs(qtbot, tmp_path):
     conv = next(b for b in design.blocks.values() if b.kind in ("Conv2d", "Pointwise"))
     window.document.select([conv.id])
     shoot(window, "leaf_blight_grader_conv_selected")
-    window.files.open_path(SAMPLES / "shelf_gap_counter_clash.loom")
+    window.files.open_path(sample_copy(tmp_path, "shelf_gap_counter_clash.loom"))
     window.shelf.show_findings()
     tree = window.shelf.findings.tree
     tree.setCurrentItem(tree.topLevelItem(0))

@@ -3,6 +3,7 @@ broken file, closing with unsaved changes, recent files, export, window layout k
 
 Questions to the user go through a scripted stand-in for :class:`layerloom.gui.files.Prompts`.
 """
+import shutil
 from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt
@@ -20,6 +21,7 @@ class ScriptedPrompts:
     def __init__(self, save_answer="cancel", recover=True, open_choice=None, save_choice=None):
         self.save_answer, self.recover = save_answer, recover
         self.open_choice, self.save_choice = open_choice, save_choice
+        self.names: list[str] = []  # answers to ask_name, in order (then the suggested name)
         self.asked: list[tuple[str, str]] = []
 
     def ask_save_changes(self, name):
@@ -40,9 +42,24 @@ class ScriptedPrompts:
     def error(self, title, text):
         self.asked.append((title, text))
 
+    def ask_name(self, title, label, suggested):
+        self.asked.append((title, label))
+        return self.names.pop(0) if self.names else suggested
+
+
+def sample_copy(tmp_path, name: str) -> Path:
+    """A copy of a sample in the test's folder, so autosaves and saves never land in samples/."""
+    folder = tmp_path / "designs"
+    folder.mkdir(exist_ok=True)
+    target = folder / name
+    shutil.copyfile(SAMPLES / name, target)
+    return target
+
 
 def open_window(qtbot, tmp_path, files=(), prompts=None):
+    """A main window on ``files`` (samples are opened from copies in ``tmp_path``)."""
     prompts = prompts or ScriptedPrompts()
+    files = [sample_copy(tmp_path, Path(f).name) if Path(f).parent == SAMPLES else f for f in files]
     settings = QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat)
     window = MainWindow(list(map(str, files)), prompts=prompts, settings=settings, scratch_dir=tmp_path / "scratch")
     qtbot.addWidget(window)
@@ -182,7 +199,7 @@ def test_export_refuses_a_design_with_errors_and_writes_a_clean_one(qtbot, tmp_p
     title, text = prompts.asked[-1]
     assert title == "Not exported" and "join.channels" in text
     assert window.shelf.currentWidget() is window.shelf.findings
-    window.files.open_path(SAMPLES / "leaf_blight_grader.loom")
+    window.files.open_path(sample_copy(tmp_path, "leaf_blight_grader.loom"))
     prompts.save_choice = tmp_path / "grader.py"
     window.findChild(QAction, "export_module").trigger()
     source = (tmp_path / "grader.py").read_text(encoding="utf-8")

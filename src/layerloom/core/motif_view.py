@@ -107,14 +107,17 @@ def first_use(design, name: str) -> tuple[str, ...] | None:
 
 
 def inner_inference(design, name: str, use: tuple[str, ...] | None = None) -> MotifView:
-    """Motif ``name`` inferred as in ``use`` (instance ids, outermost first; by default its
-    :func:`first_use`). Without a use that still leads to it, its inputs are unknown."""
+    """Motif ``name`` inferred as in ``use`` (instance ids, outermost first) or, when that is not
+    given or no longer leads to it, as in its :func:`first_use`. With no use, its inputs are unknown."""
     motif = design.motifs[name]
-    if use is None:
-        use = first_use(design, name) or ()
-    reached = follow(design, use) if use else None
-    if reached is not None and reached[0].graph is motif:
-        return MotifView(reached[0], tuple(use), reached[1])
+
+    def through(chain) -> MotifView | None:
+        reached = follow(design, chain) if chain else None
+        return MotifView(reached[0], tuple(chain), reached[1]) if reached and reached[0].graph is motif else None
+
+    view = (through(use) if use else None) or through(first_use(design, name))
+    if view is not None:
+        return view
     inference = GraphInference(motif, design.analysis(), (), dict(motif.params), (name,))
     inference.run()
     return MotifView(inference, (), ())

@@ -6,6 +6,11 @@ padding, a check box for on/off, a list for choices). An accepted change is one 
 reason under its field and the field goes back to the value the block keeps. Fields are set from
 the model with their signals blocked, so nothing echoes back. Below the fields: in-channels and
 shapes from the wires (read-only) and the block's weights and MACs (for the whole batch).
+
+Inside an open motif the panel edits the motif's blocks (a change applies to every use; shapes and
+costs are those of the use the canvas shows). Each whole-number setting there has a **param…**
+button that exposes it as a motif parameter (:func:`layerloom.core.motif_ops.expose`); an exposed
+field shows the parameter's name, and typing a number in it fixes the value again.
 """
 from __future__ import annotations
 
@@ -13,16 +18,19 @@ import re
 from collections import Counter
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QFormLayout, QFrame, QLabel, QLineEdit, QScrollArea,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QFormLayout, QFrame, QHBoxLayout, QLabel, QLineEdit,
+                               QScrollArea, QToolButton, QVBoxLayout, QWidget)
 
-from layerloom.core import edits, units
+from layerloom.core import edits, motif_ops, units
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import Setting, SettingError
 from layerloom.gui import theme
 from layerloom.gui.document import Document
+from layerloom.gui.files import Prompts
 
 _SPLIT = re.compile(r"\s*[×xX*,\s]\s*")
+WHOLE_NUMBER_TYPES = ("int", "pair", "padding")  # settings that can hold one whole number, so can be parameters
+EXPOSED_STYLE = f"color: {theme.ACCENT.name()}; font-style: italic;"
 
 
 def entry_value(setting: Setting, text: str):
@@ -62,10 +70,12 @@ def value_text(value) -> str:
 
 
 class Field:
-    """One setting's widget and the inline message under it."""
+    """One setting's widget (with a **param…** button when ``expose`` is given) and the inline
+    message under it. ``host`` is what goes into the form."""
 
-    def __init__(self, setting: Setting, commit):
+    def __init__(self, setting: Setting, commit, expose=None):
         self.setting = setting
+        self.params: set[str] = set()  # parameter names of the open motif, read as references when typed
         t = setting.type
         if t == "bool":
             self.widget = QCheckBox(setting.label)
@@ -76,19 +86,50 @@ class Field:
             self.widget.activated.connect(lambda i: commit(self, self.widget.itemText(i)))
         else:
             self.widget = QLineEdit()
-            self.widget.editingFinished.connect(lambda: commit(self, entry_value(setting, self.widget.text())))
+            self.widget.editingFinished.connect(lambda: commit(self, self.typed()))
         self.widget.setObjectName(f"setting_{setting.key}")
         self.widget.setToolTip(setting.help)
+        self.host, self.expose_button = self.widget, None
+        if expose is not None:
+            self.expose_button = QToolButton()
+            self.expose_button.setText("param…")
+            self.expose_button.setObjectName(f"expose_{setting.key}")
+            self.expose_button.clicked.connect(lambda: expose(self))
+            self.host = QWidget()
+            row = QHBoxLayout(self.host)
+            row.setContentsMargins(0, 0, 0, 0)
+            row.setSpacing(4)
+            row.addWidget(self.widget, 1)
+            row.addWidget(self.expose_button)
         self.message = QLabel()
         self.message.setObjectName("field_message")
         self.message.setWordWrap(True)
         self.message.hide()
 
+    def typed(self):
+        """The line edit's text as a value: a parameter reference if it names one, else a number or pair."""
+        text = self.widget.text().strip()
+        return {"param": text} if text in self.params else entry_value(self.setting, text)
+
     def show_value(self, value) -> None:
-        """Set the widget from the model without emitting anything."""
+        """Set the widget from the model without emitting anything; a motif parameter shows its name."""
         w = self.widget
         w.blockSignals(True)
-        if isinstance(w, QCheckBox):
+        param = value.get("param") if isinstance(value, dict) else None
+        if isinstance(w, QLineEdit):
+            w.setStyleSheet(EXPOSED_STYLE if param else "")
+            w.setToolTip(f"motif parameter {param}: each instance sets it; type a number to fix it here"
+                         if param else self.setting.help)
+        if self.expose_button is not None:
+            self.expose_button.setEnabled(param is None and isinstance(value, int) and not isinstance(value, bool))
+            self.expose_button.setToolTip(
+                f"already the motif parameter {param}" if param else
+                "Expose as a motif parameter: every instance can set its own value" if self.expose_button.isEnabled()
+                else "only a single whole number can be a motif parameter")
+        if param is not None and isinstance(w, QLineEdit):
+            w.setText(param)
+            w.setCursorPosition(0)
+        elif isinstance(w, QCheckBox):
             w.setChecked(bool(value))
         elif isinstance(w, QComboBox):
             w.setCurrentIndex(max(w.findText(str(value)), 0))
@@ -111,6 +152,7 @@ class BlockSettings(QWidget):
         self.block_id: str | None = None
         self.fields: dict[str, Field] = {}
         self._kind_shown: tuple | None = None
+        self.ask_name = Prompts(self).ask_name  # (title, label, suggested) → a name or None; the window sets its own
 
         self.heading = QLabel()
         self.heading.setObjectName("panel_heading")
@@ -171,14 +213,14 @@ class BlockSettings(QWidget):
         self._follow_selection(self.document.selection)
 
     def _on_change(self, change) -> None:
-        if self.block_id is not None and self.block_id not in self.document.design.blocks:
+        if self.block_id is not None and self.block_id not in self.document.graph.blocks:
             self.block_id = None
         self.refresh()
 
     def refresh(self) -> None:
         """Show the selected block (or the summary of several) as the model has it now."""
-        design = self.document.design
-        editing = self.block_id is not None
+        graph = self.document.graph
+        editing = self.block_id is not None and self.block_id in graph.blocks
         for w in (self.name_edit, self.form_host):
             w.setVisible(editing)
         if not editing:
@@ -186,24 +228,30 @@ class BlockSettings(QWidget):
             self.name_message.hide()
             self._show_summary(self.document.selection)
             return
-        b = design.blocks[self.block_id]
+        b = graph.blocks[self.block_id]
         kind = KINDS[b.kind]
-        self.heading.setText(kind.title)
+        self.heading.setText(kind.title + (f" in motif {graph.key}" if graph.key else ""))
         self.name_edit.blockSignals(True)
         self.name_edit.setText(b.name)
         self.name_edit.blockSignals(False)
         specs = self._specs(b)
-        shape_key = (self.block_id, tuple(s.key for s in specs), tuple(s.choices for s in specs))
+        shape_key = (graph.key, self.block_id, tuple(s.key for s in specs), tuple(s.choices for s in specs))
         if shape_key != self._kind_shown:
             self._build_fields(specs)
             self._kind_shown = shape_key
+        params = set(self.document.design.motifs[graph.key].params) if graph.key else set()
         for key, field in self.fields.items():
+            if field.expose_button is not None:
+                field.params = params
             field.show_value(b.settings.get(key, field.setting.default))
         self.facts.setText(self._facts(b))
 
     def _specs(self, block) -> list[Setting]:
-        """The settings shown for ``block``; a motif instance shows its motif, repeat and parameters."""
+        """The settings shown for ``block``; a motif instance shows its motif, repeat and parameters;
+        a motif's input port shows none (its shape comes from the instance's wire)."""
         kind = KINDS[block.kind]
+        if block.kind == "Input" and self.document.graph_key:
+            return []
         if block.kind != "Motif":
             return list(kind.settings)
         motif = self.document.design.motifs.get(block.settings["motif"])
@@ -216,13 +264,14 @@ class BlockSettings(QWidget):
 
     def _build_fields(self, specs: list[Setting]) -> None:
         self._clear_fields()
+        inside = bool(self.document.graph_key)
         for spec in specs:
-            field = Field(spec, self._commit)
+            field = Field(spec, self._commit, self._expose if inside and spec.type in WHOLE_NUMBER_TYPES else None)
             self.fields[spec.key] = field
             if spec.type == "bool":
-                self.form.addRow("", field.widget)
+                self.form.addRow("", field.host)
             else:
-                self.form.addRow(spec.label, field.widget)
+                self.form.addRow(spec.label, field.host)
             self.form.addRow("", field.message)
 
     def _clear_fields(self) -> None:
@@ -236,11 +285,11 @@ class BlockSettings(QWidget):
         self.fields = {}
 
     def _facts(self, block) -> str:
-        design = self.document.design
-        analysis = design.analysis()
-        wires = sorted(design.in_wires[block.id], key=lambda w: w.dst_port)
-        ins = [analysis.shape(w.src, w.src_port) for w in wires]
-        result = analysis.result(block.id)
+        doc = self.document
+        design, graph, results = doc.design, doc.graph, doc.results()
+        wires = sorted(graph.in_wires[block.id], key=lambda w: w.dst_port)
+        ins = [_shape(results, w.src, w.src_port) for w in wires]
+        result = results.get(block.id)
         rows = []
         if KINDS[block.kind].input_count(block.settings) or wires:
             chans = ", ".join(str(s[0]) if s is not None else "?" for s in ins) or "not wired"
@@ -250,49 +299,91 @@ class BlockSettings(QWidget):
         rows.append(("Output shape", ", ".join(str(s) for s in outs) if outs else "unknown"))
         if result is not None:
             rows.append(("Weights", units.count(result.cost.weights)))
-            rows.append(("MACs", f"{units.count(result.cost.macs * design.batch)} {_muted(f'(batch {design.batch})')}"))
-        for f in analysis.findings_of(block.id):
+            rows.append(("MACs", f"{units.count(result.cost.macs * design.batch)} {_muted(_per(doc, design))}"))
+        for f in doc.findings_by_block().get(block.id, []):
             rows.append((f.severity.capitalize(), _escape(f.message)))
         return _table(rows)
 
     def _show_summary(self, ids: list) -> None:
-        design = self.document.design
+        doc = self.document
+        design, graph = doc.design, doc.graph
         if not ids:
+            if graph.key:
+                self._show_motif(graph)
+                return
             self.heading.setText("Block settings")
             self.facts.setText(_muted("Select a block on the canvas to see and change its settings."))
             return
         self.heading.setText(f"{len(ids)} blocks selected")
-        kinds = Counter(KINDS[design.blocks[b].kind].title for b in ids)
-        analysis = design.analysis()
-        results = [analysis.result(b) for b in ids]
+        kinds = Counter(KINDS[graph.blocks[b].kind].title for b in ids)
+        shown = doc.results()
+        results = [shown.get(b) for b in ids]
         weights = sum(r.cost.weights for r in results if r is not None)
         macs = sum(r.cost.macs for r in results if r is not None) * design.batch
         rows = [("Kinds", ", ".join(f"{n} × {k}" for k, n in kinds.most_common())),
                 ("Weights", units.count(weights)),
-                ("MACs", f"{units.count(macs)} {_muted(f'(batch {design.batch})')}")]
+                ("MACs", f"{units.count(macs)} {_muted(_per(doc, design))}")]
+        self.facts.setText(_table(rows))
+
+    def _show_motif(self, motif) -> None:
+        """With nothing selected inside a motif: its parameters and uses."""
+        design = self.document.design
+        self.heading.setText(f"Motif {motif.name}")
+        uses = [b.name for g in (design, *design.motifs.values()) for b in g.of_kind("Motif")
+                if b.settings.get("motif") == motif.name]
+        params = ", ".join(f"{p} = {v}" for p, v in motif.params.items()) or "none yet"
+        rows = [("Parameters", _escape(params) + " " + _muted("(defaults)")),
+                ("Uses", _escape(", ".join(uses)) if uses else "none"),
+                ("", _muted("A change here applies to every use. Select a block to edit it; "
+                            "“param…” beside a whole number makes it a parameter."))]
         self.facts.setText(_table(rows))
 
     # ----- widgets → model
     def _commit(self, field: Field, value) -> None:
-        design, bid = self.document.design, self.block_id
+        doc, bid = self.document, self.block_id
+        design, graph = doc.design, doc.graph
         if bid is None:
             return
         key = field.setting.key
-        old = design.blocks[bid].settings.get(key)
+        old = graph.blocks[bid].settings.get(key)
         try:
-            edit = edits.set_settings(design, bid, {key: value})
-            if edit.ops[0].value == design.blocks[bid].settings:
+            edit = edits.set_settings(design, bid, {key: value}, graph=graph.key)
+            if edit.ops[0].value == graph.blocks[bid].settings:
                 field.show_value(old)  # same value, perhaps typed differently: show it as stored
                 return
-            self.document.apply(edit)
+            doc.apply(edit)
         except (SettingError, edits.EditError) as e:
-            field.say(f"{e} — kept {value_text(old)}")
+            field.say(f"{e} — kept {_value_or_param(old)}")
             field.show_value(old)
             return
         field.say("")
 
+    def _expose(self, field: Field) -> None:
+        """Ask for a parameter name and make ``field``'s setting that parameter of the open motif."""
+        doc, bid = self.document, self.block_id
+        motif = doc.design.motifs.get(doc.graph_key)
+        if motif is None or bid is None:
+            return
+        block, key = motif.blocks[bid], field.setting.key
+        value = block.settings.get(key)
+        suggested, n = key, 1
+        while suggested in motif.params and motif.params[suggested] != value:
+            n += 1
+            suggested = f"{key}_{n}"
+        name = self.ask_name("Expose as motif parameter",
+                             f"Parameter of motif {motif.name} for {block.name}'s {field.setting.label.lower()} "
+                             f"(now {value_text(value)}):", suggested)
+        if name is None:
+            return
+        try:
+            doc.apply(motif_ops.expose(doc.design, motif.name, bid, key, name))
+        except edits.EditError as e:
+            field.say(str(e))
+            return
+        field.say("")
+
     def _commit_name(self) -> None:
-        design, bid = self.document.design, self.block_id
+        design, bid = self.document.graph, self.block_id
         if bid is None:
             return
         name = self.name_edit.text().strip()
@@ -307,6 +398,20 @@ class BlockSettings(QWidget):
         self.name_message.hide()
         if name != block.name:
             self.document.apply(edits.rename(design, bid, name))
+
+
+def _shape(results: dict, block_id: str, port: int):
+    r = results.get(block_id)
+    return r.outs[port] if r is not None and port < len(r.outs) else None
+
+
+def _per(doc: Document, design) -> str:
+    """What a MAC figure covers: the batch, and inside a motif one use of it."""
+    return f"(one use, batch {design.batch})" if doc.graph_key else f"(batch {design.batch})"
+
+
+def _value_or_param(value) -> str:
+    return value["param"] if isinstance(value, dict) else value_text(value)
 
 
 def _muted(text: str) -> str:

@@ -84,6 +84,7 @@ class DepthLedger(QWidget):
         top.addWidget(more)
 
         self.axis = UnitAxis("left")
+        self.axis.setWidth(60)  # room for labels such as "281 K" or "3.91 MiB" (narrower ones are hidden)
         self.plot = pg.PlotWidget(axisItems={"left": self.axis}, background=theme.CARD)
         self.plot.setMenuEnabled(False)
         self.plot.showGrid(x=True, y=True, alpha=0.15)
@@ -137,6 +138,7 @@ class DepthLedger(QWidget):
         document.changed.connect(self._changed)
         document.replaced.connect(self.refresh)
         document.selection_changed.connect(self._mark_selection)
+        document.graph_changed.connect(lambda: self._mark_selection(self.document.selection))
         self.refresh()
 
     # ----- model → chart
@@ -252,7 +254,8 @@ class DepthLedger(QWidget):
             f"{base['name']}, pinned {base.get('pinned', '')}" if base else "no baseline pinned")
 
     def _mark_selection(self, ids) -> None:
-        index = self._index(ids[0]) if ids else None
+        inside = self.document.graph_key != ""  # the selection is of blocks inside a motif, not on this chart
+        index = self._index(ids[0]) if ids and not inside else None
         self.marker.setVisible(index is not None)
         if index is not None:
             self.marker.setValue(index + 1)

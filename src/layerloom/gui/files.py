@@ -15,7 +15,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
-from PySide6.QtWidgets import QFileDialog, QMessageBox
+from PySide6.QtWidgets import QFileDialog, QInputDialog, QMessageBox
 
 from layerloom.core import fileformat
 from layerloom.core.fileformat import LoomFileError
@@ -61,6 +61,11 @@ class Prompts:
 
     def error(self, title: str, text: str) -> None:
         QMessageBox.warning(self.parent, title, text)
+
+    def ask_name(self, title: str, label: str, suggested: str) -> str | None:
+        """A name typed by the user (a new motif's, a motif parameter's), or None if cancelled."""
+        text, ok = QInputDialog.getText(self.parent, title, label, text=suggested)
+        return text.strip() if ok and text.strip() else None
 
 
 class FileKeeper(QObject):

@@ -1,8 +1,10 @@
 """Findings: the design's errors, warnings and notes as a list, with their mends one click away.
 
 Errors come first (the core's order). Choosing a finding selects its block and asks the window to
-centre it (``block_chosen``); **Mend** applies the first mend offered for it, the arrow beside it
-lists the others. A mend is one undoable edit. The list follows ``document.changed``.
+centre it (``block_chosen``); a finding inside a motif names the instance and the inner block
+(``stage_2 › conv_a``), and choosing it opens the motif, as in that use, at the inner block.
+**Mend** applies the first mend offered for it, the arrow beside it lists the others. A mend is one
+undoable edit. The list always shows the whole design's findings and follows ``document.changed``.
 """
 from __future__ import annotations
 
@@ -90,8 +92,7 @@ class FindingsList(QWidget):
         self.tree.clear()
         keep = None
         for f in self.findings:
-            block = design.blocks.get(f.block)
-            item = QTreeWidgetItem([f.severity, f.code, block.name if block else "—", f.message])
+            item = QTreeWidgetItem([f.severity, f.code, " › ".join(self._where(f)[1]) or "—", f.message])
             item.setForeground(0, theme.SEVERITY_COLOURS[f.severity])
             item.setToolTip(3, f.message)
             self.tree.addTopLevelItem(item)
@@ -136,10 +137,38 @@ class FindingsList(QWidget):
         if item is not None:
             self._choose(item)
 
+    def _where(self, f: Finding) -> tuple[list[str], list[str]]:
+        """Motif names entered and block names passed on the way to ``f``'s block."""
+        graph, keys, names = self.document.design, [], []
+        for bid in (f.block, *f.path):
+            block = graph.blocks.get(bid)
+            if block is None:
+                break
+            names.append(block.name)
+            motif = self.document.design.motifs.get(block.settings.get("motif")) if block.kind == "Motif" else None
+            if motif is None:
+                break
+            keys.append(motif.name)
+            graph = motif
+        return keys[:len(f.path)], names
+
     def _choose(self, item: QTreeWidgetItem) -> None:
+        """Show the finding's block on the canvas: in the design, or inside the motif (as in the use
+        the finding comes from), selected and centred."""
         f = self.findings[self.tree.indexOfTopLevelItem(item)]
-        if f.block in self.document.design.blocks:
-            self.document.select([f.block])
+        doc = self.document
+        if f.path:
+            keys, _ = self._where(f)
+            if len(keys) != len(f.path):
+                return  # the motif changed since the finding was listed
+            doc.show_path(keys, use=(f.block, *f.path[:-1]), select=[f.path[-1]])
+            if f.path[-1] in doc.graph.blocks:
+                self.block_chosen.emit(f.path[-1])
+        elif f.block in doc.design.blocks:
+            if doc.graph_key:
+                doc.show_path([], select=[f.block])
+            else:
+                doc.select([f.block])
             self.block_chosen.emit(f.block)
 
     def apply_mend(self, index: int) -> None:

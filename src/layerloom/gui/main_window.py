@@ -1,6 +1,6 @@
-"""The editor window: the canvas in the middle, the shelf (Parts, Findings) along its bottom edge,
-Block settings in the right column (a dock area the Depth ledger will join), menus, and a status
-bar with the design's totals.
+"""The editor window: the canvas in the middle (with the trail above it while a motif is open), the
+shelf (Parts, Findings) along its bottom edge, Block settings and the Depth ledger in the right
+column, menus, and a status bar with the design's totals.
 
 ``launch(files)`` is what ``layerloom [FILE]`` runs.
 """
@@ -9,9 +9,9 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from PySide6.QtCore import QSettings, Qt
+from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QIcon, QKeySequence
-from PySide6.QtWidgets import QApplication, QDockWidget, QLabel, QMainWindow, QPushButton
+from PySide6.QtWidgets import QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QVBoxLayout, QWidget
 
 from layerloom.core import units
 from layerloom.core.ledger import Ledger
@@ -19,6 +19,7 @@ from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
+from layerloom.gui.graph_trail import GraphTrail
 from layerloom.gui.shelf import Shelf
 from layerloom.resources import resource
 
@@ -51,9 +52,17 @@ class MainWindow(QMainWindow):
         self.files = FileKeeper(self.document, self.prompts, self.settings, scratch_dir, parent=self)
 
         self.canvas = CanvasView(self.document)
-        self.setCentralWidget(self.canvas)
+        self.trail = GraphTrail(self.document)
+        middle = QWidget()
+        column = QVBoxLayout(middle)
+        column.setContentsMargins(0, 0, 0, 0)
+        column.setSpacing(0)
+        column.addWidget(self.trail)
+        column.addWidget(self.canvas, 1)
+        self.setCentralWidget(middle)
         self.shelf = Shelf(self.document)
         self.block_settings = BlockSettings(self.document)
+        self.canvas.ask_name = self.block_settings.ask_name = self.prompts.ask_name
         self.shelf_dock = self._dock("Shelf", "shelf_dock", self.shelf, Qt.DockWidgetArea.BottomDockWidgetArea)
         self.shelf_dock.setTitleBarWidget(QLabel())  # the tabs say what it is
         self.settings_dock = self._dock("Block settings", "block_settings_dock", self.block_settings,
@@ -64,7 +73,7 @@ class MainWindow(QMainWindow):
         self.ledger_dock = self._dock("Depth ledger", "depth_ledger_dock", self.depth_ledger,
                                       Qt.DockWidgetArea.RightDockWidgetArea)
         self.splitDockWidget(self.settings_dock, self.ledger_dock, Qt.Orientation.Vertical)
-        self.depth_ledger.block_activated.connect(self.canvas.center_on)
+        self.depth_ledger.block_activated.connect(self._show_design_block)
         self.setCorner(Qt.Corner.BottomRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
         self.setDockNestingEnabled(True)
         self.resize(1400, 860)  # first run; a saved geometry replaces it below
@@ -82,10 +91,10 @@ class MainWindow(QMainWindow):
 
         self.restoreGeometry(self.settings.value("window/geometry", b""))
         self._first_run = not self.restoreState(self.settings.value("window/state", b""))
+        self._shown_once = False
         self.files.start(list(files))
         self._refresh_title()
         self._refresh_totals()
-        self.canvas.fit_all()
 
     def _dock(self, title: str, name: str, widget, area) -> QDockWidget:
         dock = QDockWidget(title, self)
@@ -139,6 +148,12 @@ class MainWindow(QMainWindow):
         edit.addSeparator()
         self._action(edit, "Quick add…", lambda: c.quick_add(), "Ctrl+K", name="quick_add")
 
+        motif = bar.addMenu("&Motif")
+        self._action(motif, "Make motif…", lambda: c.make_motif(), "Ctrl+G", name="make_motif")
+        self._action(motif, "Open motif", lambda: c.open_motif(), "Ctrl+E", name="open_motif")
+        self._action(motif, "Expand motif", c.expand_motif, "Ctrl+Shift+G", name="expand_motif")
+        self._action(motif, "Back", lambda: self.document.back(), "Alt+Left", name="motif_back")
+
         view = bar.addMenu("&View")
         self._action(view, "Zoom in", c.zoom_in, Key.ZoomIn)
         self._action(view, "Zoom out", c.zoom_out, Key.ZoomOut)
@@ -171,6 +186,12 @@ class MainWindow(QMainWindow):
             self.files.forget(path)
             return
         self.files.open_path(path)
+
+    def _show_design_block(self, block_id: str) -> None:
+        """Centre a block of the design (the Depth ledger always charts the design), leaving any motif."""
+        if self.document.graph_key:
+            self.document.show_path([], select=[block_id])
+        self.canvas.center_on(block_id)
 
     def edit_budget(self) -> None:
         from layerloom.gui.budget_dialog import BudgetDialog
@@ -266,6 +287,9 @@ class MainWindow(QMainWindow):
             column = self.settings_dock.height() + self.ledger_dock.height()
             self.resizeDocks([self.settings_dock, self.ledger_dock],
                              [int(column * SETTINGS_SHARE), int(column * (1 - SETTINGS_SHARE))], Qt.Orientation.Vertical)
+        if not self._shown_once:  # the canvas has its final size only now
+            self._shown_once = True
+            QTimer.singleShot(0, self.canvas.show_start)
 
     # ----- closing
     def closeEvent(self, event) -> None:

@@ -1,9 +1,10 @@
-"""The shelf along the canvas's bottom edge: Parts (tiles of block kinds, grouped by family, to drag
-up onto the canvas) and Findings as its second tab.
+"""The shelf along the canvas's bottom edge: Parts (tiles of block kinds, grouped by family, and a
+Motifs group, to drag up onto the canvas) and Findings as its second tab.
 
-A tile carries its kind's name as MIME type ``KIND_MIME`` (UTF-8), which the canvas accepts as
-a drop. The filter box keeps the tiles whose title, kind name or family contains the typed text
-(``1x1`` also finds ``1×1``).
+A kind's tile carries its name as MIME type ``KIND_MIME`` (UTF-8); a motif's tile carries
+``library:<key>`` (a motif of the library, defined in the design when dropped) or ``design:<name>``
+(a motif the open design defines) as ``MOTIF_MIME``. The canvas accepts both as drops. The filter
+box keeps the tiles whose title, name or family contains the typed text (``1x1`` also finds ``1×1``).
 """
 from __future__ import annotations
 
@@ -13,9 +14,11 @@ from PySide6.QtWidgets import (QApplication, QFrame, QGridLayout, QHBoxLayout, Q
                                QTabWidget, QVBoxLayout, QWidget)
 
 from layerloom.core.kinds import KINDS
+from layerloom.core.motif_library import LIBRARY
 from layerloom.gui import theme
-from layerloom.gui.canvas import KIND_MIME
+from layerloom.gui.canvas import KIND_MIME, MOTIF_MIME
 from layerloom.gui.canvas.glyphs import glyph_for
+from layerloom.core.design import Design
 from layerloom.gui.document import Document
 from layerloom.gui.findings_list import FindingsList
 
@@ -56,35 +59,33 @@ class GlyphMark(QWidget):
         p.drawPath(glyph_for(self.kind, float(GLYPH_PX)))
 
 
-class PartTile(QFrame):
-    """One kind on the shelf: its glyph and title; drag it onto the canvas."""
+class DragTile(QFrame):
+    """A tile with a glyph and a title that is dragged onto the canvas carrying :meth:`mime_data`."""
 
-    def __init__(self, kind: str, parent=None):
+    mime_type = ""
+
+    def __init__(self, glyph: str, title: str, payload: str, words: tuple[str, ...], tip: str, parent=None):
         super().__init__(parent)
-        self.kind = kind
-        spec = KINDS[kind]
+        self.payload, self._words = payload, words
         self.setObjectName("part_tile")
         self.setCursor(Qt.CursorShape.OpenHandCursor)
-        example = spec.summary(spec.defaults)
-        self.setToolTip(f"{spec.title} ({kind})" + (f" — {example} by default" if example else "")
-                        + "\nDrag onto the canvas to add it.")
+        self.setToolTip(tip + "\nDrag onto the canvas to add it.")
         row = QHBoxLayout(self)
         row.setContentsMargins(6, 3, 10, 3)
         row.setSpacing(6)
-        row.addWidget(GlyphMark(kind))
-        self.label = QLabel(spec.title)
+        row.addWidget(GlyphMark(glyph))
+        self.label = QLabel(title)
         row.addWidget(self.label)
         self._press: QPoint | None = None
 
     def matches(self, text: str) -> bool:
-        spec = KINDS[self.kind]
         needle = _fold(text.strip())
-        return any(needle in _fold(s) for s in (spec.title, self.kind, spec.family))
+        return any(needle in _fold(s) for s in (self.label.text(), *self._words))
 
     def mime_data(self) -> QMimeData:
         data = QMimeData()
-        data.setData(KIND_MIME, self.kind.encode("utf-8"))
-        data.setText(self.kind)
+        data.setData(self.mime_type, self.payload.encode("utf-8"))
+        data.setText(self.payload)
         return data
 
     def mousePressEvent(self, event) -> None:
@@ -113,14 +114,48 @@ class PartTile(QFrame):
         super().mouseReleaseEvent(event)
 
 
+class PartTile(DragTile):
+    """One kind on the shelf: its glyph and title."""
+
+    mime_type = KIND_MIME
+
+    def __init__(self, kind: str, parent=None):
+        spec = KINDS[kind]
+        example = spec.summary(spec.defaults)
+        super().__init__(kind, spec.title, kind, (kind, spec.family),
+                         f"{spec.title} ({kind})" + (f" — {example} by default" if example else ""), parent)
+        self.kind = kind
+
+
+class MotifTile(DragTile):
+    """A motif on the shelf: ``library:<key>`` for a library motif, ``design:<name>`` for one of the design's."""
+
+    mime_type = MOTIF_MIME
+
+    def __init__(self, payload: str, title: str, tip: str, parent=None):
+        source, _, name = payload.partition(":")
+        super().__init__("Motif", title, payload, (name, "motif", source), tip, parent)
+
+
+def motif_tiles(design) -> list[MotifTile]:
+    """Tiles for the library's motifs, then for the motifs ``design`` defines."""
+    tiles = [MotifTile(f"library:{m.key}", m.title, f"{m.title} — {m.description}.\nParameters: "
+                       + ", ".join(f"{p} = {v}" for p, v in m.params.items())) for m in LIBRARY]
+    for name, motif in design.motifs.items():
+        params = ", ".join(f"{p} = {v}" for p, v in motif.params.items()) or "none"
+        tiles.append(MotifTile(f"design:{name}", name, f"Motif {name} of this design (parameters: {params})"))
+    return tiles
+
+
 class FamilyGroup(QWidget):
     """A family's heading above its tiles, laid out in columns of :data:`TILE_ROWS`."""
 
-    def __init__(self, family: str, kinds: list[str], parent=None):
+    def __init__(self, family: str, tiles: list[DragTile], parent=None):
         super().__init__(parent)
         heading = QLabel(family)
         heading.setObjectName("family_heading")
-        self.tiles = [PartTile(k) for k in kinds]
+        self.tiles = tiles
+        self._shown_text = ""
         self.grid = QGridLayout()
         self.grid.setSpacing(4)
         col = QVBoxLayout(self)
@@ -131,8 +166,18 @@ class FamilyGroup(QWidget):
         col.addStretch(1)
         self.show_matching("")
 
+    def set_tiles(self, tiles: list[DragTile]) -> None:
+        """Replace the tiles (the Motifs group, when the design's motifs change)."""
+        for tile in self.tiles:
+            self.grid.removeWidget(tile)
+            tile.hide()
+            tile.deleteLater()
+        self.tiles = tiles
+        self.show_matching(self._shown_text)
+
     def show_matching(self, text: str) -> int:
         """Show only tiles matching ``text``, packed without gaps; returns how many are shown."""
+        self._shown_text = text
         for tile in self.tiles:
             self.grid.removeWidget(tile)
         shown = [t for t in self.tiles if t.matches(text)]
@@ -145,10 +190,12 @@ class FamilyGroup(QWidget):
 
 
 class PartsPanel(QWidget):
-    """The Parts tab: a filter box and the family groups side by side."""
+    """The Parts tab: a filter box, the family groups side by side, and the Motifs group (the
+    library's and, with a ``document``, the open design's)."""
 
-    def __init__(self, parent=None):
+    def __init__(self, document: Document | None = None, parent=None):
         super().__init__(parent)
+        self.document = document
         self.filter = QLineEdit()
         self.filter.setObjectName("parts_filter")
         self.filter.setPlaceholderText("Filter parts (e.g. 1x1, pool, add)")
@@ -158,7 +205,8 @@ class PartsPanel(QWidget):
         self.empty = QLabel("No part matches.")
         self.empty.setObjectName("muted")
         self.empty.hide()
-        self.groups = [FamilyGroup(f, kinds) for f, kinds in families().items()]
+        self.groups = [FamilyGroup(f, [PartTile(k) for k in kinds]) for f, kinds in families().items()]
+        self.motif_group = FamilyGroup("Motifs", motif_tiles(document.design if document else Design()))
 
         strip = QWidget()
         strip.setObjectName("parts_strip")
@@ -166,9 +214,10 @@ class PartsPanel(QWidget):
         row.setContentsMargins(0, 0, 0, 0)
         for g in self.groups:
             row.addWidget(g)
+        row.addWidget(self.motif_group)
         row.addWidget(self.empty)
         row.addStretch(1)
-        scroll = QScrollArea()
+        self.scroll = scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
         scroll.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
@@ -178,13 +227,25 @@ class PartsPanel(QWidget):
         col.setContentsMargins(6, 6, 6, 4)
         col.addWidget(self.filter)
         col.addWidget(scroll, 1)
+        if document is not None:
+            document.replaced.connect(self.refresh_motifs)
+            document.changed.connect(lambda change: change.motifs and self.refresh_motifs())
 
     @property
     def tiles(self) -> dict[str, PartTile]:
         return {t.kind: t for g in self.groups for t in g.tiles}
 
+    @property
+    def motif_tiles(self) -> dict[str, MotifTile]:
+        """Motif tiles by payload (``library:<key>``, ``design:<name>``)."""
+        return {t.payload: t for t in self.motif_group.tiles}
+
+    def refresh_motifs(self) -> None:
+        self.motif_group.set_tiles(motif_tiles(self.document.design))
+        self.apply_filter(self.filter.text())
+
     def apply_filter(self, text: str) -> None:
-        shown = sum(g.show_matching(text) for g in self.groups)
+        shown = sum(g.show_matching(text) for g in (*self.groups, self.motif_group))
         self.empty.setVisible(shown == 0)
 
 
@@ -195,7 +256,7 @@ class Shelf(QTabWidget):
         super().__init__(parent)
         self.setObjectName("shelf")
         self.setDocumentMode(True)
-        self.parts = PartsPanel()
+        self.parts = PartsPanel(document)
         self.findings = FindingsList(document)
         self.addTab(self.parts, "Parts")
         self.addTab(self.findings, "Findings")

@@ -82,3 +82,4 @@ SCENE_MARGIN = 1500.0  # free space kept around the blocks
 TEXT_MIN_DETAIL = 0.3  # below this zoom level text is not drawn
 SHAPE_MIN_DETAIL = 0.08  # below this, cards are plain rectangles and wires hairlines
 ZOOM_MIN, ZOOM_MAX = 0.04, 4.0
+READABLE_ZOOM = 0.6  # a design opens at no smaller zoom than this (Fit to view may go further)

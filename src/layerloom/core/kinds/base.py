@@ -10,7 +10,10 @@ kind of the same name). Its rules see shapes and settings, never tensors:
   receptive-field pass uses, or ``None`` when the block looks at one position at a time.
 - ``summary(s)`` → settings in trade notation (``3×3 /2 · 128``).
 - ``torch_layer(s, ins, out)`` → source of the ``nn.Module`` that computes the block, or ``None``
-  for a block computed by an expression (``torch_expr``).
+  for a block computed by an expression (``torch_expr``). It reads only the channel count (item 0)
+  of ``ins`` and ``out``; in a motif class written for any input channels, those counts and the
+  settings that are motif parameters are source expressions (:mod:`layerloom.export.channels`),
+  so an emitter writes them with ``repr``/f-strings and combines them only with ``+`` and ``*``.
 """
 from __future__ import annotations
 

@@ -78,7 +78,7 @@ class Conv2d(Kind):
     def torch_layer(self, s, ins, out):
         return (f"nn.Conv2d({ins[0][0]}, {s['out_channels']}, "
                 + kw(kernel_size=s["kernel"], stride=_nd(s["stride"]), padding=_nd(s["padding"], 0),
-                     dilation=_nd(s["dilation"]), groups=s["groups"] if s["groups"] > 1 else None,
+                     dilation=_nd(s["dilation"]), groups=_nd(s["groups"]),
                      bias=None if s["bias"] else False) + ")")
 
 
@@ -111,7 +111,7 @@ class Pointwise(Kind):
 
     def torch_layer(self, s, ins, out):
         return (f"nn.Conv2d({ins[0][0]}, {s['out_channels']}, kernel_size=1"
-                + _tail(kw(stride=_nd(s["stride"]), groups=s["groups"] if s["groups"] > 1 else None,
+                + _tail(kw(stride=_nd(s["stride"]), groups=_nd(s["groups"]),
                            bias=None if s["bias"] else False)) + ")")
 
 
@@ -195,7 +195,7 @@ class ConvTranspose2d(Kind):
     def torch_layer(self, s, ins, out):
         return (f"nn.ConvTranspose2d({ins[0][0]}, {s['out_channels']}, "
                 + kw(kernel_size=s["kernel"], stride=s["stride"], padding=_nd(s["padding"], 0),
-                     output_padding=_nd(s["output_padding"], 0), groups=s["groups"] if s["groups"] > 1 else None,
+                     output_padding=_nd(s["output_padding"], 0), groups=_nd(s["groups"]),
                      bias=None if s["bias"] else False, dilation=_nd(s["dilation"])) + ")")
 
 

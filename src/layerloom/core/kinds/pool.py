@@ -83,8 +83,7 @@ class AdaptiveAvgPool2d(Pool):
         return "global" if pair(s["output"]) == (1, 1) else f"to {pair_text(s['output'])}"
 
     def torch_layer(self, s, ins, out):
-        o = s["output"]
-        return f"nn.AdaptiveAvgPool2d({o if isinstance(o, int) else tuple(o)})"
+        return f"nn.AdaptiveAvgPool2d({s['output']!r})"
 
 
 @register
@@ -109,4 +108,6 @@ class Upsample(Kind):
 
     def torch_layer(self, s, ins, out):
         extra = ", align_corners=False" if s["mode"] == "bilinear" else ""
-        return f"nn.Upsample(scale_factor={float(s['scale'])!r}, mode={s['mode']!r}{extra})"
+        f = s["scale"]
+        factor = repr(float(f)) if isinstance(f, int) else f"float({f!r})"  # f: a number or a motif parameter
+        return f"nn.Upsample(scale_factor={factor}, mode={s['mode']!r}{extra})"

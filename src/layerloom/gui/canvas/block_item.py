@@ -1,4 +1,5 @@
 """A block on the canvas: a plain card with notched ports, a glyph, two lines of text and a cost bar.
+A motif instance's card has a second edge behind it and a third line: the MACs of all its repeats.
 
 The item holds only what it draws (texts, port counts, status, cost share); the canvas scene sets
 that state from the design and its analysis. ``paint`` only draws.
@@ -18,12 +19,14 @@ from layerloom.gui.canvas.glyphs import glyph_for
 W, H = theme.CARD_WIDTH, theme.CARD_HEIGHT
 TITLE_LEFT = theme.PADDING + theme.GLYPH_SIZE + 6.0
 TITLE_BASE, DETAIL_BASE = 21.0, 39.0
+MOTIF_BASES = (18.0, 32.0, 45.0)  # title, detail and cost (with the shape) lines of a motif instance's card
 _MARGIN = theme.STATUS_OUTLINE + 4.0
 BOUNDS = QRectF(-_MARGIN, -_MARGIN, W + 2 * _MARGIN, H + 2 * _MARGIN)
 CARD_RECT = QRectF(0, 0, W, H)
 SELECTED = QStyle.StateFlag.State_Selected
 ELIDE = Qt.TextElideMode.ElideRight
 PORT_REACH = 9.0  # how near (scene pixels) a pointer must come to a notch to take hold of it
+STACK_OFFSET = 4.0  # a motif instance shows a second card edge this far behind it: blocks inside
 
 
 class CardState(NamedTuple):
@@ -37,6 +40,7 @@ class CardState(NamedTuple):
     n_out: int
     status: str  # "", "note", "warning" or "error"
     cost_share: float  # 0..1, rounded to a pixel of the bar
+    cost: str = ""  # a third line (a motif instance's MACs), or none
 
 
 def port_y(index: int, count: int) -> float:
@@ -95,7 +99,7 @@ class BlockItem(QGraphicsItem):
         self.block_id = block_id
         self._on_moved = on_moved
         self.state = state
-        self._title = self._detail = ""
+        self._title = self._detail = self._cost = ""
         self._shape_row = DETAIL_BASE
         self._texts()
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsMovable | QGraphicsItem.GraphicsItemFlag.ItemIsSelectable
@@ -118,6 +122,12 @@ class BlockItem(QGraphicsItem):
         room = W - TITLE_LEFT - theme.PADDING
         shape_w = advance("figure", s.shape) + 8 if s.shape else 0
         detail_room = W - 2 * theme.PADDING - theme.NOTCH_DEPTH
+        if s.cost:  # three lines: the title, the detail, the cost beside the shape
+            self._shape_row = MOTIF_BASES[2]
+            self._title = metrics("title").elidedText(s.title, ELIDE, room)
+            self._detail = metrics("detail").elidedText(s.detail, ELIDE, detail_room)
+            self._cost = metrics("figure").elidedText(s.cost, ELIDE, detail_room - shape_w)
+            return
         title_w = advance("title", s.title)
         detail_w = advance("detail", s.detail)
         self._shape_row = DETAIL_BASE
@@ -187,6 +197,9 @@ class BlockItem(QGraphicsItem):
             painter.setBrush(Qt.BrushStyle.NoBrush)
             painter.drawRoundedRect(QRectF(-3.5, -3.5, W + 7, H + 7), theme.CARD_RADIUS + 3, theme.CARD_RADIUS + 3)
         painter.setBrush(QBrush(theme.CARD))
+        if s.kind == "Motif":
+            painter.setPen(QPen(theme.CARD_EDGE, theme.OUTLINE))
+            painter.drawRoundedRect(CARD_RECT.translated(STACK_OFFSET, STACK_OFFSET), theme.CARD_RADIUS, theme.CARD_RADIUS)
         painter.setPen(QPen(status, theme.STATUS_OUTLINE) if status is not None else QPen(theme.CARD_EDGE, theme.OUTLINE))
         painter.drawPath(path)
         if s.cost_share > 0:
@@ -205,12 +218,16 @@ class BlockItem(QGraphicsItem):
         painter.setBrush(Qt.BrushStyle.NoBrush)
         painter.drawPath(glyph_for(s.kind, theme.GLYPH_SIZE))
         painter.restore()
+        title_base, detail_base, cost_base = MOTIF_BASES if s.cost else (TITLE_BASE, DETAIL_BASE, 0.0)
         painter.setPen(theme.TEXT)
         painter.setFont(font("title"))
-        painter.drawText(QPointF(TITLE_LEFT, TITLE_BASE), self._title)
+        painter.drawText(QPointF(TITLE_LEFT, title_base), self._title)
         painter.setPen(theme.TEXT_MUTED)
         painter.setFont(font("detail"))
-        painter.drawText(QPointF(theme.PADDING, DETAIL_BASE), self._detail)
+        painter.drawText(QPointF(theme.PADDING, detail_base), self._detail)
+        if s.cost:
+            painter.setFont(font("figure"))
+            painter.drawText(QPointF(theme.PADDING, cost_base), self._cost)
         if s.shape:
             painter.setPen(theme.TEXT)
             painter.setFont(font("figure"))

@@ -1,16 +1,21 @@
-"""The canvas scene: one item per block and per wire of the design, kept in step with the document.
+"""The canvas scene: one item per block and per wire of the graph shown (the design or an open
+motif), kept in step with the document.
 
 It observes :class:`~layerloom.gui.document.Document`: a change adds, removes or updates only the
-affected items; a move or rename never touches inference; after a change that re-infers, shapes,
-badges and cost bars are read from ``design.analysis()`` and only items whose picture differs are
-updated. Wires attached to a moving block are marked dirty and rebuilt once per event-loop pass.
+affected items of the graph shown; a move or rename never touches inference; after a change that
+re-infers, shapes, badges and cost bars are read from the document's results for the graph shown
+(inside a motif: as in one use of it) and only items whose picture differs are updated. Opening
+another graph rebuilds the items. Wires attached to a moving block are marked dirty and rebuilt
+once per event-loop pass.
 """
 from __future__ import annotations
+
+from dataclasses import replace
 
 from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
 from PySide6.QtWidgets import QGraphicsScene
 
-from layerloom.core import edits
+from layerloom.core import edits, units
 from layerloom.core.findings import SEVERITY_RANK
 from layerloom.core.kinds import KINDS
 from layerloom.core.mends import mends_for
@@ -35,18 +40,42 @@ def port_counts(design, block) -> tuple[int, int]:
     return kind.input_count(block.settings), kind.output_count(block.settings)
 
 
-def detail_text(block) -> str:
-    """The card's second line: settings in trade notation (a motif instance: motif × repeat)."""
+class ParamValue(int):
+    """A motif parameter's default that prints as the parameter's name (``3×3 · width``)."""
+
+    def __new__(cls, value: int, name: str):
+        obj = super().__new__(cls, value)
+        obj.name = name
+        return obj
+
+    def __format__(self, spec: str) -> str:
+        return self.name
+
+    def __str__(self) -> str:
+        return self.name
+
+
+def detail_text(block, motif=None) -> str:
+    """The card's second line: settings in trade notation (a motif instance: motif × repeat). Inside
+    ``motif``, its ports read ``input port 1`` / ``output port 1`` and parameters show by name."""
     kind = KINDS.get(block.kind)
     if block.kind == "Motif":
         return f"{block.settings.get('motif', '?')} × {block.settings.get('repeat', 1)}"
     if kind is None:
         return block.kind
-    return kind.summary(block.settings) or kind.title
+    settings = block.settings
+    if motif is not None:
+        if block.kind in ("Input", "Output"):
+            ins, outs = motif.ports()
+            side = ins if block.kind == "Input" else outs
+            return f"{block.kind.lower()} port {side.index(block.id) + 1}"
+        settings = {k: ParamValue(motif.params.get(v["param"], 1), v["param"]) if isinstance(v, dict) else v
+                    for k, v in settings.items()}
+    return kind.summary(settings) or kind.title
 
 
 class CanvasScene(QGraphicsScene):
-    """Items for a document's design. ``refused`` carries the message of an edit the core refused."""
+    """Items for the graph a document shows. ``refused`` carries the message of an edit the core refused."""
 
     refused = Signal(str)
 
@@ -64,6 +93,7 @@ class CanvasScene(QGraphicsScene):
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
         document.replaced.connect(self.rebuild)
+        document.graph_changed.connect(self.rebuild)
         document.selection_changed.connect(self._select_from_document)
         self.selectionChanged.connect(self._select_to_document)
         self.rebuild()
@@ -72,9 +102,14 @@ class CanvasScene(QGraphicsScene):
     def design(self):
         return self.document.design
 
-    # ----- whole design
+    @property
+    def graph(self):
+        """The graph shown: the design or the open motif."""
+        return self.document.graph
+
+    # ----- whole graph
     def rebuild(self) -> None:
-        """Drop every item and make them again for the document's design (a load or a new design)."""
+        """Drop every item and make them again for the graph shown (a load, a new design, another graph)."""
         self._syncing_selection = True
         try:
             self.clear()
@@ -88,7 +123,7 @@ class CanvasScene(QGraphicsScene):
         self.setSceneRect(self._wanted_rect())
 
     def _wanted_rect(self) -> QRectF:
-        pos = [b.position for b in self.design.blocks.values()]
+        pos = [b.position for b in self.graph.blocks.values()]
         if not pos:
             return QRectF(-theme.SCENE_MARGIN, -theme.SCENE_MARGIN, 2 * theme.SCENE_MARGIN, 2 * theme.SCENE_MARGIN)
         xs, ys = [p[0] for p in pos], [p[1] for p in pos]
@@ -104,70 +139,76 @@ class CanvasScene(QGraphicsScene):
 
     # ----- following the model
     def _on_changed(self, change) -> None:
-        if "" in change.topology:
+        key, graph = self.document.graph_key, self.graph
+        if key in change.topology:
             self._sync_topology()
-        for bid in change.moved.get("", ()):
+        for bid in change.moved.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
-                x, y = self.design.blocks[bid].position
+                x, y = graph.blocks[bid].position
                 if item.pos() != QPointF(x, y):
                     item.setPos(x, y)
-        for bid in change.renamed.get("", ()):
+        for bid in change.renamed.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
-                item.set_state(item.state._replace(title=self.design.blocks[bid].name))
+                item.set_state(item.state._replace(title=graph.blocks[bid].name))
         if change.reinfers:
             self._refresh_results()
         self.flush_wires()
-        if change.moved or change.topology:
+        if key in change.moved or key in change.topology:
             self.grow_to_fit()
 
     def _sync_topology(self) -> None:
         design = self.design
-        for bid in [b for b in self.blocks if b not in design.blocks]:
+        graph = self.graph
+        for bid in [b for b in self.blocks if b not in graph.blocks]:
             self.removeItem(self.blocks.pop(bid))
             self.badges.pop(bid, None)
             self._findings.pop(bid, None)
-        for w in [w for w in self.wires if w not in design.wires]:
+        for w in [w for w in self.wires if w not in graph.wires]:
             self.removeItem(self.wires.pop(w))
             self._dirty_wires.discard(w)
-        for bid, block in design.blocks.items():
+        for bid, block in graph.blocks.items():
             if bid not in self.blocks:
                 n_in, n_out = port_counts(design, block)
-                item = BlockItem(bid, CardState(block.kind, block.name, detail_text(block), "", n_in, n_out, "", 0.0),
+                detail = detail_text(block, graph if graph.key else None)
+                item = BlockItem(bid, CardState(block.kind, block.name, detail, "", n_in, n_out, "", 0.0),
                                  self._block_moved)
                 item.setPos(*block.position)
                 self.blocks[bid] = item
                 self.addItem(item)
-        for w in design.wires:
+        for w in graph.wires:
             if w not in self.wires:
                 item = self.wires[w] = WireItem(w)
                 self.addItem(item)
                 self._dirty_wires.add(w)
 
     def _refresh_results(self) -> None:
-        """Read shapes, findings and MAC shares from the analysis; update items whose picture differs."""
-        design = self.design
-        analysis = design.analysis().refresh()
-        results = analysis.top.results
+        """Read shapes, findings and MAC shares for the graph shown; update items whose picture differs.
+        Inside a motif the MAC shares are of one use of it."""
+        design, graph = self.design, self.graph
+        motif = graph if graph.key else None
+        results = self.document.results()
         total = sum(r.cost.macs for r in results.values() if r is not None)
         self._total_macs = total
-        by_block: dict[str, list] = {}
-        for f in analysis.all_findings():
-            by_block.setdefault(f.block, []).append(f)
+        by_block = self.document.findings_by_block()
         for bid, item in self.blocks.items():
-            block = design.blocks[bid]
+            block = graph.blocks[bid]
             r = results.get(bid)
             old = item.state
             n_in, n_out = port_counts(design, block)
             found = tuple(by_block.get(bid, ()))
             status = found[0].severity if found else ""
             share = round(r.cost.macs / total, 2) if (r is not None and total) else 0.0
-            detail = detail_text(block)
+            detail = detail_text(block, motif)
             shape = str(r.outs[0]) if r is not None and r.outs else ""
-            state = CardState(block.kind, block.name, detail, "" if shape == detail else shape, n_in, n_out, status, share)
+            cost = "" if block.kind != "Motif" else f"{units.count(r.cost.macs)} MACs" if r is not None else "MACs unknown"
+            state = CardState(block.kind, block.name, detail, "" if shape == detail else shape, n_in, n_out, status,
+                              share, cost)
             if (n_in, n_out) != (old.n_in, old.n_out):
-                self._dirty_wires.update(design.in_wires[bid] + design.out_wires[bid])
+                self._dirty_wires.update(graph.in_wires[bid] + graph.out_wires[bid])
+            if block.kind == "Motif":
+                item.setToolTip(self._instance_tip(block, r))
             item.set_state(state)
             if found != self._findings.get(bid, ()):
                 self._set_badges(item, found)
@@ -177,6 +218,15 @@ class CanvasScene(QGraphicsScene):
             if carried != item.carried:
                 item.carried = carried
                 self._dirty_wires.add(w)
+
+    def _instance_tip(self, block, r) -> str:
+        motif, repeat = block.settings.get("motif", "?"), block.settings.get("repeat", 1)
+        lines = [f"{block.name}: motif {motif} × {repeat}"]
+        if r is not None:
+            lines.append(f"all {repeat} use{'s' if repeat != 1 else ''}: {units.count(r.cost.weights)} weights, "
+                         f"{units.count(r.cost.macs)} MACs per sample")
+        lines.append("Double-click to open the motif")
+        return "\n".join(lines)
 
     def _set_badges(self, item: BlockItem, found: tuple) -> None:
         for badge in self.badges.pop(item.block_id, []):
@@ -193,7 +243,7 @@ class CanvasScene(QGraphicsScene):
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
-        g = self.design
+        g = self.graph
         ws = g.in_wires.get(block_id)
         if ws is None:
             return
@@ -250,6 +300,13 @@ class CanvasScene(QGraphicsScene):
         return True
 
     def mends(self, finding):
+        """Mends for a finding on a card; inside a motif it is first seen from the design, through
+        the use shown (a motif with no use has no shapes to mend by)."""
+        view = self.document.motif_view()
+        if view is not None:
+            if not view.use:
+                return []
+            finding = replace(finding, block=view.use[0], path=(*view.use[1:], finding.block))
         return mends_for(self.design, finding)
 
     def apply_mend(self, mend) -> bool:

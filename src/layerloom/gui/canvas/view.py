@@ -1,16 +1,20 @@
-"""The canvas view: shows a document's design left → right and turns mouse and keys into edits.
+"""The canvas view: shows the document's graph (the design or an open motif) left → right and turns
+mouse and keys into edits.
 
 Every change goes through ``document.apply`` as one undoable edit (add, wire, move, delete, paste,
-rename, Tidy, mends). Pan with the middle button or space + drag, zoom about the cursor with the
-wheel. Quick add and rename in place are plain widgets over the view, never scene items.
+rename, Tidy, mends, make motif, expand). Pan with the middle button or space + drag, zoom about
+the cursor with the wheel. Double-click a motif instance to open its motif (each graph keeps its
+own zoom and scroll). Quick add and rename in place are plain widgets over the view, never scene
+items.
 """
 from __future__ import annotations
 
 from PySide6.QtCore import QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette
-from PySide6.QtWidgets import QGraphicsView
+from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QTransform
+from PySide6.QtWidgets import QGraphicsView, QMenu
 
-from layerloom.core import clipboard, edits
+from layerloom.core import clipboard, edits, motif_ops
+from layerloom.core.motif_library import BY_KEY, library_edit
 from layerloom.core.graph import Wire
 from layerloom.core.kinds import KINDS
 from layerloom.core.layout import COLUMN, tidy_positions
@@ -21,9 +25,12 @@ from layerloom.gui.canvas.name_editor import NameEditor
 from layerloom.gui.canvas.quick_add import QuickAdd
 from layerloom.gui.canvas.scene import CanvasScene
 from layerloom.gui.canvas.wire_item import DraftWire, WireItem
+from layerloom.gui.files import Prompts
 
 KIND_MIME = "application/x-layerloom-kind"
 """Drag-and-drop type of a kind from Parts; the data is the kind's name in UTF-8."""
+MOTIF_MIME = "application/x-layerloom-motif"
+"""Drag-and-drop type of a motif from Parts; the data is ``library:<key>`` or ``design:<name>`` in UTF-8."""
 
 PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down and right
 ZOOM_STEP = 1.25
@@ -66,7 +73,11 @@ class CanvasView(QGraphicsView):
         self._names = NameEditor(self)
         self._names.committed.connect(self._rename)
         self._paste_text, self._paste_count = "", 0
-        document.replaced.connect(self.fit_all)
+        self._looks: dict[str, tuple[QTransform, QPointF]] = {}  # graph key → zoom and centre last seen
+        self._shown_key = document.graph_key
+        self.ask_name = Prompts(self).ask_name  # (title, label, suggested) → a name or None; the window sets its own
+        document.replaced.connect(self._replaced)
+        document.graph_changed.connect(self._graph_shown)
 
     # ----- looking around
     def _zoom(self, factor: float) -> None:
@@ -99,6 +110,35 @@ class CanvasView(QGraphicsView):
             self.resetTransform()
             self.scale(1.25, 1.25)
             self.centerOn(rect.center())
+
+    def show_start(self) -> None:
+        """How a design first appears: all of it when that is readable, else its input end (data
+        flows left → right) at the smallest zoom whose text can still be read."""
+        self.fit_all()
+        rect = self.canvas_scene.itemsBoundingRect()
+        if rect.isEmpty() or self.transform().m11() >= theme.READABLE_ZOOM:
+            return
+        self.resetTransform()
+        self.scale(theme.READABLE_ZOOM, theme.READABLE_ZOOM)
+        half_width = self.viewport().width() / theme.READABLE_ZOOM / 2
+        self.centerOn(rect.left() - 40 + half_width, rect.center().y())
+
+    def _replaced(self) -> None:
+        self._looks.clear()
+        self._shown_key = self.document.graph_key
+        self.show_start()
+
+    def _graph_shown(self) -> None:
+        """Keep the zoom and scroll of the graph left; show the new one as it was last seen, or all of it."""
+        centre = self.mapToScene(self.viewport().rect().center())
+        self._looks[self._shown_key] = (self.transform(), centre)
+        self._shown_key = key = self.document.graph_key
+        look = self._looks.get(key)
+        if look is None:
+            self.fit_all()
+        else:
+            self.setTransform(look[0])
+            self.centerOn(look[1])
 
     def center_on(self, block_id: str) -> None:
         item = self.canvas_scene.blocks.get(block_id)
@@ -201,16 +241,43 @@ class CanvasView(QGraphicsView):
             self._commit_moves()
 
     def mouseDoubleClickEvent(self, event) -> None:
+        """Open a motif instance's motif; rename any other block in place."""
         item = self._block_at(event.position().toPoint())
         if item is not None and event.button() == Qt.MouseButton.LeftButton:
-            self._start_rename(item)
+            if item.state.kind == "Motif":
+                self.open_motif(item.block_id)
+            else:
+                self._start_rename(item)
             event.accept()
             return
         super().mouseDoubleClickEvent(event)
 
+    def contextMenuEvent(self, event) -> None:
+        """A badge offers its mends; elsewhere the motif commands for the selection."""
+        super().contextMenuEvent(event)
+        if event.isAccepted():
+            return
+        item = self._block_at(event.pos())
+        if item is not None and item.block_id not in self.document.selection:
+            self.document.select([item.block_id])
+        self.motif_menu().exec(event.globalPos())
+        event.accept()
+
+    def motif_menu(self) -> QMenu:
+        """Make motif, Open motif, Expand and Back, each enabled when it applies."""
+        menu = QMenu(self)
+        instance = self._selected_instance()
+        for text, slot, enabled in (("Make motif…", self.make_motif, bool(self.document.selection)),
+                                    ("Open motif", self.open_motif, instance is not None),
+                                    ("Expand motif", self.expand_motif, instance is not None),
+                                    ("Back", self.document.back, len(self.document.trail) > 1)):
+            menu.addAction(text, slot).setEnabled(enabled)
+        return menu
+
     def _commit_moves(self) -> None:
         """One undoable move for every selected block the drag left somewhere new."""
-        blocks = self.document.design.blocks
+        graph = self.document.graph
+        blocks = graph.blocks
         moved = {}
         for item in self.canvas_scene.selectedItems():
             if isinstance(item, BlockItem) and item.block_id in blocks:
@@ -218,7 +285,7 @@ class CanvasView(QGraphicsView):
                 if p != tuple(blocks[item.block_id].position):
                     moved[item.block_id] = p
         if moved:
-            self.canvas_scene.apply(edits.move(self.document.design, moved))
+            self.canvas_scene.apply(edits.move(graph, moved))
 
     # ----- wiring by dragging from an output notch
     def _start_wire(self, item: BlockItem, port: int) -> None:
@@ -239,7 +306,7 @@ class CanvasView(QGraphicsView):
             return
         local = target.mapFromScene(self.mapToScene(view_pos))
         hit = target.port_at(local)
-        design = self.document.design
+        design = self.document.graph
         if hit is not None and hit[0] == "in":
             port = hit[1]
         else:
@@ -291,25 +358,34 @@ class CanvasView(QGraphicsView):
         super().keyReleaseEvent(event)
 
     # ----- adding blocks
+    @staticmethod
+    def _ours(event) -> bool:
+        data = event.mimeData()
+        return data.hasFormat(KIND_MIME) or data.hasFormat(MOTIF_MIME)
+
     def dragEnterEvent(self, event) -> None:
-        if event.mimeData().hasFormat(KIND_MIME):
+        if self._ours(event):
             event.acceptProposedAction()
         else:
             super().dragEnterEvent(event)
 
     def dragMoveEvent(self, event) -> None:
-        if event.mimeData().hasFormat(KIND_MIME):
+        if self._ours(event):
             event.acceptProposedAction()
         else:
             super().dragMoveEvent(event)
 
     def dropEvent(self, event) -> None:
-        if not event.mimeData().hasFormat(KIND_MIME):
+        data = event.mimeData()
+        if not self._ours(event):
             super().dropEvent(event)
             return
-        kind = bytes(event.mimeData().data(KIND_MIME)).decode("utf-8")
         event.acceptProposedAction()
-        self.add_kind(kind, self.mapToScene(event.position().toPoint()))
+        spot = self.mapToScene(event.position().toPoint())
+        if data.hasFormat(MOTIF_MIME):
+            self.add_motif(bytes(data.data(MOTIF_MIME)).decode("utf-8"), spot)
+        else:
+            self.add_kind(bytes(data.data(KIND_MIME)).decode("utf-8"), spot)
 
     def _selected_source(self) -> tuple[str, int] | None:
         """The one selected block's first output, if exactly one block with an output is selected."""
@@ -318,9 +394,11 @@ class CanvasView(QGraphicsView):
         return (item.block_id, 0) if item is not None and item.state.n_out else None
 
     def add_kind(self, kind: str, centre: QPointF, source: tuple[str, int] | None = None,
-                 from_selection: bool = True) -> str | None:
-        """Add a block of ``kind`` centred at scene point ``centre`` as one edit, wired from ``source``
-        (or from the one selected block when ``from_selection``); selects it and returns its id."""
+                 from_selection: bool = True, settings: dict | None = None, before: edits.Edit | None = None,
+                 name: str | None = None) -> str | None:
+        """Add a block of ``kind`` centred at scene point ``centre`` as one edit (after the operations
+        of ``before``, if given), wired from ``source`` (or from the one selected block when
+        ``from_selection``); selects it and returns its id."""
         spec = KINDS.get(kind)
         if spec is None:
             self.message.emit(f"there is no block kind {kind!r}")
@@ -329,12 +407,32 @@ class CanvasView(QGraphicsView):
         if source is None and from_selection and takes_input:
             source = self._selected_source()
         design = self.document.design
-        edit, bid = edits.add_block(design, kind, {}, position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
+        edit, bid = edits.add_block(design, kind, settings or {}, graph=self.document.graph_key, name=name,
+                                    position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
                                     inputs=[source] if source is not None and takes_input else ())
+        if before is not None:
+            edit = edits.Edit(before.label, before.ops + edit.ops)
         if self.canvas_scene.apply(edit):
             self.document.select([bid])
             return bid
         return None
+
+    def add_motif(self, payload: str, centre: QPointF) -> str | None:
+        """Add an instance of a motif from Parts: ``library:<key>`` defines the library motif in the
+        design and adds an instance of it, as one edit; ``design:<name>`` adds an instance."""
+        source, _, name = payload.partition(":")
+        design, before = self.document.design, None
+        if source == "library" and name in BY_KEY:
+            define, name = library_edit(design, name)
+            before = edits.Edit(f"Add motif {name}", define.ops)
+        elif source != "design" or name not in design.motifs:
+            self.message.emit(f"there is no motif {payload!r} to add")
+            return None
+        if name == self.document.graph_key:
+            self.message.emit(f"motif {name} cannot contain itself")
+            return None
+        return self.add_kind("Motif", centre, settings={"motif": name, "repeat": 1}, before=before,
+                             name=self.document.graph.fresh_name(name))
 
     def quick_add(self, text: str = "", at: QPoint | None = None, source: tuple[str, int] | None = None) -> None:
         """Open Quick add at the cursor (or view point ``at``); the block chosen lands there, wired
@@ -360,11 +458,11 @@ class CanvasView(QGraphicsView):
 
     # ----- selection and edits
     def select_all(self) -> None:
-        self.document.select(list(self.document.design.blocks))
+        self.document.select(list(self.document.graph.blocks))
 
     def delete_selection(self) -> None:
         """Delete the selected blocks (with their wires) and the selected wires, as one edit."""
-        design = self.document.design
+        design = self.document.graph
         ids = [i.block_id for i in self.canvas_scene.selectedItems() if isinstance(i, BlockItem)]
         gone = set(ids)
         wires = [i.wire for i in self.canvas_scene.selectedItems()
@@ -384,7 +482,7 @@ class CanvasView(QGraphicsView):
         """Copy the selected blocks and the wires among them to the clipboard as JSON text."""
         if not self.document.selection:
             return None
-        data = clipboard.copy_blocks(self.document.design, self.document.selection)
+        data = clipboard.copy_blocks(self.document.graph, self.document.selection)
         QGuiApplication.clipboard().setText(clipboard.to_text(data))
         return data
 
@@ -401,11 +499,11 @@ class CanvasView(QGraphicsView):
 
     def duplicate(self) -> None:
         if self.document.selection:
-            self._paste(clipboard.copy_blocks(self.document.design, self.document.selection), PASTE_STEP)
+            self._paste(clipboard.copy_blocks(self.document.graph, self.document.selection), PASTE_STEP)
 
     def _paste(self, data: dict, step: float) -> None:
         try:
-            edit, ids = clipboard.paste_edit(self.document.design, data, (step, step))
+            edit, ids = clipboard.paste_edit(self.document.design, data, (step, step), graph=self.document.graph_key)
         except clipboard.ClipboardError as e:
             self.message.emit(str(e))
             return
@@ -413,8 +511,8 @@ class CanvasView(QGraphicsView):
             self.document.select(ids)
 
     def tidy(self) -> None:
-        """Lay the design out left → right with Tidy, as one undoable edit, and show it all."""
-        design = self.document.design
+        """Lay the graph shown out left → right with Tidy, as one undoable edit, and show it all."""
+        design = self.document.graph
         changed = {b: p for b, p in tidy_positions(design).items() if tuple(design.blocks[b].position) != p}
         if changed:
             self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
@@ -433,12 +531,71 @@ class CanvasView(QGraphicsView):
         font = QFont(block_font("title"))
         font.setPointSizeF(max(font.pointSizeF() * self.zoom_level(), 7.0))
         self._names.setFont(font)
-        self._names.start(item.block_id, self.document.design.blocks[item.block_id].name, rect)
+        self._names.start(item.block_id, self.document.graph.blocks[item.block_id].name, rect)
 
     def _rename(self, block_id: str, name: str) -> None:
-        design = self.document.design
+        design = self.document.graph
         if block_id in design.blocks:
             self.canvas_scene.apply(edits.rename(design, block_id, name))
+
+    # ----- motifs
+    def _selected_instance(self) -> str | None:
+        sel = self.document.selection
+        graph = self.document.graph
+        return sel[0] if len(sel) == 1 and graph.blocks[sel[0]].kind == "Motif" else None
+
+    def make_motif(self, name: str | None = None) -> str | None:
+        """Turn the selected blocks into a motif and one instance of it in their place (one edit),
+        asking for the motif's name unless given; selects the instance and returns its id."""
+        doc = self.document
+        if not doc.selection:
+            self.message.emit("select the blocks to make a motif from")
+            return None
+        if name is None:
+            stem, n = "motif", 1
+            while (f"{stem}_{n}" if n > 1 else stem) in doc.design.motifs:
+                n += 1
+            name = self.ask_name("Make motif", "Name of the new motif:", stem if n == 1 else f"{stem}_{n}")
+            if name is None:
+                return None
+        try:
+            edit, instance = motif_ops.make_motif(doc.design, doc.selection, name, graph=doc.graph_key)
+        except edits.EditError as e:
+            self.message.emit(str(e))
+            return None
+        if self.canvas_scene.apply(edit):
+            doc.select([instance])
+            return instance
+        return None
+
+    def open_motif(self, block_id: str | None = None) -> None:
+        """Show the motif of instance ``block_id`` (default: the one selected instance)."""
+        block_id = block_id or self._selected_instance()
+        block = self.document.graph.blocks.get(block_id) if block_id else None
+        if block is None or block.kind != "Motif":
+            self.message.emit("select one motif instance to open its motif")
+            return
+        name = block.settings["motif"]
+        if name not in self.document.design.motifs:
+            self.message.emit(f"{block.name} uses motif {name!r}, which this design does not define")
+            return
+        self.document.open_motif(name, block_id)
+
+    def expand_motif(self) -> None:
+        """Dissolve the one selected instance into plain blocks (one edit) and select them."""
+        instance = self._selected_instance()
+        if instance is None:
+            self.message.emit("select one motif instance to expand")
+            return
+        doc = self.document
+        before = set(doc.graph.blocks)
+        try:
+            edit = motif_ops.expand(doc.design, instance, graph=doc.graph_key)
+        except edits.EditError as e:
+            self.message.emit(str(e))
+            return
+        if self.canvas_scene.apply(edit):
+            doc.select([b for b in doc.graph.blocks if b not in before])
 
     # ----- pictures
     def _picture_rect(self) -> QRectF:
