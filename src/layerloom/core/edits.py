@@ -242,7 +242,7 @@ def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str
         name = g.fresh_name(kind_stem(kind), names)
         names.add(name)
         edit, bid = add_block(design, kind, settings, graph=graph, inputs=[src], name=name,
-                              position=(ax + (bx - ax) * f, ay + (by - ay) * f + 60.0))
+                              position=(ax + (bx - ax) * f, ay + (by - ay) * f + 90.0))
         ops += edit.ops
         src = (bid, 0)
     ops.append(AddWire(graph, Wire(src[0], 0, wire.dst, wire.dst_port)))

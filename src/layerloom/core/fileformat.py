@@ -17,7 +17,7 @@ from layerloom.core.design import Design
 from layerloom.core.graph import Wire
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
-from layerloom.resources import resource
+from layerloom.resource_paths import resource
 
 FORMAT, VERSION = "layerloom-design", 1
 _validator = None

@@ -21,7 +21,7 @@ from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
 from layerloom.gui.graph_trail import GraphTrail
 from layerloom.gui.shelf import Shelf
-from layerloom.resources import resource
+from layerloom.resource_paths import resource
 
 ORGANISATION, APPLICATION = "Layerloom Workshop", "Layerloom"
 APP_ICON = "icons/layerloom.svg"
