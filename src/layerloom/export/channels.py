@@ -120,35 +120,13 @@ def substitute(value, values: dict):
     return value.substitute(values) if isinstance(value, Count) else value
 
 
-def _keep(s, ins, block):
-    return ins[0]
-
-
-def _set(s, ins, block):
-    return s["out_channels"]
-
-
-def _flatten(s, ins, block):
-    return ShapeBound(f"is built with the features of Flatten '{block}' (C*H*W, which depend on height and width)")
-
-
-RULES = {
-    **{name: _keep for name, kind in KINDS.items() if kind.family in ("Norm & activation", "Pooling & resizing")},
-    **dict.fromkeys(("Add", "Multiply", "Dropout", "Softmax", "Identity"), _keep),
-    **dict.fromkeys(("Conv2d", "Pointwise", "ConvTranspose2d"), _set),
-    "Depthwise": lambda s, ins, block: ins[0] * s["multiplier"],
-    "Concat": lambda s, ins, block: sum(ins, start=0),
-    "Linear": lambda s, ins, block: s["out_features"],
-    "Flatten": _flatten,
-}
-"""Kind → rule giving the output's channel count from the settings and the input channel counts;
-every kind but Input, Output and Motif (the export writes those itself)."""
-
-
 def out_channels(kind: str, s: dict, ins: tuple, block: str, flat_input: bool):
     """Channel count of the output of a ``kind`` block with settings ``s`` and input channel counts
-    ``ins``; ``block`` names it in a :class:`ShapeBound`. A Flatten of a flat vector
-    (``flat_input``) keeps its count."""
+    ``ins`` (the kind's own ``channels`` rule); a count that depends on height and width is a
+    :class:`ShapeBound` naming ``block``. A Flatten of a flat vector (``flat_input``) keeps its count."""
     if kind == "Flatten" and flat_input:
         return ins[0]
-    return RULES[kind](s, ins, block)
+    count = KINDS[kind].channels(s, ins)
+    if count is None:
+        return ShapeBound(f"is built with the features of {kind} '{block}' (they depend on height and width)")
+    return count

@@ -85,6 +85,12 @@ class Kind:
     def window(self, s: dict, ins: tuple[Shape, ...]):
         return None
 
+    def channels(self, s: dict, ins: tuple):
+        """Output channel count from the input channel counts ``ins`` (numbers, or expressions that
+        support ``+`` and ``*``, as the export's motif classes use); None when it depends on height
+        and width. The default keeps input 0's channels."""
+        return ins[0]
+
     def summary(self, s: dict) -> str:
         return ""
 

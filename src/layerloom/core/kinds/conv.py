@@ -71,6 +71,9 @@ class Conv2d(Kind):
     def window(self, s, ins):
         return _conv_window(s)
 
+    def channels(self, s, ins):
+        return s["out_channels"]
+
     def summary(self, s):
         g = f"g{s['groups']}" if s["groups"] > 1 else ""
         return _conv_summary(s["kernel"], s["stride"], s["out_channels"], g)
@@ -105,6 +108,9 @@ class Pointwise(Kind):
         sh, sw = pair(s["stride"])
         return 1, 1, sh, sw
 
+    def channels(self, s, ins):
+        return s["out_channels"]
+
     def summary(self, s):
         g = f"g{s['groups']}" if s["groups"] > 1 else ""
         return _conv_summary(1, s["stride"], s["out_channels"], g)
@@ -137,6 +143,9 @@ class Depthwise(Kind):
 
     def window(self, s, ins):
         return _conv_window(s)
+
+    def channels(self, s, ins):
+        return ins[0] * s["multiplier"]
 
     def summary(self, s):
         m = f"×{s['multiplier']}" if s["multiplier"] > 1 else ""
@@ -188,6 +197,9 @@ class ConvTranspose2d(Kind):
     def window(self, s, ins):
         (kh, kw_), (sh, sw) = pair(s["kernel"]), pair(s["stride"])
         return -(-kh // sh), -(-kw_ // sw), 1 / sh, 1 / sw
+
+    def channels(self, s, ins):
+        return s["out_channels"]
 
     def summary(self, s):
         return _conv_summary(s["kernel"], s["stride"], s["out_channels"], "up")

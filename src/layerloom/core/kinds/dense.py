@@ -24,6 +24,9 @@ class Flatten(Kind):
         x = ins[0]
         return (x[1], x[2], x[1], x[2]) if len(x) == 3 else None
 
+    def channels(self, s, ins):
+        return None  # C·H·W features: they depend on height and width
+
     def torch_layer(self, s, ins, out):
         return "nn.Flatten(1)"
 
@@ -52,6 +55,9 @@ class Linear(Kind):
     def cost(self, s, ins, out):
         n_in, n_out = ins[0][0], out[0]
         return Cost(n_in * n_out + (n_out if s["bias"] else 0), 0, n_in * n_out, 0)
+
+    def channels(self, s, ins):
+        return s["out_features"]
 
     def summary(self, s):
         return f"→ {s['out_features']}"

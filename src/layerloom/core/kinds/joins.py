@@ -108,6 +108,9 @@ class Concat(Join):
                            port, (f"{b[1]}×{b[2]}", f"{first[1]}×{first[2]}"))
         return Shape((sum(x[0] for x in ins), *first[1:]))
 
+    def channels(self, s, ins):
+        return sum(ins, start=0)
+
     def cost(self, s, ins, out):
         return Cost()
 
