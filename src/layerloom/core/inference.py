@@ -20,11 +20,12 @@ from typing import NamedTuple
 
 from layerloom.core.findings import ERROR, WARNING, Finding, Report, Stop, sort_findings
 from layerloom.core.kinds import KINDS, Cost
-from layerloom.core.liveness import live_profile
+from layerloom.core.liveness import Plan, live_profile
 from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
 
 ONE = (1, 1)
+_new = tuple.__new__  # builds a Result without NamedTuple's keyword handling (the hot path)
 MEMO_LIMIT = 100_000
 
 
@@ -76,6 +77,7 @@ class GraphInference:
         self.graph_findings: list[Finding] = []
         self.port_index: dict[str, int] = {}
         self.stuck: set[str] = set()  # blocks on a loop or after one: no results
+        self.plan: Plan | None = None  # liveness plan of this order (wiring only), made on demand
         self.memo = analysis.memo if analysis is not None else {}
 
     # ----- passes
@@ -136,6 +138,7 @@ class GraphInference:
                 level[b] = top
         order = [b for column in columns for b in column]
         self.order = order
+        self.plan = None
         self.level = level
         self.position = {b: i for i, b in enumerate(order)}
         for gone in set(self.results) - blocks.keys():
@@ -220,17 +223,17 @@ class GraphInference:
                 if known is None:
                     report = Report(bid, blk.name)
                     out = kind.shape(s, ins, report)
-                    known = (out, kind.cost(s, ins, out), kind.window(s, ins))
+                    known = ((out,), kind.cost(s, ins, out), kind.window(s, ins))
                     if report.found:
                         found += report.found
                     elif len(self.memo) < MEMO_LIMIT:
                         self.memo[key] = known
-                out, cost, window = known
+                outs, cost, window = known
                 if window is not None:
                     kh, kw, sh, sw = window
                     rf = (rf[0] + (kh - 1) * jump[0], rf[1] + (kw - 1) * jump[1])
                     jump = (jump[0] * sh, jump[1] * sw)
-                result = Result(ins, (out,), cost, rf, jump)
+                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0))
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
         self.results[bid] = result
@@ -356,7 +359,7 @@ class Analysis:
         self._dirty: set[str] = set()
         self._topology = True
         self._stale = True
-        self._profile: list[int] | None = None
+        self._profile = None  # live elements per step (numpy), made on demand
         self._budget: tuple = (None, [])
         self.revision = 0  # counts refreshes that may have changed results
         design.subscribe(self._on_change)
@@ -397,8 +400,8 @@ class Analysis:
             done = [inner.results[b] for b in out_ids if inner.results.get(b)]
             rf = (max((r.rf[0] for r in done), default=1), max((r.rf[1] for r in done), default=1))
             jump = (max((r.jump[0] for r in done), default=1), max((r.jump[1] for r in done), default=1))
-            kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
-            freed = max(live_profile(motif, inner.order, inner.results), default=0)
+            kept = int(live_profile(motif, inner.order, inner.results, inputs_outside=True).max(initial=0))
+            freed = int(live_profile(motif, inner.order, inner.results).max(initial=0))
             ends = sum(o.elements for o in outs if o is not None)
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
@@ -452,9 +455,11 @@ class Analysis:
             self._budget = (key, budget_findings(Ledger(self), d.budget))
         return self._budget[1]
 
-    def live_profile(self) -> list[int]:
+    def live_profile(self):
         """Live activation elements per sample at each step of :attr:`order`."""
         top = self.refresh().top
         if self._profile is None:
-            self._profile = live_profile(self.design, top.order, top.results)
+            if top.plan is None:
+                top.plan = Plan(self.design, top.order)
+            self._profile = live_profile(self.design, top.order, top.results, plan=top.plan)
         return self._profile

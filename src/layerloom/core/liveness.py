@@ -1,63 +1,76 @@
 """Peak live activation memory of a forward pass, by walking blocks in execution order.
 
 Convention: a block's output is allocated when the block runs and freed after its last consumer
-has run; the peak is taken after each block's output is allocated and before its inputs are
+has run; the live total is taken after each block's output is allocated and before its inputs are
 freed. Blocks whose kind is a view (Flatten, Dropout at inference, Identity, Output) allocate
-nothing and keep their source alive. The design's outputs stay alive to the end. A motif
-instance adds its inner transient memory beyond its inputs and outputs; when it is the last reader
-of its inputs they are freed inside it as soon as the inner blocks are done with them.
-Counts are elements per sample; the ledger multiplies by batch size and bytes per element.
+nothing and keep their source alive. The design's outputs, and outputs nothing reads, stay alive
+to the end. A motif instance adds its inner transient memory beyond its inputs and outputs; when
+it is the last reader of its inputs they are freed inside it as soon as the inner blocks are done
+with them. Counts are elements per sample; the ledger multiplies by batch size and bytes.
+
+When each tensor dies depends only on the wiring, so it is worked out once per order
+(:class:`Plan`); a settings edit only recomputes the sizes, with numpy.
 """
 from __future__ import annotations
 
 from math import prod
+
+import numpy as np
 
 from layerloom.core.kinds import KINDS
 
 VIEWS = frozenset(name for name, kind in KINDS.items() if kind.view)
 
 
-def live_profile(graph, order, results, inputs_outside: bool = False) -> list[int]:
-    """Live elements per sample at each step of ``order`` (after allocation, before freeing).
+class Plan:
+    """For each step of an order: whether it allocates, the step after which its tensor is freed
+    (``len(order)`` for never), and whether it is the last reader of every input it has."""
 
-    With ``inputs_outside`` (a motif's inside), Input blocks are tensors owned by the caller: they
-    count nothing here and are never freed here."""
-    blocks, out_wires, in_wires = graph.blocks, graph.out_wires, graph.in_wires
-    owner: dict[str, str] = {}
-    refs: dict[str, int] = {}
-    size: dict[str, int] = {}
-    live = 0
-    profile = []
-    append = profile.append
-    for bid in order:
-        r = results.get(bid)
-        if r is None:
-            append(live)
-            continue
-        kind_name = blocks[bid].kind
-        ins = in_wires[bid]
-        if inputs_outside and kind_name == "Input":
-            owner[bid] = None
-        elif kind_name in VIEWS and ins:
-            src = owner.get(ins[0].src)
-            owner[bid] = src
-            if src is not None:
-                refs[src] += len(out_wires[bid]) + (kind_name == "Output")
-        elif kind_name != "Output":
-            outs = r.outs
-            elems = prod(outs[0]) if len(outs) == 1 else sum(map(prod, outs))
-            owner[bid] = bid
-            size[bid] = elems
-            refs[bid] = len(out_wires[bid])
-            live += elems
-        extra = r.extra
-        if r.extra_freed != extra and all(refs.get(owner.get(w.src), 0) == 1 for w in ins):
-            extra = r.extra_freed  # this motif use is the last reader of its inputs: they die inside it
-        append(live + extra)
-        for w in ins:
-            src = owner.get(w.src)
-            if src is not None:
-                refs[src] -= 1
-                if refs[src] == 0:
-                    live -= size[src]
-    return profile
+    __slots__ = ("allocates", "death", "last_reader")
+
+    def __init__(self, graph, order, inputs_outside: bool = False):
+        n = len(order)
+        blocks, in_wires = graph.blocks, graph.in_wires
+        step = {b: i for i, b in enumerate(order)}
+        owner: dict[str, int | None] = {}
+        allocates = np.zeros(n, dtype=bool)
+        death = np.full(n, -1, dtype=np.int64)
+        for i, bid in enumerate(order):
+            kind = blocks[bid].kind
+            ins = in_wires[bid]
+            if inputs_outside and kind == "Input":
+                owner[bid] = None
+            elif kind in VIEWS and ins:
+                owner[bid] = owner.get(ins[0].src)
+            elif kind != "Output":
+                owner[bid] = i
+                allocates[i] = True
+            for w in ins:
+                o = owner.get(w.src) if step.get(w.src, n) < i else None
+                if o is not None:
+                    death[o] = n if kind == "Output" else max(death[o], i)
+        death[death < 0] = n  # nothing reads it: it stays to the end
+        self.allocates, self.death = allocates, death
+        last = np.ones(n, dtype=bool)
+        for i, bid in enumerate(order):
+            for w in in_wires[bid]:
+                o = owner.get(w.src)
+                if o is None or death[o] != i:
+                    last[i] = False
+        self.last_reader = last
+
+
+def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> np.ndarray:
+    """Live elements per sample at each step of ``order`` (after allocation, before freeing)."""
+    plan = plan or Plan(graph, order, inputs_outside)
+    n = len(order)
+    if not n:
+        return np.zeros(0, dtype=np.int64)
+    rs = [results.get(b) for b in order]
+    sizes = np.array([sum(map(prod, r.outs)) if r is not None else 0 for r in rs], dtype=np.int64)
+    sizes[~plan.allocates] = 0
+    freed = np.bincount(np.minimum(plan.death, n), weights=sizes, minlength=n + 1)[:n].astype(np.int64)
+    live = np.cumsum(sizes) - np.concatenate(([0], np.cumsum(freed)[:-1]))
+    extra = np.array([(r.extra_freed if last else r.extra) if r is not None else 0
+                      for r, last in zip(rs, plan.last_reader)], dtype=np.int64)
+    return live + extra
