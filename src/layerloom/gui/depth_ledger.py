@@ -50,6 +50,14 @@ class UnitAxis(pg.AxisItem):
         return [self.format(v) if v else "0" for v in values]
 
 
+class StepAxis(pg.AxisItem):
+    """The x axis: steps along depth are whole numbers, so no tick falls between two blocks."""
+
+    def tickValues(self, minVal, maxVal, size):  # noqa: N802, N803 (Qt naming)
+        levels = [(spacing, values) for spacing, values in super().tickValues(minVal, maxVal, size) if spacing >= 1]
+        return levels or [(1.0, [float(v) for v in range(max(int(minVal), 1), int(maxVal) + 1)])]
+
+
 class DepthLedger(QWidget):
     """The chart and its baseline table for one document. ``block_activated`` carries the id of a
     block clicked in the chart (the window centres the canvas on it)."""
@@ -85,7 +93,7 @@ class DepthLedger(QWidget):
 
         self.axis = UnitAxis("left")
         self.axis.setWidth(60)  # room for labels such as "281 K" or "3.91 MiB" (narrower ones are hidden)
-        self.plot = pg.PlotWidget(axisItems={"left": self.axis}, background=theme.CARD)
+        self.plot = pg.PlotWidget(axisItems={"left": self.axis, "bottom": StepAxis("bottom")}, background=theme.CARD)
         self.plot.setMenuEnabled(False)
         self.plot.showGrid(x=True, y=True, alpha=0.15)
         self.plot.setLabel("bottom", "depth (blocks in order)")
