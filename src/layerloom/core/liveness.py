@@ -31,11 +31,11 @@ class Plan:
     def __init__(self, graph, order, inputs_outside: bool = False):
         n = len(order)
         blocks, in_wires = graph.blocks, graph.in_wires
-        step = {b: i for i, b in enumerate(order)}
-        owner: dict[str, int | None] = {}
-        allocates = np.zeros(n, dtype=bool)
-        death = np.full(n, -1, dtype=np.int64)
-        for i, bid in enumerate(order):
+        owner: dict[str, int | None] = {}  # block → step whose tensor it hands on (None: not ours)
+        allocates = [False] * n
+        death = [n] * n  # nothing reads it: it stays to the end
+        read = [False] * n
+        for i, bid in enumerate(order):  # in order, so a source's owner is known before it is read
             kind = blocks[bid].kind
             ins = in_wires[bid]
             if inputs_outside and kind == "Input":
@@ -46,18 +46,18 @@ class Plan:
                 owner[bid] = i
                 allocates[i] = True
             for w in ins:
-                o = owner.get(w.src) if step.get(w.src, n) < i else None
-                if o is not None:
-                    death[o] = n if kind == "Output" else max(death[o], i)
-        death[death < 0] = n  # nothing reads it: it stays to the end
-        self.allocates, self.death = allocates, death
-        last = np.ones(n, dtype=bool)
-        for i, bid in enumerate(order):
-            for w in in_wires[bid]:
                 o = owner.get(w.src)
-                if o is None or death[o] != i:
-                    last[i] = False
-        self.last_reader = last
+                if o is None:
+                    continue
+                if kind == "Output":  # the design's outputs stay to the end
+                    death[o], read[o] = n, True
+                elif not read[o] or death[o] < i:
+                    death[o], read[o] = i, True
+        last = [all((o := owner.get(w.src)) is not None and death[o] == i for w in in_wires[bid])
+                for i, bid in enumerate(order)]
+        self.allocates = np.array(allocates, dtype=bool)
+        self.death = np.array(death, dtype=np.int64)
+        self.last_reader = np.array(last, dtype=bool)
 
 
 def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> np.ndarray:
