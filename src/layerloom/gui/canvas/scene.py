@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
-from PySide6.QtWidgets import QGraphicsScene
+from PySide6.QtWidgets import QGraphicsItem, QGraphicsScene
 
 from layerloom.core import edits, units
 from layerloom.core.findings import SEVERITY_RANK
@@ -22,7 +22,7 @@ from layerloom.core.mends import mends_for
 from layerloom.core.settings import SettingError
 from layerloom.gui import theme
 from layerloom.gui.canvas.badge_item import BadgeItem
-from layerloom.gui.canvas.block_item import H, W, BlockItem, CardState
+from layerloom.gui.canvas.block_item import CARD_RECT, H, W, BlockItem, CardState
 from layerloom.gui.canvas.wire_item import WireItem
 
 
@@ -74,6 +74,14 @@ def detail_text(block, motif=None) -> str:
     return kind.summary(settings) or kind.title
 
 
+NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
+
+
+def _overview_flags(item, on: bool) -> None:
+    """An item drawn by the overview paints nothing itself (Qt then skips it while painting)."""
+    item.setFlag(NO_CONTENTS, on)
+
+
 class CanvasScene(QGraphicsScene):
     """Items for the graph a document shows. ``refused`` carries the message of an edit the core refused."""
 
@@ -90,12 +98,18 @@ class CanvasScene(QGraphicsScene):
         self._flush_queued = False
         self._syncing_selection = False
         self._total_macs = 0
+        self.overview = False  # far out, the view draws every item at once (see set_overview)
+        self._ov_lines: dict = {}  # Wire → chord, kept while in overview
+        self._ov_rects: dict = {}  # colour rgba → (colour, {block id → card rect})
+        self._ov_where: dict = {}  # block id → colour rgba of the group holding it
+        self._ov_valid = False
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
         document.replaced.connect(self.rebuild)
         document.graph_changed.connect(self.rebuild)
         document.selection_changed.connect(self._select_from_document)
         self.selectionChanged.connect(self._select_to_document)
+        self.selectionChanged.connect(self._overview_stale)
         self.rebuild()
 
     @property
@@ -159,6 +173,7 @@ class CanvasScene(QGraphicsScene):
             self.grow_to_fit()
 
     def _sync_topology(self) -> None:
+        self._ov_valid = False
         design = self.design
         graph = self.graph
         for bid in [b for b in self.blocks if b not in graph.blocks]:
@@ -176,16 +191,17 @@ class CanvasScene(QGraphicsScene):
                                  self._block_moved)
                 item.setPos(*block.position)
                 self.blocks[bid] = item
-                self.addItem(item)
+                self._adopt(item)
         for w in graph.wires:
             if w not in self.wires:
                 item = self.wires[w] = WireItem(w)
-                self.addItem(item)
+                self._adopt(item)
                 self._dirty_wires.add(w)
 
     def _refresh_results(self) -> None:
         """Read shapes, findings and MAC shares for the graph shown; update items whose picture differs.
         Inside a motif the MAC shares are of one use of it."""
+        self._ov_valid = False
         design, graph = self.design, self.graph
         motif = graph if graph.key else None
         results = self.document.results()
@@ -240,9 +256,49 @@ class CanvasScene(QGraphicsScene):
         self.badges[item.block_id] = [
             BadgeItem(item, port, sorted(fs, key=lambda f: SEVERITY_RANK[f.severity]), self)
             for port, fs in groups.items()]
+        for badge in self.badges[item.block_id]:
+            _overview_flags(badge, self.overview)
+
+    # ----- far out: one drawing for every item
+    def _adopt(self, item) -> None:
+        self.addItem(item)
+        if self.overview:
+            _overview_flags(item, True)
+
+    def set_overview(self, on: bool) -> None:
+        """Far out, items stop painting themselves and the view draws them all in a few calls
+        (:meth:`overview_shapes`): there Qt's own cost per painted item is most of a frame. Items
+        stay in the scene, so selecting and hit tests work as before."""
+        if on == self.overview:
+            return
+        self.overview = on
+        items = [*self.blocks.values(), *self.wires.values(), *(b for bs in self.badges.values() for b in bs)]
+        for item in items:
+            _overview_flags(item, on)
+
+    def overview_shapes(self) -> tuple[list, list]:
+        """Wire chords, and (colour, card rectangles) groups: selection, error, warning, plain. Kept
+        up to date piece by piece while blocks move; made again after other changes."""
+        if not self._ov_valid:
+            self._ov_lines = {w: item.chord for w, item in self.wires.items()}
+            self._ov_rects, self._ov_where = {}, {}
+            for bid, item in self.blocks.items():
+                status = item.state.status
+                colour = (theme.ACCENT if item.isSelected() else
+                          theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE)
+                self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
+                self._ov_where[bid] = colour.rgba()
+            self._ov_valid = True
+        return list(self._ov_lines.values()), [(c, list(r.values())) for c, r in self._ov_rects.values()]
+
+    def _overview_stale(self, *args) -> None:
+        self._ov_valid = False
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
+        if self._ov_valid and block_id in self._ov_where:
+            item = self.blocks[block_id]
+            self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
         g = self.graph
         ws = g.in_wires.get(block_id)
         if ws is None:
@@ -261,6 +317,8 @@ class CanvasScene(QGraphicsScene):
             item = self.wires.get(w)
             if item is not None:
                 item.set_geometry(blocks[w.src].output_pos(w.src_port), blocks[w.dst].input_pos(w.dst_port))
+                if self._ov_valid:
+                    self._ov_lines[w] = item.chord
         self._dirty_wires.clear()
 
     # ----- selection, both ways

@@ -10,7 +10,7 @@ items.
 from __future__ import annotations
 
 from PySide6.QtCore import QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QTransform
+from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QTransform
 from PySide6.QtWidgets import QGraphicsView, QMenu
 
 from layerloom.core import clipboard, edits, motif_ops
@@ -85,6 +85,35 @@ class CanvasView(QGraphicsView):
         factor = max(theme.ZOOM_MIN / now, min(theme.ZOOM_MAX / now, factor))
         self.scale(factor, factor)
 
+    def scale(self, sx: float, sy: float) -> None:
+        super().scale(sx, sy)
+        self._sync_overview()
+
+    def setTransform(self, matrix, combine: bool = False) -> None:  # noqa: N802 (Qt naming)
+        super().setTransform(matrix, combine)
+        self._sync_overview()
+
+    def resetTransform(self) -> None:  # noqa: N802 (Qt naming)
+        super().resetTransform()
+        self._sync_overview()
+
+    def _sync_overview(self) -> None:
+        """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
+        self.canvas_scene.set_overview(self.transform().m11() < theme.SHAPE_MIN_DETAIL)
+
+    def drawForeground(self, painter, rect: QRectF) -> None:
+        scene = self.canvas_scene
+        if not scene.overview:
+            return
+        lines, rects = scene.overview_shapes()
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # specks and hairlines: no need
+        painter.setPen(QPen(theme.WIRE, 0))
+        painter.drawLines(lines)
+        painter.setPen(Qt.PenStyle.NoPen)
+        for colour, group in rects:
+            painter.setBrush(colour)
+            painter.drawRects(group)
+
     def zoom_in(self) -> None:
         self._zoom_about_centre(ZOOM_STEP)
 
@@ -110,6 +139,7 @@ class CanvasView(QGraphicsView):
             self.resetTransform()
             self.scale(1.25, 1.25)
             self.centerOn(rect.center())
+        self._sync_overview()
 
     def show_start(self) -> None:
         """How a design first appears: all of it when that is readable, else its input end (data

@@ -75,6 +75,11 @@ class WireItem(QGraphicsItem):
             self._label_rect = QRectF()
         self._bounds = bounds
 
+    @property
+    def chord(self) -> QLineF:
+        """The straight line between the wire's ends (what is drawn far out)."""
+        return self._chord
+
     def boundingRect(self) -> QRectF:
         return self._bounds
 

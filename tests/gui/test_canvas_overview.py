@@ -1,0 +1,65 @@
+"""Far out, the canvas draws every card and wire in a few calls instead of item by item."""
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import QPointF
+from PySide6.QtWidgets import QGraphicsItem
+
+from layerloom import Design
+from layerloom.core import edits
+from layerloom.gui import theme
+from layerloom.gui.canvas import CanvasView
+from layerloom.gui.document import Document
+
+SHOTS = Path(__file__).resolve().parents[2] / "tests" / "screenshots"
+NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
+
+
+def long_chain(n: int = 60) -> tuple[Design, list[str]]:
+    d = Design()
+    ids = [d.input(8, 32, 32)]
+    for i in range(n):
+        ids.append(d.add("Conv2d", ids[-1], out_channels=8, kernel=3, padding=1, position=(230.0 * (i + 1), 0.0)))
+    d.add("Output", ids[-1], position=(230.0 * (n + 1), 0.0))
+    return d, ids
+
+
+def colours(view) -> dict:
+    _, groups = view.canvas_scene.overview_shapes()
+    return {c.name(): rects for c, rects in groups}
+
+
+def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
+    d, ids = long_chain()
+    doc = Document(d)
+    view = CanvasView(doc)
+    qtbot.addWidget(view)
+    view.resize(900, 500)
+    view.show()
+    scene = view.canvas_scene
+    view.resetTransform()
+    assert not scene.overview
+    view.scale(0.05, 0.05)  # a card is 8 pixels wide: below the speck zoom
+    assert scene.overview and all(item.flags() & NO_CONTENTS for item in scene.items())
+    lines, _ = scene.overview_shapes()
+    assert len(lines) == len(d.wires) and sum(len(r) for r in colours(view).values()) == len(d.blocks)
+
+    doc.apply(edits.set_settings(d, ids[30], {"groups": 3}))  # 8 channels do not split in 3: an error
+    assert [r.x() for r in colours(view)[theme.ERROR.name()]] == [d.blocks[ids[30]].position[0]]
+    doc.select([ids[10]])
+    assert [r.x() for r in colours(view)[theme.ACCENT.name()]] == [d.blocks[ids[10]].position[0]]
+
+    item = scene.blocks[ids[10]]
+    item.setPos(item.pos() + QPointF(0, 400))  # dragging keeps the drawing in step
+    scene.flush_wires()
+    assert colours(view)[theme.ACCENT.name()][0].y() == 400
+    assert any(line.y2() > 390 for line in scene.overview_shapes()[0])
+
+    SHOTS.mkdir(exist_ok=True)
+    view.grab().save(str(SHOTS / "canvas_overview.png"))
+    view.scale(10, 10)
+    assert not scene.overview and not any(item.flags() & NO_CONTENTS for item in scene.items())
+    # qtbot keeps only a weak reference: close the view before this test's last reference to it goes,
+    # so no paint is pending when the garbage collector frees it
+    view.close()
