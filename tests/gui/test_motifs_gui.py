@@ -49,6 +49,19 @@ def window_with(qtbot, tmp_path, design, names=()):
     return window, prompts
 
 
+def inside_new_motif(qtbot, tmp_path, names):
+    """A window on the widen design whose middle four blocks were made a motif (named from
+    ``names``), opened with its widening convolution selected; returns (window, prompts, ids, unit)."""
+    window, prompts = window_with(qtbot, tmp_path, widen_design(), names=names)
+    doc = window.document
+    ids = {b.name: b.id for b in doc.design.blocks.values()}
+    doc.select([ids["widen"], ids["norm"], ids["act"], ids["narrow"]])
+    unit = window.canvas.make_motif()
+    window.canvas.open_motif(unit)
+    doc.select([ids["widen"]])
+    return window, prompts, ids, unit
+
+
 def card_point(window, block_id, x=W / 2, y=H - 12):
     item = window.canvas.canvas_scene.blocks[block_id]
     return at(window.canvas, item.mapToScene(QPointF(x, y)))
@@ -184,15 +197,8 @@ def test_undoing_the_motif_while_inside_it_returns_to_the_design(qtbot, tmp_path
 
 
 def test_expose_a_setting_as_a_motif_parameter_and_set_it_per_instance(qtbot, tmp_path):
-    d = widen_design()
-    window, prompts = window_with(qtbot, tmp_path, d, names=["gate", "width"])
-    doc, panel = window.document, window.block_settings
-    d = doc.design
-    ids = {b.name: b.id for b in d.blocks.values()}
-    doc.select([ids["widen"], ids["norm"], ids["act"], ids["narrow"]])
-    unit = window.canvas.make_motif()
-    window.canvas.open_motif(unit)
-    doc.select([ids["widen"]])
+    window, prompts, ids, unit = inside_new_motif(qtbot, tmp_path, ["gate", "width"])
+    doc, panel, d = window.document, window.block_settings, window.document.design
     field = panel.fields["out_channels"]
     assert field.expose_button is not None and field.expose_button.isEnabled()
     assert "kernel" in panel.fields and panel.fields["kernel"].expose_button.isEnabled()
@@ -317,15 +323,8 @@ def test_a_motif_without_use_shows_unknown_shapes(qtbot, tmp_path):
 
 
 def test_save_and_reopen_keep_motifs_parameters_and_repeats(qtbot, tmp_path):
-    d = widen_design()
-    window, prompts = window_with(qtbot, tmp_path, d, names=["stage", "width"])
-    doc = window.document
-    d = doc.design
-    ids = {b.name: b.id for b in d.blocks.values()}
-    doc.select([ids["widen"], ids["norm"], ids["act"], ids["narrow"]])
-    unit = window.canvas.make_motif()
-    window.canvas.open_motif(unit)
-    doc.select([ids["widen"]])
+    window, prompts, ids, unit = inside_new_motif(qtbot, tmp_path, ["stage", "width"])
+    doc, d = window.document, window.document.design
     qtbot.mouseClick(window.block_settings.fields["out_channels"].expose_button, Qt.MouseButton.LeftButton)
     doc.back()
     type_into(qtbot, window.block_settings.fields["width"].widget, "24")
