@@ -119,3 +119,17 @@ def test_baseline_round_trip_and_comparison():
     assert diffs["macs"].delta == 8_388_608 + 150_994_944 - 301_989_888
     assert diffs["macs"].percent == pytest.approx(100 * diffs["macs"].delta / diffs["macs"].baseline)
     assert set(diffs) == {"weights", "macs", "peak_memory", "latency"}
+
+
+def test_baseline_from_another_file_is_estimated_on_our_target(tmp_path):
+    from layerloom.core.baseline import snapshot_of_file
+    from layerloom.core.fileformat import LoomFileError, save
+
+    other, _ = chain_design()
+    save(other, tmp_path / "other.loom")
+    data = snapshot_of_file(tmp_path / "other.loom", BOARD)
+    assert data["totals"]["macs"] == other.ledger().totals.macs
+    assert data["target"] == BOARD.name and data["totals"]["latency"] == Ledger(other.analysis(), BOARD).totals.latency
+    (tmp_path / "broken.loom").write_text("{", encoding="utf-8")
+    with pytest.raises(LoomFileError, match="broken.loom"):
+        snapshot_of_file(tmp_path / "broken.loom")

@@ -88,3 +88,12 @@ def test_broken_file_names_the_place(tmp_path):
     r = run("check", str(bad))
     assert r.returncode == 2
     assert "blocks[1] (stem)" in r.stderr and "Stride 0 is below the minimum 1" in r.stderr
+
+
+def test_ledger_compares_with_another_design():
+    this = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json").stdout)["totals"]
+    other = json.loads(run("ledger", "samples/leaf_blight_grader.loom", "--json").stdout)["totals"]
+    r = run("ledger", "samples/fastener_sorter.loom", "--json", "--baseline", "samples/leaf_blight_grader.loom")
+    macs = next(x for x in json.loads(r.stdout)["baseline"]["totals"] if x["metric"] == "macs")
+    assert (macs["current"], macs["baseline"]) == (this["macs"], other["macs"])
+    assert macs["delta"] == this["macs"] - other["macs"]

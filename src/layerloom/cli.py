@@ -11,12 +11,12 @@ import json
 import sys
 
 from layerloom.core import units
+from layerloom.core.baseline import compare, snapshot_of_file
 from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
 from layerloom.core.ledger_csv import ledger_csv, rf_text
-from layerloom.core.baseline import compare, snapshot
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
@@ -183,10 +183,7 @@ def _baseline(args, design) -> dict | None:
     """The baseline to compare with: ``--baseline FILE`` (its current ledger), else the design's pinned one."""
     if not getattr(args, "baseline", None):
         return design.baseline
-    other = load(args.baseline)
-    if design.target is not None and other.target is None:
-        other.set_field("target", design.target)
-    return snapshot(Ledger(other.analysis()), other.name)
+    return snapshot_of_file(args.baseline, design.target)
 
 
 def _parser() -> argparse.ArgumentParser:

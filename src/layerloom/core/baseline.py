@@ -53,6 +53,19 @@ def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
     return data
 
 
+def snapshot_of_file(path, target=None, name: str | None = None) -> dict:
+    """A baseline from another design file (named ``name``, else the design's own name). Without a
+    target of its own, the other design is estimated on ``target`` so latencies compare. Raises
+    :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
+    from layerloom.core.fileformat import load
+    from layerloom.core.ledger import Ledger
+
+    other = load(path)
+    if other.target is None and target is not None:
+        other.set_field("target", target)
+    return snapshot(Ledger(other.analysis()), name or other.name)
+
+
 def compare(ledger, baseline: dict) -> list[Difference]:
     """Totals of ``ledger`` beside those of ``baseline`` (latency only when both have it)."""
     now = ledger.totals._asdict()

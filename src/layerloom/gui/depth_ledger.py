@@ -18,9 +18,9 @@ from PySide6.QtWidgets import (QComboBox, QFileDialog, QHBoxLayout, QHeaderView,
                                QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core import units
-from layerloom.core.baseline import compare, snapshot
+from layerloom.core.baseline import compare, snapshot, snapshot_of_file
 from layerloom.core.edits import Edit, SetField
-from layerloom.core.fileformat import LoomFileError, load
+from layerloom.core.fileformat import LoomFileError
 from layerloom.core.ledger import Ledger
 from layerloom.core.ledger_csv import ledger_csv
 from layerloom.core.targets import CAUTION
@@ -314,13 +314,10 @@ class DepthLedger(QWidget):
             if not path:
                 return
         try:
-            other = load(path)
+            data = snapshot_of_file(path, self.document.design.target, Path(path).stem)
         except LoomFileError as e:
             QMessageBox.warning(self, "Baseline not loaded", str(e))
             return
-        if other.target is None and self.document.design.target is not None:
-            other.set_field("target", self.document.design.target)
-        data = snapshot(Ledger(other.analysis()), Path(path).stem)
         self.document.apply(Edit("Baseline from file", (SetField("baseline", data),)))
 
     def clear_baseline(self) -> None:
