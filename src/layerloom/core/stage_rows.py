@@ -22,8 +22,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from itertools import count
 
-CARD_WIDTH, CARD_HEIGHT = 158.0, 54.0  # a block's card (the editor draws it this size)
-COLUMN = 230.0  # x step between columns: a card and room for a wire with its shape label
+CARD_WIDTH, CARD_HEIGHT = 180.0, 54.0  # a block's card (the editor draws it this size)
+COLUMN = 250.0  # x step between columns: a card and room for a wire with its shape label
 STACK = 84.0  # y step between cards stacked in one column
 ROW_GAP = 64.0  # free height between two lines: lanes for return wires and skip wires
 VIEW = (960.0, 560.0)  # the view Tidy lays out for when none is given: the canvas of a 1280×800 window

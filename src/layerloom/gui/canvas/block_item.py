@@ -10,6 +10,7 @@ that state from the design and its analysis. ``paint`` only draws.
 from __future__ import annotations
 
 from functools import lru_cache
+from math import ceil
 from typing import NamedTuple
 
 from PySide6.QtCore import QPointF, QRectF, Qt
@@ -124,13 +125,19 @@ def far_zoom() -> float:
     return theme.READABLE_PX / pixel_size("title")
 
 
+def summary_zoom() -> float:
+    """Below this zoom a card has no room for both its name and its shape at a readable size."""
+    return theme.READABLE_PX * 2 * LINE_STEP / (H - 4)
+
+
+LINE_STEP = 1.2  # far-out lines are this many em apart
 CHIP_RISE = 10.5  # a chip's top sits this far above the second line's baseline
 CHIP_HEIGHT = 14.0
-ARROW = 11.0  # room for the ▸ before each chip
+ARROW = 9.0  # room for the ▸ before each chip
 
 
 def chip_width(label: str) -> float:
-    return advance("detail", label) + 8.0
+    return advance("detail", label) + 6.0
 
 
 class BlockItem(QGraphicsItem):
@@ -210,19 +217,20 @@ class BlockItem(QGraphicsItem):
         the name no longer fits in the card's height (the view shows stage summaries there)."""
         if self._far is not None and self._far[0] == zoom:
             return self._far[1]
-        px = theme.READABLE_PX / zoom
-        step = px * 1.2
+        px = ceil(theme.READABLE_PX / zoom)
+        step = px * LINE_STEP
         lines: list[TextLine] = []
         room = W - 2 * theme.PADDING
         texts = [("title", self.state.title)]
-        if self.state.shape and 2 * step + 4 <= H:
-            texts.append(("figure", self.state.shape))
+        shape = self.state.shape or (self.state.detail if self.state.kind == "Input" else "")  # an Input's is its detail
+        if shape and 2 * step + 4 <= H:
+            texts.append(("figure", shape))
         if step + 4 <= H:
             top = (H - step * len(texts)) / 2
             for i, (which, text) in enumerate(texts):
-                f = sized_font(which, round(px))
+                f = sized_font(which, px)
                 shown = QFontMetricsF(f).elidedText(text, ELIDE, room)
-                lines.append(TextLine(shown, text, float(round(px)), f, QPointF(theme.PADDING, top + step * i + px)))
+                lines.append(TextLine(shown, text, float(px), f, QPointF(theme.PADDING, top + step * i + px)))
         self._far = (zoom, lines)
         return lines
 

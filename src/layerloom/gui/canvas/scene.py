@@ -358,6 +358,10 @@ class CanvasScene(QGraphicsScene):
             self._ov_valid = True
         return [ln for lines in self._ov_lines.values() for ln in lines], [(c, list(r.values())) for c, r in self._ov_rects.values()]
 
+    def chips_of(self, card: str) -> list:
+        """Ids of the chips in ``card`` (none when it holds none or Fold is off)."""
+        return self._chips.get(card, [])
+
     def cards(self):
         """``(block id, BlockItem)`` for every card (chips excluded)."""
         return ((b, i) for b, i in self.blocks.items() if isinstance(i, BlockItem))
