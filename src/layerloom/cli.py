@@ -20,8 +20,9 @@ from layerloom.core.ledger_csv import ledger_csv, rf_text
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
+from layerloom import picture
 
-COMMANDS = ("check", "ledger", "export")
+COMMANDS = ("check", "ledger", "export", "picture")
 
 
 class UsageError(Exception):
@@ -215,6 +216,7 @@ def _parser() -> argparse.ArgumentParser:
     ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
                     "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
     ex.set_defaults(run=_export)
+    picture.register(sub)
     return p
 
 
@@ -231,7 +233,7 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return args.run(args)
-    except (LoomFileError, UsageError) as e:
+    except (LoomFileError, UsageError, picture.PictureError) as e:
         print(f"layerloom: {e}", file=sys.stderr)
         return 2
     except BrokenPipeError:

@@ -254,6 +254,7 @@ class MainWindow(QMainWindow):
         self.findings_button.clicked.connect(self.show_findings)
         self.zoom_label = QLabel()
         self.zoom_label.setObjectName("zoom")
+        self.zoom_label.setMinimumWidth(self.zoom_label.fontMetrics().horizontalAdvance("4000 %"))
         self.canvas.zoom_changed.connect(lambda z: self.zoom_label.setText(f"{z * 100:.0f} %"))
         bar.addPermanentWidget(self.zoom_label)
         bar.addPermanentWidget(self.totals_label)

@@ -51,14 +51,30 @@ def stage_texts(scene) -> list[tuple[str, QRectF]]:
         members = [*cards, *(chip for c in cards for chip in scene.chips_of(c))]
         macs = sum(results[b].cost.macs for b in members if results.get(b) is not None)
         share = f"{100 * macs / total:.0f} % MACs" if total else "no MACs"
-        last = results.get((scene.chips_of(cards[-1]) or cards)[-1])  # the stage's output: its last card's
-        shape = str(last.outs[0]) if last is not None and last.outs else "shape unknown"
+        handed = _stage_output(scene, results, set(cards), (scene.chips_of(cards[-1]) or cards)[-1])
+        shape = str(handed) if handed is not None else "shape unknown"
         left = min(i.pos().x() for i in items)
         top = min(i.pos().y() for i in items)
         right = max(i.pos().x() for i in items) + W
         bottom = max(i.pos().y() for i in items) + H
         out.append((f"{name} · {shape} · {share}", QRectF(left, top, right - left, bottom - top)))
     return out
+
+
+def _stage_output(scene, results, cards: set, last: str):
+    """What a stage hands on: the largest tensor on a wire leaving it (a ResNet stage hands on its
+    last unit's output, not the narrower 1×1 that opens the next stage), else its last block's output."""
+    best = None
+    for w in scene.graph.wires:
+        if scene.card_of(w.src) in cards and scene.card_of(w.dst) not in cards:
+            r = results.get(w.src)
+            shape = r.outs[w.src_port] if r is not None and w.src_port < len(r.outs) else None
+            if shape is not None and (best is None or shape.elements > best.elements):
+                best = shape
+    if best is None:
+        r = results.get(last)
+        best = r.outs[0] if r is not None and r.outs else None
+    return best
 
 
 def labels(view) -> list[StageLabel]:
