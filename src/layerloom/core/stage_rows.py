@@ -169,22 +169,21 @@ def _slots(order, preds, stage_of, column, main) -> dict:
     return slot
 
 
-def _extent(columns: list[tuple[int, int]], k: int) -> tuple[float, float, int]:
-    """Width and height of a stage whose columns (min slot, max slot) wrap every ``k`` columns."""
+def _extent(columns: tuple[list[int], list[int]], k: int) -> tuple[float, float, int]:
+    """Width and height of a stage whose columns (lists of min and max slot) wrap every ``k`` columns."""
+    lows, highs = columns
     height, lines = 0.0, 0
-    for i in range(0, len(columns), k):
-        chunk = columns[i:i + k]
-        top, bottom = min(c[0] for c in chunk), max(c[1] for c in chunk)
-        height += (bottom - top) * STACK + CARD_HEIGHT
+    for i in range(0, len(lows), k):
+        height += (max(highs[i:i + k]) - min(lows[i:i + k])) * STACK + CARD_HEIGHT
         lines += 1
-    width = (min(k, len(columns)) - 1) * COLUMN + CARD_WIDTH
+    width = (min(k, len(lows)) - 1) * COLUMN + CARD_WIDTH
     return width, height, lines
 
 
-def _wrap(stage_columns: list[list[tuple[int, int]]], view) -> int:
+def _wrap(stage_columns: list[tuple[list[int], list[int]]], view) -> int:
     """Columns per line that show the whole layout largest in ``view`` (capped at 100 %: then
     the fewest wraps)."""
-    longest = max((len(c) for c in stage_columns), default=1)
+    longest = max((len(c[0]) for c in stage_columns), default=1)
     candidates = set(range(1, min(longest, 16) + 1)) | {longest}
     k = 16.0
     while k < longest:
@@ -242,26 +241,25 @@ def stage_layout(graph, shapes: dict, folds: dict, view=VIEW) -> StageLayout:
     spans = []
     for cards in members:
         n = max(column[c] for c in cards) + 1
-        cols = [(0, 0)] * n
-        seen = [False] * n
+        lows, highs = [1 << 30] * n, [-(1 << 30)] * n  # each column gets a card (longest-path columns)
         for c in cards:
-            lo, hi = cols[column[c]]
-            s = slot[c]
-            cols[column[c]] = (min(lo, s), max(hi, s)) if seen[column[c]] else (s, s)
-            seen[column[c]] = True
-        spans.append(cols)
+            i, s = column[c], slot[c]
+            lows[i], highs[i] = min(lows[i], s), max(highs[i], s)
+        spans.append((lows, highs))
     k = _wrap(spans, view)
     lay = StageLayout(stage_of={c: index[stage_of[c]] for c in order})
     y = 0.0
-    for i, (cards, cols) in enumerate(zip(members, spans)):
-        for start in range(0, len(cols), k):
-            chunk = cols[start:start + k]
-            top = min(c[0] for c in chunk)
-            line = sorted((c for c in cards if start <= column[c] < start + k), key=lambda c: (column[c], slot[c]))
+    for i, (cards, (lows, highs)) in enumerate(zip(members, spans)):
+        by_line: dict[int, list[str]] = {}
+        for c in cards:
+            by_line.setdefault(column[c] // k, []).append(c)
+        for start in range(0, len(lows), k):
+            top = min(lows[start:start + k])
+            line = sorted(by_line[start // k], key=lambda c: (column[c], slot[c]))
             for c in line:
                 lay.positions[c] = ((column[c] - start) * COLUMN, y + (slot[c] - top) * STACK)
-            height = (max(c[1] for c in chunk) - top) * STACK + CARD_HEIGHT
-            right = (len(chunk) - 1) * COLUMN + CARD_WIDTH
+            height = (max(highs[start:start + k]) - top) * STACK + CARD_HEIGHT
+            right = (len(lows[start:start + k]) - 1) * COLUMN + CARD_WIDTH
             lay.rows.append(Row(i, stages[i].key, tuple(line), (0.0, y, right, y + height)))
             y += height + ROW_GAP
     for chip, card in folds.items():

@@ -110,7 +110,7 @@ class CanvasScene(QGraphicsScene):
         self.folds: dict[str, str] = {}  # chip id → its card's id
         self._chips: dict[str, list[str]] = {}  # card id → chip ids
         self.obstacles = Obstacles()  # card rectangles the wires go around
-        self._stages: list | None = None  # (key, card ids) per stage, made on demand
+        self._stages: dict | None = None  # stages and their labels, made on demand (see stage_cache)
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
         self._dirty_wires: set = set()
@@ -122,6 +122,7 @@ class CanvasScene(QGraphicsScene):
         self._ov_rects: dict = {}  # colour rgba → (colour, {block id → card rect})
         self._ov_where: dict = {}  # block id → colour rgba of the group holding it
         self._ov_valid = False
+        self.overview_revision = 0  # grows whenever what the overview draws may have changed
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
         document.replaced.connect(self.rebuild)
@@ -174,6 +175,7 @@ class CanvasScene(QGraphicsScene):
     # ----- following the model
     def _on_changed(self, change) -> None:
         key, graph = self.document.graph_key, self.graph
+        self.overview_revision += 1
         if key in change.topology:
             self._sync_topology()
         for bid in change.moved.get(key, ()):
@@ -216,6 +218,7 @@ class CanvasScene(QGraphicsScene):
 
     def _sync_topology(self) -> None:
         self._ov_valid = False
+        self.overview_revision += 1
         self._stages = None
         design = self.design
         graph = self.graph
@@ -261,6 +264,7 @@ class CanvasScene(QGraphicsScene):
         """Read shapes, findings and MAC shares for the graph shown; update items whose picture differs.
         Inside a motif the MAC shares are of one use of it."""
         self._ov_valid = False
+        self.overview_revision += 1
         design, graph = self.design, self.graph
         motif = graph if graph.key else None
         results = self.document.results()
@@ -368,18 +372,29 @@ class CanvasScene(QGraphicsScene):
 
     def stages(self) -> list:
         """``(resolution, card ids)`` per stage of the graph shown (see core.stage_rows), top → bottom."""
+        return self.stage_cache("stages", self._make_stages)
+
+    def _make_stages(self) -> list:
+        results = self.document.results()
+        shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
+        return stage_groups(self.graph, shapes, self.folds)
+
+    def stage_cache(self, key: str, make):
+        """What ``make()`` returns, kept until the graph shown, its results or a position changes."""
         if self._stages is None:
-            results = self.document.results()
-            shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
-            self._stages = stage_groups(self.graph, shapes, self.folds)
-        return self._stages
+            self._stages = {}
+        if key not in self._stages:
+            self._stages[key] = make()
+        return self._stages[key]
 
     def _overview_stale(self, *args) -> None:
         self._ov_valid = False
+        self.overview_revision += 1
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
         item = self.blocks[block_id]
+        self.overview_revision += 1
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
         self.obstacles.put(block_id, _rect(item))
@@ -406,6 +421,7 @@ class CanvasScene(QGraphicsScene):
                 item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)))
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
+                self.overview_revision += 1
         self._dirty_wires.clear()
 
     # ----- selection, both ways

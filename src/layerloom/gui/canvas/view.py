@@ -10,7 +10,8 @@ items.
 from __future__ import annotations
 
 from PySide6.QtCore import QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QTransform
+from PySide6.QtGui import (QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QPixmap,
+                           QTransform)
 from PySide6.QtWidgets import QGraphicsView, QMenu
 
 from layerloom.core import clipboard, edits, motif_ops
@@ -20,6 +21,7 @@ from layerloom.core.kinds import KINDS
 from layerloom.core.layout import COLUMN, tidy_layout
 from layerloom.gui import theme
 from layerloom.gui.canvas import stage_summary
+from layerloom.gui.canvas.stage_summary import overview_names
 from layerloom.gui.canvas.block_item import H, W, BlockItem, summary_zoom
 from layerloom.gui.canvas.block_item import font as block_font
 from layerloom.gui.canvas.name_editor import NameEditor
@@ -64,6 +66,7 @@ class CanvasView(QGraphicsView):
         palette.setColor(QPalette.ColorRole.Highlight, theme.ACCENT)  # the rubber band
         self.setPalette(palette)
         self._pan_from: QPoint | None = None
+        self._ov_cache: tuple | None = None  # (key, QPixmap) of the overview last drawn
         self._space = False
         self._draft: DraftWire | None = None
         self._draft_from: tuple[str, int] | None = None
@@ -101,31 +104,61 @@ class CanvasView(QGraphicsView):
 
     def _sync_overview(self) -> None:
         """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
-        self.canvas_scene.set_overview(self.transform().m11() < theme.SHAPE_MIN_DETAIL)
+        self.canvas_scene.set_overview(self.shows_stage_summaries())
         self.zoom_changed.emit(self.transform().m11())
 
     def drawForeground(self, painter, rect: QRectF) -> None:
-        scene = self.canvas_scene
-        if self.shows_stage_summaries():
-            self._draw_overview(painter)
+        if self.canvas_scene.overview:
+            if painter.device() is self.viewport():
+                self._blit_overview(painter)
+            else:  # a picture (PNG, SVG): drawn afresh, as shapes
+                self._draw_overview(painter, rect)
             stage_summary.draw(painter, self)
+
+    def _blit_overview(self, painter) -> None:
+        """The overview of what the viewport shows, drawn once into a pixmap and kept until the
+        view's transform, size or what the scene shows changes (a still frame is one blit)."""
+        t = self.viewportTransform()
+        size = self.viewport().size()
+        key = (t.m11(), t.m22(), t.dx(), t.dy(), size.width(), size.height(), self.canvas_scene.overview_revision)
+        if self._ov_cache is None or self._ov_cache[0] != key:
+            ratio = self.viewport().devicePixelRatioF()
+            pixmap = QPixmap(size * ratio)
+            pixmap.setDevicePixelRatio(ratio)
+            pixmap.fill(Qt.GlobalColor.transparent)
+            p = QPainter(pixmap)
+            p.setTransform(t)
+            self._draw_overview(p, self.mapToScene(self.viewport().rect()).boundingRect())
+            p.end()
+            self._ov_cache = (key, pixmap)
+        painter.save()
+        painter.resetTransform()
+        painter.drawPixmap(0, 0, self._ov_cache[1])
+        painter.restore()
 
     def shows_stage_summaries(self) -> bool:
         """Whether cards are too small here to show name and shape, so stage rows are labelled."""
         return self.transform().m11() < summary_zoom()
 
-    def _draw_overview(self, painter) -> None:
-        scene = self.canvas_scene
-        if not scene.overview:
-            return
-        lines, rects = scene.overview_shapes()
-        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # specks and hairlines: no need
+    def _draw_overview(self, painter, exposed: QRectF) -> None:
+        """Far out, every wire and card in a few calls: cards as outlined rectangles (status and
+        selection by outline colour; specks when tiny), each with its name at a readable size
+        where the card is wide enough on screen to hold some of it."""
+        lines, rects = self.canvas_scene.overview_shapes()
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
         painter.setPen(QPen(theme.WIRE, 0))
         painter.drawLines(lines)
-        painter.setPen(Qt.PenStyle.NoPen)
+        specks = self.zoom_level() < theme.SHAPE_MIN_DETAIL
         for colour, group in rects:
-            painter.setBrush(colour)
+            if specks:
+                painter.setPen(Qt.PenStyle.NoPen)
+                painter.setBrush(colour)
+            else:
+                painter.setPen(QPen(colour, 0 if colour == theme.CARD_EDGE else 2))
+                painter.setBrush(theme.CARD)
             painter.drawRects(group)
+        if not specks:
+            overview_names(painter, self, exposed)
 
     def zoom_in(self) -> None:
         self._zoom_about_centre(ZOOM_STEP)
@@ -688,6 +721,7 @@ class CanvasView(QGraphicsView):
 
     def save_png(self, path, scale: float = 2.0) -> bool:
         """Write a picture of the whole canvas (all blocks) to ``path`` as PNG."""
+        self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
         rect = self._picture_rect()
         image = QImage(QSize(max(int(rect.width() * scale), 1), max(int(rect.height() * scale), 1)),
                        QImage.Format.Format_ARGB32_Premultiplied)
@@ -696,12 +730,14 @@ class CanvasView(QGraphicsView):
         painter.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
         self.canvas_scene.render(painter, QRectF(image.rect()), rect)
         painter.end()
+        self._sync_overview()
         return image.save(str(path), "PNG")
 
     def save_svg(self, path) -> bool:
         """Write a picture of the whole canvas to ``path`` as SVG."""
         from PySide6.QtSvg import QSvgGenerator
 
+        self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
         rect = self._picture_rect()
         gen = QSvgGenerator()
         gen.setFileName(str(path))
@@ -714,4 +750,5 @@ class CanvasView(QGraphicsView):
         painter.fillRect(QRectF(0, 0, rect.width(), rect.height()), theme.CANVAS)
         self.canvas_scene.render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
         painter.end()
+        self._sync_overview()
         return True
