@@ -121,7 +121,7 @@ def top_room() -> float:
 
 @lru_cache(maxsize=8192)
 def _elided(text: str, width: int) -> str:
-    fm = QFontMetricsF(sized_font("title", NAME_PX))
+    fm = QFontMetricsF(sized_font("detail", NAME_PX))
     return fm.elidedText(text, Qt.TextElideMode.ElideRight, width)
 
 
@@ -129,19 +129,19 @@ def overview_names(painter, view, exposed: QRectF) -> None:
     """Far out, each card's name in viewport pixels at :data:`NAME_PX`, elided to the card's width
     on screen (cards narrower than :data:`NAME_ROOM` pixels show none)."""
     zoom = view.zoom_level()
-    width = W * zoom - 6.0
+    width = W * zoom - 4.0
     if width < NAME_ROOM:
         return
     transform = view.viewportTransform()
     painter.save()
     painter.resetTransform()
-    painter.setFont(sized_font("title", NAME_PX))
+    painter.setFont(sized_font("detail", NAME_PX))
     painter.setPen(theme.TEXT)
     for _, item in view.canvas_scene.cards():
         p = item.pos()
         if not exposed.intersects(QRectF(p.x(), p.y(), W, H)):
             continue
         corner = transform.map(p)
-        painter.drawText(QPointF(corner.x() + 3.0, corner.y() + H * zoom / 2 + NAME_PX * 0.35),
+        painter.drawText(QPointF(corner.x() + 2.0, corner.y() + H * zoom / 2 + NAME_PX * 0.35),
                          _elided(item.state.title, int(width)))
     painter.restore()
