@@ -186,7 +186,11 @@ class CanvasScene(QGraphicsScene):
                     item.setPos(x, y)
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
             self._stages = None
-            self._dirty_wires.update(self.wires)
+            for bid in change.moved[key]:
+                item = self.blocks.get(bid)
+                if isinstance(item, BlockItem):
+                    self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
+                                             if isinstance(i, WireItem))
         for bid in change.renamed.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
@@ -365,6 +369,14 @@ class CanvasScene(QGraphicsScene):
     def chips_of(self, card: str) -> list:
         """Ids of the chips in ``card`` (none when it holds none or Fold is off)."""
         return self._chips.get(card, [])
+
+    def set_caching(self, on: bool) -> None:
+        """Let cards and badges keep their picture in a device pixmap (on, for the screen) or paint
+        afresh (off: a vector picture then holds shapes and text, not bitmaps)."""
+        mode = QGraphicsItem.CacheMode.DeviceCoordinateCache if on else QGraphicsItem.CacheMode.NoCache
+        for item in [*self.blocks.values(), *(b for bs in self.badges.values() for b in bs)]:
+            if not isinstance(item, ChipItem):
+                item.setCacheMode(mode)
 
     def cards(self):
         """``(block id, BlockItem)`` for every card (chips excluded)."""

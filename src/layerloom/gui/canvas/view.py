@@ -748,7 +748,9 @@ class CanvasView(QGraphicsView):
         if not painter.begin(gen):
             return False
         painter.fillRect(QRectF(0, 0, rect.width(), rect.height()), theme.CANVAS)
+        self.canvas_scene.set_caching(False)
         self.canvas_scene.render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
         painter.end()
+        self.canvas_scene.set_caching(True)
         self._sync_overview()
         return True

@@ -90,7 +90,8 @@ class WireItem(QGraphicsItem):
         bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
         if self.label:
             fm = metrics("figure")
-            mid = self._path.pointAtPercent(0.5)
+            mid = (QLineF(*points[2], *points[3]).center() if points  # a routed wire: the middle of its lane
+                   else self._path.pointAtPercent(0.5))
             w, h = advance("figure", self.label) + 6.0, fm.height() + 1.0
             self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
             bounds = bounds.united(self._label_rect)
