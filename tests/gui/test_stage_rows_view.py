@@ -168,3 +168,23 @@ def test_zoom_to_selection_and_the_zoom_readout(qtbot, tmp_path):
     assert window.zoom_label.text() == "100 %"
     window.close()
 
+
+
+def test_a_selected_chip_is_renamed_deleted_and_chained_from_like_a_block(qtbot, tmp_path):
+    d, c, bn, act, f, bad = folded_design()
+    window = window_on(qtbot, tmp_path, d)
+    canvas, doc = window.canvas, window.document
+    d = doc.design
+    doc.select([act])
+    canvas.rename_selected()  # F2 on a chip edits its name over the chip
+    assert canvas._names.isVisible()
+    canvas._names.hide()
+    canvas._quick_chosen("Dropout")  # Quick add from a chip: wired from it, placed right of its card
+    (drop,) = [b.id for b in d.blocks.values() if b.kind == "Dropout"]
+    assert any(w.src == act and w.dst == drop for w in d.wires)
+    assert d.blocks[drop].position[0] > d.blocks[c].position[0] + W
+    doc.select([bn])
+    canvas.setFocus()
+    QTest.keyClick(canvas, Qt.Key.Key_Delete)
+    assert bn not in d.blocks and doc.undo_stack.undoText() == "Delete bn_1"
+    window.close()

@@ -54,6 +54,10 @@ class ChipItem(QGraphicsRectItem):
     def output_pos(self, port: int):
         return self.card.output_pos(0)
 
+    def title_rect(self) -> QRectF:
+        """Where its name is edited in place: over the chip."""
+        return self.rect()
+
     def paint(self, painter, option, widget=None) -> None:
         if option.levelOfDetailFromTransform(painter.worldTransform()) < far_zoom():
             return  # far out the card shows only its name and shape

@@ -24,6 +24,7 @@ from layerloom.gui.canvas import stage_summary
 from layerloom.gui.canvas.stage_summary import overview_names
 from layerloom.gui.canvas.block_item import H, W, BlockItem, summary_zoom
 from layerloom.gui.canvas.block_item import font as block_font
+from layerloom.gui.canvas.chips import ChipItem
 from layerloom.gui.canvas.name_editor import NameEditor
 from layerloom.gui.canvas.quick_add import QuickAdd
 from layerloom.gui.canvas.scene import CanvasScene
@@ -549,7 +550,7 @@ class CanvasView(QGraphicsView):
         if source is None:
             source = self._selected_source()
             if source is not None:
-                item = self.canvas_scene.blocks[source[0]]
+                item = self.canvas_scene.blocks[self.canvas_scene.card_of(source[0])]  # a chip's card
                 spot = item.pos() + QPointF(COLUMN + W / 2, H / 2)
         self.add_kind(kind, spot, source, from_selection=False)
         self.setFocus()
@@ -561,7 +562,7 @@ class CanvasView(QGraphicsView):
     def delete_selection(self) -> None:
         """Delete the selected blocks (with their wires) and the selected wires, as one edit."""
         design = self.document.graph
-        ids = [i.block_id for i in self.canvas_scene.selectedItems() if isinstance(i, BlockItem)]
+        ids = [i.block_id for i in self.canvas_scene.selectedItems() if isinstance(i, (BlockItem, ChipItem))]
         gone = set(ids)
         wires = [i.wire for i in self.canvas_scene.selectedItems()
                  if isinstance(i, WireItem) and i.wire.src not in gone and i.wire.dst not in gone]
