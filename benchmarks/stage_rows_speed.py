@@ -89,7 +89,19 @@ def main() -> None:
 
     print(f"fit to view: zoom {view.zoom_level():.3f}, overview drawing {'on' if scene.overview else 'off'}, "
           f"stage labels {'on' if view.shows_stage_summaries() else 'off'}")
+    middle = lay.rows[len(lay.rows) // 2].cards[3]
+    step = [0]
+
+    def drag_frame():  # move one card, re-route its wires, repaint (the rest of the overview is blitted)
+        step[0] += 1
+        x, y = design.blocks[middle].position
+        scene.blocks[middle].setPos(x + 3.0 * step[0], y + 2.0 * (step[0] % 7))
+        scene.flush_wires()
+        view.viewport().repaint()
+
     for label in ("folded cards", "unfolded (same positions)"):
+        report(f"drag one card far out, {label}", timed(drag_frame, FRAMES), 16)
+        scene.blocks[middle].setPos(*design.blocks[middle].position)
         frame()
         repaint()
         report(f"fit-to-view repaint, {label}", timed(repaint, FRAMES), 16)

@@ -86,6 +86,13 @@ def detail_text(block, motif=None) -> str:
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
 
 
+def _overview_colour(item: BlockItem):
+    """A card's outline far out: selection, else error or warning, else the plain edge."""
+    status = item.state.status
+    return (theme.ACCENT if item.isSelected() else
+            theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE)
+
+
 def _rect(item: BlockItem) -> tuple:
     p = item.pos()
     return (p.x(), p.y(), p.x() + W, p.y() + H)
@@ -122,14 +129,15 @@ class CanvasScene(QGraphicsScene):
         self._ov_rects: dict = {}  # colour rgba → (colour, {block id → card rect})
         self._ov_where: dict = {}  # block id → colour rgba of the group holding it
         self._ov_valid = False
-        self.overview_revision = 0  # grows whenever what the overview draws may have changed
+        self.overview_revision = 0  # grows whenever the overview's still part may have changed
+        self.moving: set[str] = set()  # cards dragged since the last change of the document
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
         document.replaced.connect(self.rebuild)
         document.graph_changed.connect(self.rebuild)
         document.selection_changed.connect(self._select_from_document)
         self.selectionChanged.connect(self._select_to_document)
-        self.selectionChanged.connect(self._overview_stale)
+        self.selectionChanged.connect(self._overview_reselect)
         self.rebuild()
 
     @property
@@ -176,6 +184,7 @@ class CanvasScene(QGraphicsScene):
     def _on_changed(self, change) -> None:
         key, graph = self.document.graph_key, self.graph
         self.overview_revision += 1
+        self.moving.clear()
         if key in change.topology:
             self._sync_topology()
         for bid in change.moved.get(key, ()):
@@ -351,20 +360,41 @@ class CanvasScene(QGraphicsScene):
         for item in items:
             _overview_flags(item, on)
 
-    def overview_shapes(self) -> tuple[list, list]:
+    def overview_shapes(self, moving: bool | None = None) -> tuple[list, list]:
         """Wire lines, and (colour, card rectangles) groups: selection, error, warning, plain. Kept
-        up to date piece by piece while blocks move; made again after other changes."""
+        up to date piece by piece while blocks move; made again after other changes. ``moving``
+        True gives only the cards being dragged and their wires, False all the rest."""
         if not self._ov_valid:
             self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
             for bid, item in self.cards():
-                status = item.state.status
-                colour = (theme.ACCENT if item.isSelected() else
-                          theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE)
+                colour = _overview_colour(item)
                 self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
                 self._ov_where[bid] = colour.rgba()
             self._ov_valid = True
-        return [ln for lines in self._ov_lines.values() for ln in lines], [(c, list(r.values())) for c, r in self._ov_rects.values()]
+        if moving is None or not self.moving:
+            if moving:
+                return [], []
+            return ([ln for lines in self._ov_lines.values() for ln in lines],
+                    [(c, list(r.values())) for c, r in self._ov_rects.values()])
+        dragged = self._moving_wires()
+        lines = [ln for w, ls in self._ov_lines.items() if (w in dragged) == moving for ln in ls]
+        return lines, [(c, [r for b, r in rs.items() if (b in self.moving) == moving]) for c, rs in self._ov_rects.values()]
+
+    def overview_cards(self, moving: bool | None = None) -> list:
+        """``(scene rectangle, name)`` of every card far out (``moving`` as for :meth:`overview_shapes`)."""
+        self.overview_shapes()
+        blocks, dragged = self.blocks, self.moving
+        return [(r, blocks[b].state.title) for _, rs in self._ov_rects.values() for b, r in rs.items()
+                if moving is None or (b in dragged) == moving]
+
+    def _moving_wires(self) -> set:
+        g, out = self.graph, set()
+        for card in self.moving:
+            for bid in (card, *self._chips.get(card, ())):
+                out.update(g.in_wires.get(bid, ()))
+                out.update(g.out_wires.get(bid, ()))
+        return out
 
     def chips_of(self, card: str) -> list:
         """Ids of the chips in ``card`` (none when it holds none or Fold is off)."""
@@ -403,10 +433,25 @@ class CanvasScene(QGraphicsScene):
         self._ov_valid = False
         self.overview_revision += 1
 
+    def _overview_reselect(self) -> None:
+        """After a selection change, move only the cards whose outline colour changed."""
+        self.overview_revision += 1
+        if not self._ov_valid:
+            return
+        for bid, item in self.cards():
+            colour = _overview_colour(item)
+            was = self._ov_where.get(bid)
+            if was != colour.rgba():
+                rect = self._ov_rects[was][1].pop(bid) if was is not None else CARD_RECT.translated(item.pos())
+                self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = rect
+                self._ov_where[bid] = colour.rgba()
+
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
         item = self.blocks[block_id]
-        self.overview_revision += 1
+        if block_id not in self.moving:  # the still part is drawn once more without it
+            self.moving.add(block_id)
+            self.overview_revision += 1
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
         self.obstacles.put(block_id, _rect(item))
@@ -433,7 +478,8 @@ class CanvasScene(QGraphicsScene):
                 item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)))
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
-                self.overview_revision += 1
+                if src not in self.moving and dst not in self.moving:
+                    self.overview_revision += 1
         self._dirty_wires.clear()
 
     # ----- selection, both ways

@@ -12,7 +12,7 @@ from functools import lru_cache
 from typing import NamedTuple
 
 from PySide6.QtCore import QPointF, QRectF, Qt
-from PySide6.QtGui import QFont, QFontMetricsF
+from PySide6.QtGui import QFont, QFontMetricsF, QStaticText, QTransform
 
 from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import H, W, sized_font
@@ -120,14 +120,18 @@ def top_room() -> float:
 
 
 @lru_cache(maxsize=8192)
-def _elided(text: str, width: int) -> str:
-    fm = QFontMetricsF(sized_font("detail", NAME_PX))
-    return fm.elidedText(text, Qt.TextElideMode.ElideRight, width)
+def _name(text: str, width: int) -> QStaticText:
+    """A card's name elided to ``width`` pixels, laid out once (drawn many times)."""
+    f = sized_font("detail", NAME_PX)
+    st = QStaticText(QFontMetricsF(f).elidedText(text, Qt.TextElideMode.ElideRight, width))
+    st.prepare(QTransform(), f)
+    return st
 
 
-def overview_names(painter, view, exposed: QRectF) -> None:
+def overview_names(painter, view, exposed: QRectF, moving: bool | None = None) -> None:
     """Far out, each card's name in viewport pixels at :data:`NAME_PX`, elided to the card's width
-    on screen (cards narrower than :data:`NAME_ROOM` pixels show none)."""
+    on screen (cards narrower than :data:`NAME_ROOM` pixels show none); ``moving`` True: only the
+    cards being dragged, False: all others."""
     zoom = view.zoom_level()
     width = W * zoom - 4.0
     if width < NAME_ROOM:
@@ -137,11 +141,10 @@ def overview_names(painter, view, exposed: QRectF) -> None:
     painter.resetTransform()
     painter.setFont(sized_font("detail", NAME_PX))
     painter.setPen(theme.TEXT)
-    for _, item in view.canvas_scene.cards():
-        p = item.pos()
-        if not exposed.intersects(QRectF(p.x(), p.y(), W, H)):
-            continue
-        corner = transform.map(p)
-        painter.drawText(QPointF(corner.x() + 2.0, corner.y() + H * zoom / 2 + NAME_PX * 0.35),
-                         _elided(item.state.title, int(width)))
+    down = H * zoom / 2 - NAME_PX * 0.65
+    room = int(width)
+    for rect, title in view.canvas_scene.overview_cards(moving):
+        if exposed.intersects(rect):
+            corner = transform.map(rect.topLeft())
+            painter.drawStaticText(QPointF(corner.x() + 2.0, corner.y() + down), _name(title, room))
     painter.restore()

@@ -129,23 +129,25 @@ class CanvasView(QGraphicsView):
             pixmap.fill(Qt.GlobalColor.transparent)
             p = QPainter(pixmap)
             p.setTransform(t)
-            self._draw_overview(p, self.mapToScene(self.viewport().rect()).boundingRect())
+            self._draw_overview(p, self.mapToScene(self.viewport().rect()).boundingRect(), moving=False)
             p.end()
             self._ov_cache = (key, pixmap)
         painter.save()
         painter.resetTransform()
         painter.drawPixmap(0, 0, self._ov_cache[1])
         painter.restore()
+        if self.canvas_scene.moving:  # cards being dragged, and their wires, drawn live on top
+            self._draw_overview(painter, self.mapToScene(self.viewport().rect()).boundingRect(), moving=True)
 
     def shows_stage_summaries(self) -> bool:
         """Whether cards are too small here to show name and shape, so stage rows are labelled."""
         return self.transform().m11() < summary_zoom()
 
-    def _draw_overview(self, painter, exposed: QRectF) -> None:
+    def _draw_overview(self, painter, exposed: QRectF, moving: bool | None = None) -> None:
         """Far out, every wire and card in a few calls: cards as outlined rectangles (status and
         selection by outline colour; specks when tiny), each with its name at a readable size
         where the card is wide enough on screen to hold some of it."""
-        lines, rects = self.canvas_scene.overview_shapes()
+        lines, rects = self.canvas_scene.overview_shapes(moving)
         painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
         painter.setPen(QPen(theme.WIRE, 0))
         painter.drawLines(lines)
@@ -159,7 +161,7 @@ class CanvasView(QGraphicsView):
                 painter.setBrush(theme.CARD)
             painter.drawRects(group)
         if not specks:
-            overview_names(painter, self, exposed)
+            overview_names(painter, self, exposed, moving)
 
     def zoom_in(self) -> None:
         self._zoom_about_centre(ZOOM_STEP)
