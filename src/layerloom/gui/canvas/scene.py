@@ -469,18 +469,38 @@ class CanvasScene(QGraphicsScene):
         """Re-route every dirty wire once."""
         self._flush_queued = False
         blocks, folds, obstacles = self.blocks, self.folds, self.obstacles
+        out_wires = self.graph.out_wires
+        for w in [*self._dirty_wires]:  # wires sharing an output: the one labelled may change
+            siblings = out_wires.get(w.src, ())
+            if len(siblings) > 1:
+                self._dirty_wires.update(x for x in siblings if x.src_port == w.src_port and x in self.wires)
         for w in self._dirty_wires:
             item = self.wires.get(w)
             if item is not None:
                 src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
                 a = blocks[src].output_pos(w.src_port if src == w.src else 0)
                 b = blocks[dst].input_pos(w.dst_port)
-                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)))
+                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
+                                  self._labelled(w))
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
                 if src not in self.moving and dst not in self.moving:
                     self.overview_revision += 1
         self._dirty_wires.clear()
+
+    def _labelled(self, w) -> bool:
+        """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the
+        nearest card does (they all carry the same tensor)."""
+        siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]
+        if len(siblings) < 2:
+            return True
+        here = self.blocks[self.card_of(w.src)].pos()
+
+        def distance(x):
+            p = self.blocks[self.card_of(x.dst)].pos() - here
+            return (abs(p.x()) + abs(p.y()), x.dst)
+
+        return min(siblings, key=distance) == w
 
     # ----- selection, both ways
     def _select_to_document(self) -> None:

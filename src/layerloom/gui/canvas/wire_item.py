@@ -72,13 +72,14 @@ class WireItem(QGraphicsItem):
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
-    def set_geometry(self, a: QPointF, b: QPointF, points=None) -> None:
+    def set_geometry(self, a: QPointF, b: QPointF, points=None, labelled: bool = True) -> None:
         """Draw the wire from ``a`` to ``b`` as a curve, or through corner ``points`` when given;
-        width and label follow :attr:`carried`."""
+        width and label follow :attr:`carried` (no label when not ``labelled``: another wire from
+        the same output already says the shape)."""
         shape = self.carried
         self.prepareGeometryChange()
         self.known = shape is not None
-        self.label = str(shape) if shape is not None else ""
+        self.label = str(shape) if shape is not None and labelled else ""
         self.width = stroke_width(shape[0] if shape is not None else None)
         if points:
             self._path = routed(points)
