@@ -63,9 +63,11 @@ class Change:
 
     @property
     def reinfers(self) -> bool:
-        """True when shapes, findings or costs may differ. A move never re-infers; a rename refreshes
-        only the findings that name the block."""
-        return bool(self.dirty or self.topology or self.motifs or self.renamed or self.fields & {"batch", "dtype"})
+        """True when shapes, findings or costs may differ (a budget or target edit changes the budget
+        findings and the latency). A move never re-infers; a rename refreshes only the findings that
+        name the block."""
+        return bool(self.dirty or self.topology or self.motifs or self.renamed
+                    or self.fields & {"batch", "dtype", "budget", "target"})
 
 
 class Motif(Graph):

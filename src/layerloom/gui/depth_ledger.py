@@ -151,7 +151,7 @@ class DepthLedger(QWidget):
 
     # ----- model → chart
     def _changed(self, change) -> None:
-        if change.reinfers or change.fields & {"budget", "target", "baseline"} or change.renamed:
+        if change.reinfers or "baseline" in change.fields:
             if not self._pending:  # one refresh per event-loop pass, however many edits arrive
                 self._pending = True
                 QTimer.singleShot(0, self.refresh)
