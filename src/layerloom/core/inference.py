@@ -327,14 +327,15 @@ class GraphInference:
                        f"does not have (it has: {', '.join(motif.params) or 'no parameters'})")
         run = self.analysis.motif_run(motif, ins, params, self.stack)
         found += [f.inside(blk.id, blk.name) for f in run.findings]
+        if any(o is None for o in run.outs):
+            return None  # an error inside was reported; whether copies stack is unknown
         repeat = s["repeat"]
         if repeat > 1 and (len(ins) != 1 or len(run.outs) != 1 or run.outs[0] != ins[0]):
+            came = ins[0] if len(ins) == 1 else f"{len(ins)} inputs"
             shown = run.outs[0] if len(run.outs) == 1 else f"{len(run.outs)} outputs"
             raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {motif.name!r} ×{repeat}, but one use turns "
-                       f"{ins[0] if len(ins) == 1 else f'{len(ins)} inputs'} into {shown}, so the copies cannot be "
-                       "stacked; use repeat 1 for the shape-changing use", numbers=(str(shown), str(ins[0])))
-        if any(o is None for o in run.outs):
-            return None
+                       f"{came} into {shown}, so the copies cannot be stacked; use repeat 1 for the shape-changing use",
+                       numbers=(str(shown), str(came)))
         for _ in range(repeat):
             rf = (rf[0] + (run.rf[0] - 1) * jump[0], rf[1] + (run.rf[1] - 1) * jump[1])
             jump = (jump[0] * run.jump[0], jump[1] * run.jump[1])
