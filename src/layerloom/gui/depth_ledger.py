@@ -1,6 +1,7 @@
 """The Depth ledger: how weights, MACs, activation memory and estimated latency add up along depth.
 
-x is the step in the core's depth order (hover names the block); y is the chosen metric, as a
+x counts blocks as executed in the core's depth order (a motif use spans the blocks it runs, so a
+network draws the same whether or not it is grouped; hover names the block); y is the metric, as a
 cumulative curve (activation memory: live bytes at each step and their running peak) or as
 per-block bars. The design's budget is drawn as a line and the block where the curve passes it
 is marked; a pinned baseline is overlaid dashed, with a table of totals and their change.
@@ -69,6 +70,7 @@ class DepthLedger(QWidget):
         self.document = document
         self.ledger: Ledger | None = None
         self.values = np.zeros(0)
+        self.x = np.zeros(0)  # each block's last step as executed
         self._pending = False
 
         self.metric_box = QComboBox()
@@ -96,7 +98,7 @@ class DepthLedger(QWidget):
         self.plot = pg.PlotWidget(axisItems={"left": self.axis, "bottom": StepAxis("bottom")}, background=theme.CARD)
         self.plot.setMenuEnabled(False)
         self.plot.showGrid(x=True, y=True, alpha=0.15)
-        self.plot.setLabel("bottom", "depth (blocks in order)")
+        self.plot.setLabel("bottom", "depth (blocks as executed)")
         self.plot.getPlotItem().hideButtons()
         self.base_curve = self.plot.plot(pen=BASE_PEN, name="baseline")
         self.peak_curve = self.plot.plot(pen=PEAK_PEN)
@@ -179,7 +181,7 @@ class DepthLedger(QWidget):
         key, _, fmt, budget_key, base_key = METRICS[self.metric_box.currentIndex()]
         cumulative = self.view_box.currentIndex() == 0
         self.axis.format = fmt
-        x = np.arange(1, len(L.order) + 1, dtype=float)
+        self.x = x = L.steps.astype(float)
         self.values = y = self.series(key, cumulative)
         if cumulative:
             self.curve.setData(x, y)
@@ -223,7 +225,8 @@ class DepthLedger(QWidget):
                 self.base_curve.setData([], [])
                 return
             values = np.diff(values, prepend=0.0)
-        self.base_curve.setData(np.arange(1, len(values) + 1, dtype=float), values)
+        steps = base["blocks"].get("step") or range(1, len(values) + 1)  # pinned before steps were kept: one per block
+        self.base_curve.setData(np.asarray(steps, dtype=float)[:len(values)], values[:len(steps)])
 
     def _draw_crossing(self, budget_key: str) -> None:
         code = f"budget.{budget_key}"
@@ -231,7 +234,7 @@ class DepthLedger(QWidget):
         for f in self.document.design.analysis().budget_findings():
             if f.code == code and f.block in self.ledger.order:
                 i = self.ledger.order.index(f.block)
-                spots.append({"pos": (i + 1, self.values[i]), "data": f.block})
+                spots.append({"pos": (self.x[i], self.values[i]), "data": f.block})
         self.crossing.setData(spots)
         self.crossing.setToolTip("\n".join(f.message for f in self.document.design.analysis().budget_findings()
                                            if f.code == code))
@@ -266,7 +269,7 @@ class DepthLedger(QWidget):
         index = self._index(ids[0]) if ids and not inside else None
         self.marker.setVisible(index is not None)
         if index is not None:
-            self.marker.setValue(index + 1)
+            self.marker.setValue(self.x[index])
 
     # ----- chart → model
     def _index(self, block_id: str) -> int | None:
@@ -279,9 +282,9 @@ class DepthLedger(QWidget):
         vb = self.plot.getPlotItem().vb
         if not vb.sceneBoundingRect().contains(scene_pos) or not len(self.values):
             return None
-        x = vb.mapSceneToView(scene_pos).x()
-        i = int(round(x)) - 1
-        return i if 0 <= i < len(self.values) else None
+        step = round(vb.mapSceneToView(scene_pos).x())
+        i = int(np.searchsorted(self.x, step))  # the block whose steps reach ``step``
+        return i if step >= 1 and i < len(self.values) else None
 
     def _hovered(self, scene_pos) -> None:
         i = self._step_at(scene_pos)
@@ -291,8 +294,8 @@ class DepthLedger(QWidget):
         bid = self.ledger.order[i]
         block = self.document.design.blocks[bid]
         fmt = METRICS[self.metric_box.currentIndex()][2]
-        self.hover.setText(f"{i + 1}. {block.name} ({block.kind})\n{fmt(self.values[i])}")
-        self.hover.setPos(i + 1, self.values[i])
+        self.hover.setText(f"{int(self.x[i])}. {block.name} ({block.kind})\n{fmt(self.values[i])}")
+        self.hover.setPos(self.x[i], self.values[i])
         self.hover.show()
 
     def _clicked(self, event) -> None:
