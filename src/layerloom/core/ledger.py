@@ -23,6 +23,16 @@ them for users):
 - **estimated latency** (with a target, see :mod:`layerloom.core.targets`): per block
   max(MACs / peak MAC rate, bytes moved / bandwidth) + the target's per-layer overhead, for blocks
   that compute (not Input, Output or views); a first-order roofline estimate.
+- **training memory** at batch B (see :mod:`layerloom.core.training_memory`): weights +
+  gradients (one copy) + optimizer state (SGD: none; SGD with momentum: one copy; Adam: two copies;
+  common practice) + activations kept for the backward pass. First order: each block keeps what its
+  backward needs, as PyTorch's autograd does (a convolution, Linear, batch norm, pooling, most
+  activations and a Multiply keep their inputs; ReLU, Sigmoid, Tanh and Softmax their output;
+  max pooling also an int64 index per output; global average pooling, Add, Concat, Upsample and
+  views nothing), each tensor counted once however many blocks keep it; per-channel batch-norm
+  statistics and optimizer step counters are not counted. All at the design's element type; with
+  mixed precision, activations at fp16 and weights, gradients and optimizer state at fp32 (master
+  weights) plus an fp16 working copy of the weights.
 - **depth order**: topological order by longest-path level from the inputs, ties broken by the
   order blocks were added; **depth** is that level.
 """
