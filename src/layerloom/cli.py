@@ -10,6 +10,7 @@ import argparse
 import json
 import sys
 
+from layerloom import fit_command
 from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot_of_file
 from layerloom.core.design import DTYPES, Design
@@ -20,8 +21,9 @@ from layerloom.core.ledger_csv import ledger_csv, rf_text
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
+from layerloom.measure import command as measure_command
 
-COMMANDS = ("check", "ledger", "export")
+COMMANDS = ("check", "ledger", "export", "measure", "fit")
 
 
 class UsageError(Exception):
@@ -215,6 +217,8 @@ def _parser() -> argparse.ArgumentParser:
     ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
                     "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
     ex.set_defaults(run=_export)
+    measure_command.add_parser(sub)
+    fit_command.add_parser(sub)
     return p
 
 

@@ -116,10 +116,15 @@ class Ledger:
     def _latency(self) -> np.ndarray:
         """Estimated seconds per block on the target (zeros for blocks that do no work)."""
         t = self.target
-        work = np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
         compute = self.costs[:, 2] / t.macs_per_second
         memory = self.moved / t.bytes_per_second
-        return np.where(work, np.maximum(compute, memory) + t.overhead, 0.0)
+        return np.where(self.working, np.maximum(compute, memory) + t.overhead, 0.0)
+
+    @property
+    def working(self) -> np.ndarray:
+        """Per step: whether the block computes something (not Input, Output, a view or a block
+        without a result)."""
+        return np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
 
     def _works(self, block_id: str) -> bool:
         kind = self.analysis.design.blocks[block_id].kind
