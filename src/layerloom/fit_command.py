@@ -91,7 +91,7 @@ def _print(design, budget, result, front) -> None:
                        for k, v in budget.items())
     print(f"budget: {limits}")
     if result.best is None:
-        print(f"no scaling of {design.name} fits the budget (searched multipliers 1/32 … 8 in {result.seconds:.2f} s)")
+        print(f"no scaling of {design.name} fits the budget (searched multipliers from 1/32 in {result.seconds:.2f} s)")
         return
     table = [("candidate", "weights", "MACs", "peak memory", "latency", "")]
     for c, on_front in zip(result.candidates, front):

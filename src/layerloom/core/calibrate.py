@@ -4,10 +4,12 @@ fitted to the measured time of each block, by least squares (numpy only).
 Model (:mod:`layerloom.core.targets`): ``t = max(MACs / rate, bytes / bandwidth) + overhead``. A
 block is compute-bound exactly when its intensity (MACs per byte) is at least rate / bandwidth, so
 the blocks sorted by intensity split into a memory-bound lower part and a compute-bound upper part.
-Every split that leaves both parts non-empty is tried: it makes the model linear in (1 / rate,
-1 / bandwidth, overhead), solved by least squares on relative error (each block weighs the same,
-whatever its size); the fit whose full roofline predicts the blocks best wins. On times that follow a
-roofline exactly, the true split gives a zero residual, so its rates come back exactly.
+Every split is tried: it makes the model linear in (1 / rate, 1 / bandwidth, overhead), solved by
+least squares on relative error (each block weighs the same, whatever its size), with no coefficient
+below zero (each subset of the three is tried). A rate the split leaves undetermined (a part that
+is empty, or a coefficient at zero) is set as high as keeps every block on its side. The fit whose
+full roofline predicts the blocks best wins. On times that follow a roofline exactly, the true split
+gives a zero residual, so its rates come back exactly.
 
 Samples are plain blocks (motif instances hold many layers, each with its own overhead) that do
 work; the measured module runs in fp32, so bytes are counted at 4 per element.
@@ -58,11 +60,11 @@ def calibrate(data: list[Sample], name: str, assumptions: str = "") -> Target:
     m = np.array([s.macs for s in data])
     b = np.array([s.moved for s in data])
     t = np.array([s.seconds for s in data])
-    usable = (m > 0) & (b > 0) & (t > 0)
+    usable = (b > 0) & (t > 0)
     m, b, t = m[usable], b[usable], t[usable]
     rank = np.argsort(m / b if len(m) else m, kind="stable")
     best: tuple[float, tuple] | None = None
-    for split in range(1, len(rank)):  # rank[:split] memory-bound, rank[split:] compute-bound
+    for split in range(len(rank) + 1):  # rank[:split] memory-bound, rank[split:] compute-bound
         compute = np.zeros(len(t), dtype=bool)
         compute[rank[split:]] = True
         found = _solve(m, b, t, compute)
@@ -80,13 +82,28 @@ def calibrate(data: list[Sample], name: str, assumptions: str = "") -> Target:
 
 
 def _solve(m, b, t, compute) -> tuple[float, float, float] | None:
-    """Least squares (relative) of t = x·m [compute] + y·b [memory] + o; None unless x, y > 0."""
+    """Least squares (relative) of t = x·m [compute] + y·b [memory] + o with x, y, o ≥ 0; a rate
+    left at zero is then set from the other (see the module docstring). None if both are zero."""
     a = np.column_stack([np.where(compute, m, 0.0), np.where(compute, 0.0, b), np.ones(len(t))]) / t[:, None]
     rhs = np.ones(len(t))
-    coef = np.linalg.lstsq(a, rhs, rcond=None)[0]
-    if coef[2] < 0:  # no negative overhead: fit the two rates alone
-        coef = np.append(np.linalg.lstsq(a[:, :2], rhs, rcond=None)[0], 0.0)
-    x, y, o = (float(c) for c in coef)
+    best = None
+    for cols in ((0, 1, 2), (0, 1), (0, 2), (1, 2), (0,), (1,)):
+        coef = np.zeros(3)
+        coef[list(cols)] = np.linalg.lstsq(a[:, cols], rhs, rcond=None)[0]
+        if (coef < 0).any():
+            continue
+        err = float(np.sum((a @ coef - rhs) ** 2))
+        if best is None or err < best[0]:
+            best = (err, coef)
+    if best is None:
+        return None
+    x, y, o = (float(c) for c in best[1])
+    if x <= 0 and y <= 0:
+        return None
+    if x <= 0:  # as fast as keeps every block with MACs memory-bound
+        x = float(np.min(y * b[m > 0] / m[m > 0])) if (m > 0).any() else y * 1e-6
+    if y <= 0:  # as wide as keeps every block compute-bound
+        y = float(np.min(x * m / b)) if (m > 0).all() else x * 1e-6
     return (x, y, o) if x > 0 and y > 0 else None
 
 

@@ -32,7 +32,7 @@ from layerloom.core.ledger import Ledger
 
 ALPHA, BETA, GAMMA = 1.2, 1.1, 1.15  # EfficientNet's depth, width and resolution bases (Tan & Le 2019, eq. 3)
 FAMILIES = ("width", "resolution", "depth", "compound")
-LOW, HIGH = 1 / 32, 8.0  # range of the multiplier searched
+LOW, HIGH, LIMIT = 1 / 32, 4.0, 1024.0  # the search starts in [LOW, HIGH], doubling HIGH up to LIMIT
 PRECISION = 1.01  # bisection stops when the bracket is this narrow (ratio)
 GRID = 1.25  # smaller candidates listed below each family's largest: s / 1.25, s / 1.25², …
 GRID_STEPS = 5
@@ -215,8 +215,10 @@ def _largest(trial: _Trial, family: str) -> Candidate | None:
     if not lo.fits:
         return None
     hi = trial.cost(family, HIGH)
-    if hi.fits:
-        return hi
+    while hi.fits:
+        if hi.multiplier >= LIMIT:
+            return hi
+        lo, hi = hi, trial.cost(family, hi.multiplier * 2)
     while hi.multiplier / lo.multiplier > PRECISION:
         mid = trial.cost(family, math.sqrt(lo.multiplier * hi.multiplier))
         lo, hi = (mid, hi) if mid.fits else (lo, mid)
