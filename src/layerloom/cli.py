@@ -21,6 +21,7 @@ from layerloom.core.ledger_csv import ledger_csv, rf_text
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
+from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
 from layerloom.measure import command as measure_command
 
 COMMANDS = ("check", "ledger", "export", "measure", "fit")
@@ -134,6 +135,7 @@ def _ledger(args) -> int:
           f" · buffers {units.count(t.buffers)} · MACs {units.count(t.macs)} ({t.macs:,})")
     print(f"peak live activations {units.size(t.peak_memory)} at {peak_name} (batch {ledger.batch}, {ledger.dtype};"
           " first-order: execution in depth order, no in-place reuse)")
+    print(training_text(training_memory(ledger, args.optimizer)) + " (first-order)")
     if timed:
         print(f"estimated latency {t.latency * 1e3:.3g} ms on {ledger.target.name} ({ledger.target.assumptions}). "
               f"{CAUTION}")
@@ -207,6 +209,8 @@ def _parser() -> argparse.ArgumentParser:
     led.add_argument("--batch", type=int, help="batch size N (default: the design's)")
     led.add_argument("--target", metavar="NAME", help="estimate latency on a target preset: "
                      + "; ".join(f"'{t.name}'" for t in PRESETS))
+    led.add_argument("--optimizer", choices=tuple(OPTIMIZERS), default="sgd_momentum",
+                     help="optimizer for the training-memory line (state: sgd none, sgd_momentum 1 copy, adam 2)")
     led.add_argument("--baseline", metavar="OTHER.loom", help="compare totals with another design "
                      "(default: the baseline pinned in FILE, if any)")
     led.set_defaults(run=_ledger)

@@ -22,6 +22,7 @@ from typing import NamedTuple
 
 import numpy as np
 
+from layerloom.core import units
 from layerloom.core.inference import GraphInference
 from layerloom.core.kinds import KINDS
 
@@ -48,6 +49,15 @@ class TrainingMemory(NamedTuple):
     @property
     def total(self) -> int:
         return self.weights + self.gradients + self.optimizer_state + self.weight_copy + self.activations
+
+
+def training_text(m: TrainingMemory) -> str:
+    """One line: the parts and the total, e.g. for the ledger's summary."""
+    copy = f" + fp16 copy {units.size(m.weight_copy)}" if m.mixed else ""
+    return (f"training at batch {m.batch} ({m.optimizer.replace('_', ' ')}{', mixed precision' if m.mixed else ''}): "
+            f"weights {units.size(m.weights)} + gradients {units.size(m.gradients)} + optimizer state "
+            f"{units.size(m.optimizer_state)}{copy} + activations kept for backward {units.size(m.activations)} "
+            f"= {units.size(m.total)}")
 
 
 class _Kept(NamedTuple):
