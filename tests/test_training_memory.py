@@ -89,3 +89,23 @@ def test_training_curve_ends_at_the_total_and_grows_along_depth():
         assert curve[-1] == training_memory(ledger, optimizer).total
     with pytest.raises(ValueError, match="rmsprop"):
         training_memory(ledger, "rmsprop")
+
+
+def test_ledger_command_prints_and_returns_the_training_line():
+    import json
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    env = {"PYTHONPATH": str(root / "src"), "PATH": "/usr/bin:/bin"}
+    args = [sys.executable, "-m", "layerloom", "ledger", "samples/fastener_sorter.loom", "--batch", "4", "--optimizer", "adam"]
+    text = subprocess.run(args, capture_output=True, text=True, cwd=root, env=env)
+    data = json.loads(subprocess.run(args + ["--json"], capture_output=True, text=True, cwd=root, env=env).stdout)
+    from layerloom.core.fileformat import load
+
+    design = load(root / "samples" / "fastener_sorter.loom")
+    design.set_field("batch", 4)
+    expected = training_memory(design.ledger(), "adam")
+    assert data["training"]["activations"] == expected.activations and data["training"]["optimizer"] == "adam"
+    assert "training at batch 4 (adam)" in text.stdout and "activations kept for backward" in text.stdout

@@ -103,6 +103,7 @@ def _ledger(args) -> int:
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
                        "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
                        "latency_s": t.latency},
+            "training": training_memory(ledger, args.optimizer)._asdict(),
             "target": ledger.target.to_data() if ledger.target else None,
             "budget": design.budget,
             "baseline": None if baseline is None else {

@@ -9,11 +9,12 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtWidgets import QApplication
 
+from layerloom.core import units
 from layerloom.core.fileformat import dumps, save
 from layerloom.core.fit import fit
 from layerloom.core.ledger import Ledger
-from layerloom.core import units
 from layerloom.core.training_memory import training_curve, training_memory
+from layerloom.gui.budget_dialog import user_targets
 
 from test_window_files import open_window
 
@@ -64,6 +65,7 @@ def test_measure_runs_in_a_worker_can_be_cancelled_and_is_kept_as_one_edit(qtbot
     dialog.keep_button.click()
     assert doc.design.measurement is dialog.measurement and doc.design.target.name == "this machine, 1 thread"
     assert doc.undo_stack.count() == before + 1
+    assert [t.name for t in user_targets(window.settings)] == ["this machine, 1 thread"]  # offered to later designs
     doc.undo_stack.undo()
     assert doc.design.measurement is None and doc.design.target is None
     doc.undo_stack.redo()

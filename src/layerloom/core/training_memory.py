@@ -74,93 +74,103 @@ class _Kept(NamedTuple):
 def kept_for_backward(analysis) -> tuple[np.ndarray, np.ndarray]:
     """Per step of the depth order: elements (per sample, at the activation type) and index bytes
     (per sample) kept for the backward pass, each at the step that produces the tensor."""
-    top = analysis.refresh().top
-    kept = _walk(top, analysis, {})
+    kept = _Walk(analysis.refresh().top, analysis, {}).result()
     return np.asarray(kept.elements, dtype=np.int64), np.asarray(kept.fixed, dtype=np.int64)
 
 
-def _walk(inference: GraphInference, analysis, cache: dict) -> _Kept:
-    g, results, order = inference.graph, inference.results, inference.order
-    inside = inference.params is not None
-    n = len(order)
-    elements, fixed = [0] * n, [0] * n
-    ports = [False] * len(g.of_kind("Input")) if inside else []
-    owner: dict[tuple[str, int], tuple] = {}  # (block, port) → ("port", p) or (step, port)
-    size: dict[tuple, int] = {}
-    counted: set = set()
-    port_of = {b.id: p for p, b in enumerate(g.of_kind("Input"))}
+class _Walk:
+    """One graph walked in its depth order. A tensor is keyed by the step that produces it and its
+    port, or ``("port", p)`` for a motif's input port p (a tensor of the caller's)."""
 
-    def keep(key) -> None:
-        if key is None or key in counted:
+    def __init__(self, inference: GraphInference, analysis, cache: dict):
+        self.inference, self.analysis, self.cache = inference, analysis, cache
+        g = inference.graph
+        self.inside = inference.params is not None
+        n = len(inference.order)
+        self.elements, self.fixed = [0] * n, [0] * n
+        self.ports = [False] * len(g.of_kind("Input")) if self.inside else []
+        self.owner: dict[tuple[str, int], tuple] = {}  # (block, output port) → tensor key
+        self.size: dict[tuple, int] = {}
+        self.counted: set = set()
+
+    def keep(self, key) -> None:
+        """The tensor ``key`` is kept for backward (counted once, at the step that made it)."""
+        if key is None or key in self.counted:
             return
         if key[0] == "port":
-            ports[key[1]] = True
+            self.ports[key[1]] = True
         else:
-            counted.add(key)
-            elements[key[0]] += size[key]
+            self.counted.add(key)
+            self.elements[key[0]] += self.size[key]
 
-    for i, bid in enumerate(order):
-        blk, r = g.blocks[bid], results.get(bid)
-        if r is None:
-            continue
-        ins = [owner.get((w.src, w.src_port)) for w in sorted(g.in_wires[bid], key=lambda w: w.dst_port)]
-        kind = KINDS[blk.kind]
-        s = inference.resolved_settings(blk) if inside else blk.settings
-        if blk.kind == "Input" and inside:
-            owner[(bid, 0)] = ("port", port_of[bid])
-            continue
-        if blk.kind == "Motif":
-            _motif(i, bid, s, r, ins, analysis, inference, cache, owner, size, counted, keep, elements, fixed)
-            continue
+    def made(self, i: int, bid: str, port: int, shape) -> None:
+        self.owner[(bid, port)] = (i, port)
+        self.size[(i, port)] = prod(shape)
+
+    def result(self) -> _Kept:
+        inf = self.inference
+        g = inf.graph
+        port_of = {b.id: p for p, b in enumerate(g.of_kind("Input"))}
+        for i, bid in enumerate(inf.order):
+            blk, r = g.blocks[bid], inf.results.get(bid)
+            if r is None:
+                continue
+            ins = [self.owner.get((w.src, w.src_port)) for w in sorted(g.in_wires[bid], key=lambda w: w.dst_port)]
+            s = inf.resolved_settings(blk) if self.inside else blk.settings
+            if blk.kind == "Input" and self.inside:
+                self.owner[(bid, 0)] = ("port", port_of[bid])
+            elif blk.kind == "Motif":
+                self.motif(i, bid, s, r, ins)
+            else:
+                self.block(i, bid, KINDS[blk.kind], s, r, ins)
+        outs = []
+        for b in g.of_kind("Output"):
+            key = self.owner.get((b.id, 0))
+            outs.append((key[1], False) if key is not None and key[0] == "port" else (None, key in self.counted))
+        return _Kept(self.elements, self.fixed, self.ports, outs)
+
+    def block(self, i, bid, kind, s, r, ins) -> None:
         keeps = kind.backward_keeps(s)
-        if kind.view and "mask" not in keeps:
-            owner[(bid, 0)] = ins[0] if ins else None
-            continue
+        if kind.view and "mask" not in keeps:  # hands on its input (dropout makes a new tensor when training)
+            self.owner[(bid, 0)] = ins[0] if ins else None
+            return
         for p, shape in enumerate(r.outs):
-            owner[(bid, p)] = (i, p)
-            size[(i, p)] = prod(shape)
+            self.made(i, bid, p, shape)
         if "inputs" in keeps:
             for key in ins:
-                keep(key)
+                self.keep(key)
         if "output" in keeps:
-            keep((i, 0))
+            self.keep((i, 0))
         if "mask" in keeps:
-            elements[i] += prod(r.outs[0])
+            self.elements[i] += prod(r.outs[0])
         if "indices" in keeps:
-            fixed[i] += INDEX_BYTES * prod(r.outs[0])
-    outs = []
-    for b in g.of_kind("Output"):
-        key = owner.get((b.id, 0))
-        outs.append((key[1], False) if key is not None and key[0] == "port" else (None, key in counted))
-    return _Kept(elements, fixed, ports, outs)
+            self.fixed[i] += INDEX_BYTES * prod(r.outs[0])
 
-
-def _motif(i, bid, s, r, ins, analysis, inference, cache, owner, size, counted, keep, elements, fixed) -> None:
-    """One motif use (× repeat) at step ``i`` of the outer graph."""
-    motif = analysis.design.motifs[s["motif"]]
-    params = {**motif.params, **{k: v for k, v in s.items() if k not in ("motif", "repeat")}}
-    key = (motif.name, r.ins, tuple(sorted(params.items())))
-    inner = cache.get(key)
-    if inner is None:
-        run = GraphInference(motif, analysis, r.ins, params, inference.stack + (motif.name,))
-        run.run()
-        inner = cache[key] = _walk(run, analysis, cache)
-    repeat = s["repeat"]
-    elements[i] += repeat * sum(inner.elements)
-    fixed[i] += repeat * sum(inner.fixed)
-    for p, kept in enumerate(inner.ports):
-        if kept:
-            keep(ins[p])
-    for j, (through, already) in enumerate(inner.outs):
-        if through is not None:
-            owner[(bid, j)] = ins[through]
-            continue
-        owner[(bid, j)] = (i, j)
-        size[(i, j)] = prod(r.outs[j])
-        if already:
-            counted.add((i, j))
-    if repeat > 1 and inner.ports and inner.ports[0] and inner.outs and not inner.outs[0][1]:
-        elements[i] += (repeat - 1) * prod(r.ins[0])  # each later copy keeps the previous copy's output
+    def motif(self, i, bid, s, r, ins) -> None:
+        """One motif use (× repeat): its inside walked once per input shapes and parameters."""
+        motif = self.analysis.design.motifs[s["motif"]]
+        params = {**motif.params, **{k: v for k, v in s.items() if k not in ("motif", "repeat")}}
+        key = (motif.name, r.ins, tuple(sorted(params.items())))
+        inner = self.cache.get(key)
+        if inner is None:
+            run = GraphInference(motif, self.analysis, r.ins, params, self.inference.stack + (motif.name,))
+            run.run()
+            inner = self.cache[key] = _Walk(run, self.analysis, self.cache).result()
+        repeat = s["repeat"]
+        self.elements[i] += repeat * sum(inner.elements)
+        self.fixed[i] += repeat * sum(inner.fixed)
+        for p, kept in enumerate(inner.ports):
+            if kept:
+                self.keep(ins[p])
+        for j, (through, already) in enumerate(inner.outs):
+            if through is not None:
+                self.owner[(bid, j)] = ins[through]
+                continue
+            self.made(i, bid, j, r.outs[j])
+            if already:
+                self.counted.add((i, j))
+        if repeat > 1 and inner.ports and inner.ports[0] and inner.outs and not inner.outs[0][1]:
+            self.elements[i] += (repeat - 1) * prod(r.ins[0])  # each later copy keeps the previous copy's output
 
 
 def training_memory(ledger, optimizer: str = "sgd_momentum", mixed: bool = False) -> TrainingMemory:

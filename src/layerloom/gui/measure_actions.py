@@ -9,7 +9,7 @@ def open_measure(window):
     """Show the measure dialog beside the editor (not modal: editing goes on while it measures)."""
     from layerloom.gui.measure_dialog import MeasureDialog
 
-    dialog = MeasureDialog(window.document, window)
+    dialog = MeasureDialog(window.document, window, window.settings)
     dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
     dialog.show()
     return dialog

@@ -7,7 +7,7 @@ throughout. The result shows each block's measured time beside its roofline esti
 network against the sum of estimates, and a target calibrated from it (:mod:`layerloom.core.calibrate`)
 with how well it predicts the half of the blocks it was not fitted on. "Keep" stores the
 measurement in the design (the Depth ledger draws it) and, if chosen, the calibrated target, as one
-undoable edit.
+undoable edit; the target is also kept among the user's targets for later designs.
 """
 from __future__ import annotations
 
@@ -26,6 +26,7 @@ from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
 from layerloom.core.measurement import compare
 from layerloom.core.targets import CAUTION
+from layerloom.gui.budget_dialog import keep_target
 
 RUNTIMES = ("torch", "onnxruntime")
 COLUMNS = ("block", "kind", "measured µs", "± spread", "estimated µs", "measured ÷ est.")
@@ -65,9 +66,10 @@ class MeasureWorker(QObject):
 class MeasureDialog(QDialog):
     """Measure ``document``'s design on this machine."""
 
-    def __init__(self, document, parent=None):
+    def __init__(self, document, parent=None, settings=None):
         super().__init__(parent)
         self.setWindowTitle("Measure on this machine")
+        self.settings = settings  # QSettings where the user's own targets are kept, or None
         self.setObjectName("measure_dialog")
         self.document = document
         self.measurement = None
@@ -252,6 +254,8 @@ class MeasureDialog(QDialog):
         ops = [SetField("measurement", self.measurement)]
         if self.use_target.isChecked() and self.target is not None:
             ops.append(SetField("target", self.target))
+            if self.settings is not None:
+                keep_target(self.settings, self.target)
         self.document.apply(Edit("Keep measurement", tuple(ops)))
         self.accept()
 
