@@ -10,6 +10,7 @@ import argparse
 import json
 import sys
 
+from layerloom import fit_command
 from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot_of_file
 from layerloom.core.design import DTYPES, Design
@@ -20,8 +21,10 @@ from layerloom.core.ledger_csv import ledger_csv, rf_text
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
+from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
+from layerloom.measure import command as measure_command
 
-COMMANDS = ("check", "ledger", "export")
+COMMANDS = ("check", "ledger", "export", "measure", "fit")
 
 
 class UsageError(Exception):
@@ -100,6 +103,7 @@ def _ledger(args) -> int:
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
                        "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
                        "latency_s": t.latency},
+            "training": training_memory(ledger, args.optimizer)._asdict(),
             "target": ledger.target.to_data() if ledger.target else None,
             "budget": design.budget,
             "baseline": None if baseline is None else {
@@ -132,6 +136,7 @@ def _ledger(args) -> int:
           f" · buffers {units.count(t.buffers)} · MACs {units.count(t.macs)} ({t.macs:,})")
     print(f"peak live activations {units.size(t.peak_memory)} at {peak_name} (batch {ledger.batch}, {ledger.dtype};"
           " first-order: execution in depth order, no in-place reuse)")
+    print(training_text(training_memory(ledger, args.optimizer)) + " (first-order)")
     if timed:
         print(f"estimated latency {t.latency * 1e3:.3g} ms on {ledger.target.name} ({ledger.target.assumptions}). "
               f"{CAUTION}")
@@ -205,6 +210,8 @@ def _parser() -> argparse.ArgumentParser:
     led.add_argument("--batch", type=int, help="batch size N (default: the design's)")
     led.add_argument("--target", metavar="NAME", help="estimate latency on a target preset: "
                      + "; ".join(f"'{t.name}'" for t in PRESETS))
+    led.add_argument("--optimizer", choices=tuple(OPTIMIZERS), default="sgd_momentum",
+                     help="optimizer for the training-memory line (state: sgd none, sgd_momentum 1 copy, adam 2)")
     led.add_argument("--baseline", metavar="OTHER.loom", help="compare totals with another design "
                      "(default: the baseline pinned in FILE, if any)")
     led.set_defaults(run=_ledger)
@@ -215,6 +222,8 @@ def _parser() -> argparse.ArgumentParser:
     ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
                     "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
     ex.set_defaults(run=_export)
+    measure_command.add_parser(sub)
+    fit_command.add_parser(sub)
     return p
 
 

@@ -110,6 +110,7 @@ class Design(Graph):
         self.budget: dict = {}  # limits, see layerloom.core.budget
         self.target = None  # a layerloom.core.targets.Target for latency estimates, or None
         self.baseline: dict | None = None  # a pinned ledger, see layerloom.core.baseline
+        self.measurement = None  # the last layerloom.core.measurement.Measurement, or None
         self._listeners: list[Callable[[Change], None]] = []
         self._pending: Change | None = None
         self._analysis = None
@@ -153,7 +154,7 @@ class Design(Graph):
 
     def set_field(self, name: str, value: Any) -> None:
         """Change a design-wide field (``batch``, ``dtype``, ``name``, ``notes``, ``budget``,
-        ``target``, ``baseline``) as one edit."""
+        ``target``, ``baseline``, ``measurement``) as one edit."""
         if name == "budget":
             from layerloom.core.budget import check_budget
 
@@ -161,7 +162,7 @@ class Design(Graph):
                 value = check_budget(value)
             except ValueError as e:
                 raise edits.EditError(str(e)) from None
-        if name not in ("name", "batch", "dtype", "notes", "budget", "target", "baseline"):
+        if name not in ("name", "batch", "dtype", "notes", "budget", "target", "baseline", "measurement"):
             raise edits.EditError(f"a design has no field {name!r}")
         if name == "dtype" and value not in DTYPES:
             raise edits.EditError(f"element type {value!r} is not one of {', '.join(DTYPES)}")

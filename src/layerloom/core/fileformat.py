@@ -15,6 +15,7 @@ from typing import Any
 from layerloom.core import edits
 from layerloom.core.design import Design
 from layerloom.core.graph import Wire
+from layerloom.core.measurement import Measurement
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
 from layerloom.resource_paths import resource
@@ -106,6 +107,8 @@ def _build(data: dict) -> Design:
         except ValueError as e:
             raise LoomFileError(f"target: {e}") from None
     design.baseline = data.get("baseline")
+    if "measurement" in data:
+        design.measurement = Measurement.from_data(data["measurement"])
     lengths = {k: len(v) for k, v in (design.baseline or {}).get("blocks", {}).items()}
     if len(set(lengths.values())) > 1:
         raise LoomFileError(f"baseline.blocks: the lists differ in length ({lengths})")
@@ -172,12 +175,19 @@ def to_data(design: Design) -> dict:
         data["target"] = design.target.to_data()
     if design.baseline is not None:
         data["baseline"] = design.baseline
+    if design.measurement is not None:
+        data["measurement"] = design.measurement.to_data()
     if design.motifs:
         data["motifs"] = [{"name": m.name, "params": m.params, "blocks": blocks(m), "wires": wires(m)}
                           for m in design.motifs.values()]
     data["blocks"] = blocks(design)
     data["wires"] = wires(design)
     return data
+
+
+def copy(design: Design) -> Design:
+    """An independent copy of ``design`` (everything the file holds)."""
+    return _build(to_data(design))
 
 
 def dumps(design: Design) -> str:

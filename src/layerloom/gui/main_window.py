@@ -20,6 +20,7 @@ from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
 from layerloom.gui.graph_trail import GraphTrail
+from layerloom.gui.measure_actions import open_fit, open_measure
 from layerloom.gui.shelf import Shelf
 from layerloom.resource_paths import resource
 
@@ -171,6 +172,9 @@ class MainWindow(QMainWindow):
                      name="baseline_from_file")
         self._action(design, "Clear baseline", self.depth_ledger.clear_baseline, name="clear_baseline")
         self._action(design, "Export ledger as CSV…", lambda: self.depth_ledger.export_csv(), name="export_csv")
+        design.addSeparator()
+        self._action(design, "Measure on this machine…", lambda: open_measure(self), name="measure")
+        self._action(design, "Fit to budget…", lambda: open_fit(self), name="fit_to_budget")
         self.shelf_dock.toggleViewAction().setText("Shelf (Parts, Findings)")
 
     def _fill_recent(self) -> None:
