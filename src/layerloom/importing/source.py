@@ -20,7 +20,7 @@ _serial = itertools.count(1)
 
 def runs_code(source: str) -> str | None:
     """The one-line caution for a source whose import runs Python code, else None."""
-    if source.lower().endswith(".onnx") or source.lower().endswith(PICKLES):
+    if source.lower().endswith(".onnx") or source.lower().endswith(PICKLES) or ":" not in source:
         return None
     where = source.rpartition(":")[0] or source
     return f"import runs {where}'s code — only import code you trust"
