@@ -23,8 +23,9 @@ from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
 from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
 from layerloom.measure import command as measure_command
+from layerloom.interchange import add_import_parser
 
-COMMANDS = ("check", "ledger", "export", "measure", "fit")
+COMMANDS = ("check", "ledger", "export", "import", "measure", "fit")
 
 
 class UsageError(Exception):
@@ -158,9 +159,24 @@ def _ledger(args) -> int:
 def _export(args) -> int:
     from pathlib import Path
 
-    from layerloom.export import ExportRefused, export, verify
+    from layerloom.export import ExportRefused, VerifyRefused, export, refuse_placeholders, verify
 
     design = _open(args)
+    if args.verify:
+        try:
+            refuse_placeholders(design)
+        except VerifyRefused as e:
+            raise UsageError(f"{args.file}: {e}") from None
+    if args.onnx:
+        from layerloom.interchange import export_onnx_command
+
+        if args.output is None:
+            return export_onnx_command(design, args)
+        written = export_onnx_command(design, args)
+        if written:
+            return written
+    elif args.output is None:
+        raise UsageError("export needs -o MODEL.py or --onnx MODEL.onnx")
     try:
         made = export(design, args.class_name)
     except ExportRefused as e:
@@ -217,13 +233,16 @@ def _parser() -> argparse.ArgumentParser:
     led.set_defaults(run=_ledger)
     ex = sub.add_parser("export", help="write the design as a PyTorch nn.Module; refuses a design with errors")
     ex.add_argument("file", help="a .loom design")
-    ex.add_argument("-o", "--output", required=True, metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("-o", "--output", metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("--onnx", metavar="MODEL.onnx", help="write an ONNX file (through the PyTorch module); with "
+                    "--verify, run it in onnxruntime and compare with torch and the ledger")
     ex.add_argument("--class-name", metavar="NAME", help="name of the design's class (default: from the design name)")
     ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
                     "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
     ex.set_defaults(run=_export)
     measure_command.add_parser(sub)
     fit_command.add_parser(sub)
+    add_import_parser(sub)
     return p
 
 

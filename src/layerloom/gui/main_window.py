@@ -19,6 +19,7 @@ from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
+from layerloom.gui import interchange
 from layerloom.gui.graph_trail import GraphTrail
 from layerloom.gui.measure_actions import open_fit, open_measure
 from layerloom.gui.shelf import Shelf
@@ -126,8 +127,10 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         self._action(file_menu, "Save", f.save, Key.Save)
         self._action(file_menu, "Save as…", f.save_as, Key.SaveAs)
+        self._action(file_menu, "Import…", lambda: interchange.import_into(self), name="import")
         export = file_menu.addMenu("Export")
         self._action(export, "PyTorch module…", self.export_module, name="export_module")
+        self._action(export, "ONNX file…", lambda: interchange.export_onnx_file(self), name="export_onnx")
         self._action(export, "Canvas as PNG…", lambda: self.export_picture("png"), name="export_png")
         self._action(export, "Canvas as SVG…", lambda: self.export_picture("svg"), name="export_svg")
         file_menu.addSeparator()
