@@ -15,26 +15,15 @@ from typing import Any
 from layerloom.core import edits
 from layerloom.core.design import Design
 from layerloom.core.graph import Wire
+from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
-from layerloom.resource_paths import resource
 
 FORMAT, VERSION = "layerloom-design", 1
-_validator = None
 
 
 class LoomFileError(ValueError):
     """A design file that cannot be read: the message names the file and the place inside it."""
-
-
-def _schema_validator():
-    global _validator
-    if _validator is None:
-        import jsonschema
-
-        schema = json.loads(resource("loom.schema.json").read_text(encoding="utf-8"))
-        _validator = jsonschema.Draft202012Validator(schema)
-    return _validator
 
 
 def _reject_constant(name: str):
@@ -57,11 +46,11 @@ def parse(text: str, source: str = "<text>") -> Design:
         raise LoomFileError(f"{source}: design format version {data.get('version')!r} is not supported "
                             f"(this Layerloom reads version {VERSION})")
     try:
-        error = next(iter(sorted(_schema_validator().iter_errors(data), key=lambda e: list(e.absolute_path))), None)
+        error = first_error(data)
     except RecursionError:
         raise LoomFileError(f"{source}: nested too deeply to be a design file") from None
     if error is not None:
-        raise LoomFileError(f"{source}: {_place(data, list(error.absolute_path))}: {error.message}")
+        raise LoomFileError(f"{source}: {_place(data, error[0])}: {error[1]}")
     try:
         return _build(data)
     except (SettingError, edits.EditError, ValueError, KeyError) as e:
