@@ -12,18 +12,17 @@ import sys
 
 from layerloom import fit_command
 from layerloom.core import units
-from layerloom.core.baseline import compare, snapshot_of_file
 from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
-from layerloom.core.ledger import Ledger
-from layerloom.core.ledger_csv import ledger_csv, rf_text
-from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
 from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
 from layerloom.measure import command as measure_command
 from layerloom.interchange import add_import_parser
+
+# Each command imports what only it needs (the ledger brings numpy, the mends the whole pass of
+# a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
 
 COMMANDS = ("check", "ledger", "export", "import", "measure", "fit")
 
@@ -58,6 +57,8 @@ def _open(args) -> Design:
 
 
 def _finding_dict(design, f) -> dict:
+    from layerloom.core.mends import mends_for
+
     return {"code": f.code, "severity": f.severity, "block": f.block,
             "block_name": design.blocks[f.block].name if f.block in design.blocks else None,
             "path": list(f.path), "port": f.port, "message": f.message,
@@ -65,6 +66,8 @@ def _finding_dict(design, f) -> dict:
 
 
 def _check(args) -> int:
+    from layerloom.core.mends import mends_for
+
     design = _open(args)
     findings = design.findings()
     errors = sum(f.severity == ERROR for f in findings)
@@ -87,6 +90,10 @@ TARGET_COLUMNS = ("est. time", "bound")
 
 
 def _ledger(args) -> int:
+    from layerloom.core.baseline import compare
+    from layerloom.core.ledger import Ledger
+    from layerloom.core.ledger_csv import ledger_csv, rf_text
+
     design = _open(args)
     ledger = Ledger(design.analysis())
     baseline = _baseline(args, design)
@@ -202,6 +209,8 @@ def _export(args) -> int:
 
 def _baseline(args, design) -> dict | None:
     """The baseline to compare with: ``--baseline FILE`` (its current ledger), else the design's pinned one."""
+    from layerloom.core.baseline import snapshot_of_file
+
     if not getattr(args, "baseline", None):
         return design.baseline
     return snapshot_of_file(args.baseline, design.target)

@@ -448,8 +448,8 @@ class Analysis:
             done = [inner.results[b] for b in out_ids if inner.results.get(b)]
             rf = (max((r.rf[0] for r in done), default=1), max((r.rf[1] for r in done), default=1))
             jump = (max((r.jump[0] for r in done), default=1), max((r.jump[1] for r in done), default=1))
-            kept = int(live_profile(motif, inner.order, inner.results, inputs_outside=True).max(initial=0))
-            freed = int(live_profile(motif, inner.order, inner.results).max(initial=0))
+            kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
+            freed = max(live_profile(motif, inner.order, inner.results), default=0)
             ends = sum(o.elements for o in outs if o is not None)
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
@@ -505,7 +505,7 @@ class Analysis:
         return self._budget[1]
 
     def live_profile(self):
-        """Live activation elements per sample at each step of :attr:`order`."""
+        """Live activation elements per sample at each step of :attr:`order` (a list)."""
         top = self.refresh().top
         if self._profile is None:
             if top.plan is None:
