@@ -169,9 +169,6 @@ class CanvasView(QGraphicsView):
         self._looks.clear()
         self._shown_key = self.document.graph_key
         self.show_start()
-        graph = self.document.graph
-        if len(graph.blocks) == 1:  # a new design: typing builds on from its Input
-            self.document.select(list(graph.blocks))
 
     def _graph_shown(self) -> None:
         """Keep the zoom and scroll of the graph left; show the new one as it was last seen, or all of it."""
@@ -594,7 +591,8 @@ class CanvasView(QGraphicsView):
             picked = [i.wire for i in self.canvas_scene.selectedItems() if isinstance(i, WireItem)]
             wire = picked[0] if len(picked) == 1 and not self.document.selection else None
         self._quick_source, self._quick_wire, self._quick_into = source, wire, into
-        sel = self._selected_source() if at is None and wire is None and source is None else None
+        picked = self.document.selection
+        sel = picked if len(picked) == 1 and at is None and wire is None and source is None else None
         if wire is not None:
             mid = self.canvas_scene.wires[wire]._path.pointAtPercent(0.5)
             self._quick_spot = mid
