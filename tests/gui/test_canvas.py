@@ -160,7 +160,7 @@ def test_quick_add_by_typing_wires_from_the_selected_block(qtbot):
     QTest.keyClicks(view, "poin")
     popup = view._quick
     assert popup.isVisible() and popup.edit.text() == "poin"
-    assert popup.list.currentItem().data(Qt.ItemDataRole.UserRole) == "Pointwise"
+    assert popup.list.currentItem().data(Qt.ItemDataRole.UserRole).kind == "Pointwise"
     shot(view, "canvas_quick_add")
     QTest.keyClick(popup.edit, Qt.Key.Key_Return)
     assert not popup.isVisible()

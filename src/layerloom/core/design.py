@@ -155,6 +155,10 @@ class Design(Graph):
     def set_field(self, name: str, value: Any) -> None:
         """Change a design-wide field (``batch``, ``dtype``, ``name``, ``notes``, ``budget``,
         ``target``, ``baseline``, ``measurement``) as one edit."""
+        self.apply(self.field_edit(name, value))
+
+    def field_edit(self, name: str, value: Any) -> edits.Edit:
+        """The edit that sets a design-wide field, checked first (:class:`EditError` naming the value)."""
         if name == "budget":
             from layerloom.core.budget import check_budget
 
@@ -168,7 +172,9 @@ class Design(Graph):
             raise edits.EditError(f"element type {value!r} is not one of {', '.join(DTYPES)}")
         if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or value < 1):
             raise edits.EditError(f"batch size must be a whole number ≥ 1, not {value!r}")
-        self.apply(edits.Edit(f"Set {name}", (edits.SetField(name, value),)))
+        if name == "name" and (not isinstance(value, str) or not value.strip()):
+            raise edits.EditError("a design needs a name")
+        return edits.Edit(f"Set {name}", (edits.SetField(name, value),))
 
     # ----- changes
     def apply(self, edit: edits.Edit) -> edits.Edit:

@@ -18,7 +18,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QFileDialog, QHBoxLayout, QHeaderView, QLabel, QMenu, QMessageBox,
-                               QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
+                               QSizePolicy, QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot, snapshot_of_file
@@ -141,8 +141,10 @@ class DepthLedger(QWidget):
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         self.table.setMaximumHeight(132)
-        self.key = QLabel()
+        self.key = QLabel()  # wraps, and never asks for more width: the right column keeps its size
         self.key.setObjectName("chart_key")
+        self.key.setWordWrap(True)
+        self.key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.caution = QLabel(CAUTION)
         self.caution.setWordWrap(True)
         self.caution.setObjectName("caution")
@@ -179,6 +181,14 @@ class DepthLedger(QWidget):
         self._pending = False
         self.ledger = Ledger(self.document.design.analysis())
         self.redraw()
+
+    def remember_choices(self, settings) -> None:
+        """Start with the metric and view last chosen (kept in ``settings``) and keep each new choice."""
+        for box, name in ((self.metric_box, "ledger/metric"), (self.view_box, "ledger/view")):
+            index = box.findText(str(settings.value(name, box.currentText())))
+            if index >= 0:
+                box.setCurrentIndex(index)
+            box.currentTextChanged.connect(lambda text, name=name: settings.setValue(name, text))
 
     def metric_key(self) -> str:
         return METRICS[self.metric_box.currentIndex()][0]

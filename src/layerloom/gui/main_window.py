@@ -81,6 +81,9 @@ class MainWindow(QMainWindow):
         self.resize(1400, 860)  # first run; a saved geometry replaces it below
         self.shelf.findings.block_chosen.connect(self.canvas.center_on)
         self.canvas.message.connect(self.say)
+        self.canvas.settings_wanted.connect(self._settings_wanted)
+        self.block_settings.finished.connect(self.canvas.setFocus)
+        self.depth_ledger.remember_choices(self.settings)
 
         self._build_status_bar()
         self._build_menus()
@@ -260,6 +263,13 @@ class MainWindow(QMainWindow):
     def _on_change(self, change) -> None:
         if change.reinfers:
             self._refresh_totals()
+        if "name" in change.fields:
+            self._refresh_title()
+
+    def _settings_wanted(self) -> None:
+        """Enter on a selected block: the keys go to its first setting in Block settings."""
+        self.settings_dock.show()
+        self.block_settings.focus_first()
 
     def _refresh_totals(self) -> None:
         design = self.document.design
