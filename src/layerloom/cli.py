@@ -20,11 +20,12 @@ from layerloom.core.targets import CAUTION, PRESETS, preset
 from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
 from layerloom.measure import command as measure_command
 from layerloom.interchange import add_import_parser
+from layerloom import picture
 
 # Each command imports what only it needs (the ledger brings numpy, the mends the whole pass of
 # a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
 
-COMMANDS = ("check", "ledger", "export", "import", "measure", "fit")
+COMMANDS = ("check", "ledger", "export", "import", "measure", "fit", "picture")
 
 
 class UsageError(Exception):
@@ -252,6 +253,7 @@ def _parser() -> argparse.ArgumentParser:
     measure_command.add_parser(sub)
     fit_command.add_parser(sub)
     add_import_parser(sub)
+    picture.register(sub)
     return p
 
 
@@ -268,7 +270,7 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return args.run(args)
-    except (LoomFileError, UsageError) as e:
+    except (LoomFileError, UsageError, picture.PictureError) as e:
         print(f"layerloom: {e}", file=sys.stderr)
         return 2
     except BrokenPipeError:

@@ -19,6 +19,7 @@ from layerloom.core.measurement import Measurement
 from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
+from layerloom.core.layout import tidy_positions
 
 FORMAT, VERSION = "layerloom-design", 1
 
@@ -114,7 +115,16 @@ def _build(data: dict) -> Design:
         for i, m in enumerate(motifs):
             _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({m['name']}) ")
         _fill(design, "", data["blocks"], data["wires"], "")
+    for m in motifs:
+        _place_unplaced(design, design.motifs[m["name"]], m["blocks"])
+    _place_unplaced(design, design, data["blocks"])
     return design
+
+
+def _place_unplaced(design: Design, graph, blocks: list) -> None:
+    """A graph none of whose blocks has a saved position is laid out by Tidy (stage rows, folded)."""
+    if blocks and not any("position" in b for b in blocks):
+        design.apply(edits.move(graph, tidy_positions(graph)))
 
 
 def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> None:
