@@ -179,7 +179,9 @@ def test_a_selected_chip_is_renamed_deleted_and_chained_from_like_a_block(qtbot,
     canvas.rename_selected()  # F2 on a chip edits its name over the chip
     assert canvas._names.isVisible()
     canvas._names.hide()
-    canvas._quick_chosen("Dropout")  # Quick add from a chip: wired from it, placed right of its card
+    canvas.setFocus()
+    QTest.keyClicks(canvas, "dropout")  # Quick add from a chip: wired from it, placed right of its card
+    QTest.keyClick(canvas._quick.edit, Qt.Key.Key_Return)
     (drop,) = [b.id for b in d.blocks.values() if b.kind == "Dropout"]
     assert any(w.src == act and w.dst == drop for w in d.wires)
     assert d.blocks[drop].position[0] > d.blocks[c].position[0] + W

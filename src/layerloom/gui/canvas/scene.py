@@ -21,6 +21,7 @@ from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
 from PySide6.QtWidgets import QGraphicsItem, QGraphicsScene
 
 from layerloom.core import edits, units
+from layerloom.core.edits import port_counts
 from layerloom.core.findings import SEVERITY_RANK
 from layerloom.core.folding import chip_label, chips_of, fold_groups
 from layerloom.core.kinds import KINDS
@@ -33,20 +34,6 @@ from layerloom.gui.canvas.badge_item import BadgeItem
 from layerloom.gui.canvas.block_item import CARD_RECT, H, W, BlockItem, CardState
 from layerloom.gui.canvas.chips import ChipItem
 from layerloom.gui.canvas.wire_item import WireItem
-
-
-def port_counts(design, block) -> tuple[int, int]:
-    """Input and output port counts of ``block`` (a motif instance takes its motif's)."""
-    kind = KINDS.get(block.kind)
-    if block.kind == "Motif":
-        motif = design.motifs.get(block.settings.get("motif"))
-        if motif is None:
-            return 1, 1
-        ins, outs = motif.ports()
-        return len(ins), len(outs)
-    if kind is None:
-        return 1, 1
-    return kind.input_count(block.settings), kind.output_count(block.settings)
 
 
 class ParamValue(int):
