@@ -25,18 +25,24 @@ def long_chain(n: int = 60) -> tuple[Design, list[str]]:
     return d, ids
 
 
-def colours(view) -> dict:
-    _, groups = view.canvas_scene.overview_shapes()
-    return {c.name(): rects for c, rects in groups}
-
-
-def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
+def chain_view(qtbot):
+    """The long chain in a shown 900×500 canvas: (design, block ids, document, view)."""
     d, ids = long_chain()
     doc = Document(d)
     view = CanvasView(doc)
     qtbot.addWidget(view)
     view.resize(900, 500)
     view.show()
+    return d, ids, doc, view
+
+
+def colours(view) -> dict:
+    _, groups = view.canvas_scene.overview_shapes()
+    return {c.name(): rects for c, rects in groups}
+
+
+def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
+    d, ids, doc, view = chain_view(qtbot)
     scene = view.canvas_scene
     view.resetTransform()
     assert not scene.overview
@@ -66,12 +72,7 @@ def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
 
 
 def test_far_out_a_dragged_card_is_drawn_live_over_the_still_picture(qtbot):
-    d, ids = long_chain()
-    doc = Document(d)
-    view = CanvasView(doc)
-    qtbot.addWidget(view)
-    view.resize(900, 500)
-    view.show()
+    d, ids, doc, view = chain_view(qtbot)
     view.fit_all()
     scene = view.canvas_scene
     assert scene.overview
