@@ -4,11 +4,11 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
-from PySide6.QtCore import QRectF, Qt
+from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtTest import QTest
 
 from layerloom import Design
-from layerloom.core import fileformat
+from layerloom.core import edits, fileformat
 from layerloom.core.wire_route import polyline_crosses
 from layerloom.gui.canvas import stage_summary
 from layerloom.gui.canvas.badge_item import BadgeItem
@@ -129,6 +129,12 @@ def test_chips_sit_inside_their_card_select_their_block_and_carry_their_findings
     for chip in card.chip_items:  # inside the card
         assert card.sceneBoundingRect().contains(chip.sceneBoundingRect())
     assert card.state.shape == "16×16×16"  # the card's output is its last chip's (Conv2d size formula)
+    before = {b: d.blocks[b].position for b in (c, bn, act)}
+    doc.select([c])
+    card.setPos(card.pos() + QPointF(0, 500))  # dragged: its chips go with it, in the design too
+    canvas._commit_moves()
+    assert all(d.blocks[b].position == (x, y + 500) for b, (x, y) in before.items())
+    doc.undo_stack.undo()
     press(qtbot, window, "actual_size")
     canvas.centerOn(card)
     chip = scene.blocks[act]
@@ -190,4 +196,18 @@ def test_a_selected_chip_is_renamed_deleted_and_chained_from_like_a_block(qtbot,
     steps = doc.undo_stack.count()
     QTest.keyClick(canvas, Qt.Key.Key_Delete)
     assert bn not in d.blocks and doc.undo_stack.count() == steps + 1
+    window.close()
+
+
+def test_unfolding_blocks_that_share_their_cards_place_gives_them_places(qtbot, tmp_path):
+    d, c, bn, act, f, bad = folded_design()
+    window = window_on(qtbot, tmp_path, d)
+    canvas, doc = window.canvas, window.document
+    d = doc.design
+    x, y = d.blocks[c].position
+    moved = (x + 37, y + 11)  # the user moved the card (no longer Tidy's layout); its chips share its place
+    doc.apply(edits.move(d, {c: moved, bn: moved, act: moved}))
+    canvas.set_fold(False)
+    places = [tuple(b.position) for b in d.blocks.values()]
+    assert len(set(places)) == len(places) and doc.undo_stack.undoText() == "Tidy"
     window.close()

@@ -429,15 +429,20 @@ class CanvasView(QGraphicsView):
         return menu
 
     def _commit_moves(self) -> None:
-        """One undoable move for every selected block the drag left somewhere new."""
+        """One undoable move for every selected block the drag left somewhere new (the chips of a
+        card move with it)."""
         graph = self.document.graph
         blocks = graph.blocks
         moved = {}
         for item in self.canvas_scene.selectedItems():
             if isinstance(item, BlockItem) and item.block_id in blocks:
                 p = (item.pos().x(), item.pos().y())
-                if p != tuple(blocks[item.block_id].position):
+                x, y = blocks[item.block_id].position
+                if p != (x, y):
                     moved[item.block_id] = p
+                    for chip in self.canvas_scene.chips_of(item.block_id):
+                        cx, cy = blocks[chip].position
+                        moved[chip] = (cx + p[0] - x, cy + p[1] - y)
         if moved:
             self.canvas_scene.apply(edits.move(graph, moved))
 
@@ -816,14 +821,17 @@ class CanvasView(QGraphicsView):
 
     def set_fold(self, on: bool) -> None:
         """Fold norms and activations into their convolution's card (on) or show each as a card. A
-        design laid out by Tidy is tidied again for the new look (one undoable edit)."""
+        design laid out by Tidy is tidied again for the new look (one undoable edit), and so is one
+        whose unfolded blocks would lie under their card (they had no place of their own)."""
         scene = self.canvas_scene
         if on == scene.fold:
             return
         graph = self.document.graph
         was_tidy = all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(scene.fold).positions.items())
+        hidden = not on and any(tuple(graph.blocks[c].position) == tuple(graph.blocks[h].position)
+                                for c, h in scene.folds.items())
         scene.set_fold(on)
-        if was_tidy:
+        if was_tidy or hidden:
             self.tidy()
 
     def rename_selected(self) -> None:
