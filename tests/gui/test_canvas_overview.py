@@ -94,4 +94,7 @@ def test_far_out_a_dragged_card_is_drawn_live_over_the_still_picture(qtbot):
     assert len(still_lines) + len(live_lines) == len(scene.overview_shapes()[0])
     doc.apply(edits.move(d, {ids[20]: (item.pos().x(), item.pos().y())}))  # the drop, as one edit
     assert not scene.moving
+    # an edit that moves cards (an undo, Tidy) leaves none of them drawn live
+    doc.apply(edits.move(d, {b: (x + 5, y) for b, (x, y) in ((b, d.blocks[b].position) for b in ids)}))
+    assert not scene.moving
     view.close()

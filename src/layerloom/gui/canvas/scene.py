@@ -171,7 +171,6 @@ class CanvasScene(QGraphicsScene):
     def _on_changed(self, change) -> None:
         key, graph = self.document.graph_key, self.graph
         self.overview_revision += 1
-        self.moving.clear()
         if key in change.topology:
             self._sync_topology()
         for bid in change.moved.get(key, ()):
@@ -194,6 +193,7 @@ class CanvasScene(QGraphicsScene):
         if change.reinfers:
             self._refresh_results()
         self.flush_wires()
+        self.moving.clear()  # cards set where the document says are still again (after the wires follow)
         if key in change.moved or key in change.topology:
             self.grow_to_fit()
 
