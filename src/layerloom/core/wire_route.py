@@ -16,7 +16,7 @@ from collections import defaultdict
 STUB = 16.0  # a routed wire runs this far straight out of (and into) its notch before it turns
 CLEAR = 14.0  # room kept between a lane and a card's edge
 BUCKET = 256.0  # side of the square cells the obstacle index sorts cards into
-REACH = 400.0  # a route first looks for a lane among the cards this far above and below its ends
+REACH = 160.0  # a route first looks for a lane among the cards this far above and below its ends
 
 Rect = tuple  # (left, top, right, bottom)
 Point = tuple  # (x, y)
