@@ -14,10 +14,9 @@ from __future__ import annotations
 import os
 import threading
 
-from PySide6.QtCore import QObject, Qt, QThread, Signal
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QDialog, QDialogButtonBox, QFormLayout, QHBoxLayout,
-                               QHeaderView, QLabel, QProgressBar, QPushButton, QSpinBox, QTableWidget,
-                               QTableWidgetItem, QVBoxLayout)
+from PySide6.QtCore import QObject, QThread, Signal
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QDialog, QHBoxLayout, QLabel, QProgressBar,
+                               QPushButton, QSpinBox, QVBoxLayout)
 
 from layerloom.core.calibrate import calibrate, mape, samples, split_halves
 from layerloom.core.edits import Edit, SetField
@@ -25,8 +24,8 @@ from layerloom.core.fileformat import copy
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
 from layerloom.core.measurement import compare
-from layerloom.core.targets import CAUTION
 from layerloom.gui.budget_dialog import keep_target
+from layerloom.gui.result_parts import accept_buttons, caution_label, narrow_form, result_table, set_row
 
 RUNTIMES = ("torch", "onnxruntime")
 COLUMNS = ("block", "kind", "measured µs", "± spread", "estimated µs", "measured ÷ est.")
@@ -83,13 +82,8 @@ class MeasureDialog(QDialog):
         self.runtime = QComboBox()
         self.runtime.addItems(RUNTIMES)
         self.repeat = QSpinBox(minimum=1, maximum=1000, value=20)
-        for box in (self.batch, self.threads, self.runtime, self.repeat):
-            box.setMaximumWidth(180)
-        form = QFormLayout()
-        form.addRow("Batch", self.batch)
-        form.addRow("Threads", self.threads)
-        form.addRow("Runtime", self.runtime)
-        form.addRow("Timed runs", self.repeat)
+        form = narrow_form({"Batch": self.batch, "Threads": self.threads, "Runtime": self.runtime,
+                            "Timed runs": self.repeat}, 180)
 
         self.start_button = QPushButton("Measure")
         self.start_button.setDefault(True)
@@ -105,28 +99,13 @@ class MeasureDialog(QDialog):
         run_row.addWidget(self.start_button)
         run_row.addWidget(self.cancel_button)
 
-        self.table = QTableWidget(0, len(COLUMNS))
-        self.table.setHorizontalHeaderLabels(COLUMNS)
-        self.table.verticalHeader().hide()
-        self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
-        header = self.table.horizontalHeader()
-        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-        header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        self.table = result_table(COLUMNS)
         self.summary = QLabel()
         self.summary.setWordWrap(True)
         self.summary.setObjectName("measure_summary")
         self.use_target = QCheckBox("Use the calibrated target for this design's estimates")
         self.use_target.setEnabled(False)
-        caution = QLabel(CAUTION)
-        caution.setWordWrap(True)
-        caution.setObjectName("caution")
-
-        self.buttons = QDialogButtonBox()
-        self.keep_button = self.buttons.addButton("Keep in design", QDialogButtonBox.ButtonRole.AcceptRole)
-        self.keep_button.setEnabled(False)
-        self.buttons.addButton(QDialogButtonBox.StandardButton.Close)
-        self.buttons.accepted.connect(self.keep)
-        self.buttons.rejected.connect(self.reject)
+        self.buttons, self.keep_button = accept_buttons(self, "Keep in design", self.keep)
 
         layout = QVBoxLayout(self)
         layout.addLayout(form)
@@ -135,7 +114,7 @@ class MeasureDialog(QDialog):
         layout.addWidget(self.table, 1)
         layout.addWidget(self.summary)
         layout.addWidget(self.use_target)
-        layout.addWidget(caution)
+        layout.addWidget(caution_label())
         layout.addWidget(self.buttons)
         self.resize(760, 600)
 
@@ -238,13 +217,8 @@ class MeasureDialog(QDialog):
 
         self.table.setRowCount(len(rows))
         for r, row in enumerate(rows):
-            cells = (row.name, row.kind, us(row.measured), us(row.spread), us(row.estimated),
-                     f"{row.ratio:.2f}" if row.ratio else "·")
-            for c, text in enumerate(cells):
-                item = QTableWidgetItem(text)
-                if c > 1:
-                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-                self.table.setItem(r, c, item)
+            set_row(self.table, r, (row.name, row.kind, us(row.measured), us(row.spread), us(row.estimated),
+                                    f"{row.ratio:.2f}" if row.ratio else "·"), range(2, 6))
 
     # ----- result
     def keep(self) -> None:
