@@ -114,6 +114,17 @@ def test_compound_scaling_grows_macs_about_192_per_step_of_phi():
     assert fit(design, {"macs": macs[1]}, families=("compound",)).best.multiplier == pytest.approx(1.92, rel=0.1)
 
 
+@pytest.mark.parametrize("family", ["depth", "width", "resolution", "compound"])
+def test_each_family_on_a_design_with_repeats(family):
+    design = _repeated_conv_design(size=64, width=32, repeat=6)
+    budget = {"macs": design.ledger().totals.macs // 2}
+    best = fit(design, budget, families=(family,)).best
+    assert best.family == family and _within(_scaled(design, best.scaling), budget)
+    assert not _within(_scaled(design, family_scaling(family, best.multiplier * 1.1)), budget)
+    if family == "depth":
+        assert all(1 <= b.settings["repeat"] < 6 for b in _scaled(design, best.scaling).of_kind("Motif"))
+
+
 def test_applying_a_candidate_is_one_edit_and_adds_no_findings():
     design = load(ROOT / "samples" / "leaf_blight_grader.loom")
     before = [(f.code, f.block) for f in design.findings()]

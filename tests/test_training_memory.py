@@ -109,3 +109,5 @@ def test_ledger_command_prints_and_returns_the_training_line():
     expected = training_memory(design.ledger(), "adam")
     assert data["training"]["activations"] == expected.activations and data["training"]["optimizer"] == "adam"
     assert "training at batch 4 (adam)" in text.stdout and "activations kept for backward" in text.stdout
+    mixed = subprocess.run(args + ["--mixed-precision"], capture_output=True, text=True, cwd=root, env=env).stdout
+    assert "(adam, mixed precision)" in mixed and "fp16 copy" in mixed
