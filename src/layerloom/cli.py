@@ -12,19 +12,20 @@ import sys
 
 from layerloom import fit_command
 from layerloom.core import units
-from layerloom.core.baseline import compare, snapshot_of_file
 from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
-from layerloom.core.ledger import Ledger
-from layerloom.core.ledger_csv import ledger_csv, rf_text
-from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
 from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
 from layerloom.measure import command as measure_command
+from layerloom.interchange import add_import_parser
+from layerloom import picture
 
-COMMANDS = ("check", "ledger", "export", "measure", "fit")
+# Each command imports what only it needs (the ledger brings numpy, the mends the whole pass of
+# a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
+
+COMMANDS = ("check", "ledger", "export", "import", "measure", "fit", "picture")
 
 
 class UsageError(Exception):
@@ -57,6 +58,8 @@ def _open(args) -> Design:
 
 
 def _finding_dict(design, f) -> dict:
+    from layerloom.core.mends import mends_for
+
     return {"code": f.code, "severity": f.severity, "block": f.block,
             "block_name": design.blocks[f.block].name if f.block in design.blocks else None,
             "path": list(f.path), "port": f.port, "message": f.message,
@@ -64,6 +67,8 @@ def _finding_dict(design, f) -> dict:
 
 
 def _check(args) -> int:
+    from layerloom.core.mends import mends_for
+
     design = _open(args)
     findings = design.findings()
     errors = sum(f.severity == ERROR for f in findings)
@@ -86,6 +91,10 @@ TARGET_COLUMNS = ("est. time", "bound")
 
 
 def _ledger(args) -> int:
+    from layerloom.core.baseline import compare
+    from layerloom.core.ledger import Ledger
+    from layerloom.core.ledger_csv import ledger_csv, rf_text
+
     design = _open(args)
     ledger = Ledger(design.analysis())
     baseline = _baseline(args, design)
@@ -158,9 +167,24 @@ def _ledger(args) -> int:
 def _export(args) -> int:
     from pathlib import Path
 
-    from layerloom.export import ExportRefused, export, verify
+    from layerloom.export import ExportRefused, VerifyRefused, export, refuse_placeholders, verify
 
     design = _open(args)
+    if args.verify:
+        try:
+            refuse_placeholders(design)
+        except VerifyRefused as e:
+            raise UsageError(f"{args.file}: {e}") from None
+    if args.onnx:
+        from layerloom.interchange import export_onnx_command
+
+        if args.output is None:
+            return export_onnx_command(design, args)
+        written = export_onnx_command(design, args)
+        if written:
+            return written
+    elif args.output is None:
+        raise UsageError("export needs -o MODEL.py or --onnx MODEL.onnx")
     try:
         made = export(design, args.class_name)
     except ExportRefused as e:
@@ -186,6 +210,8 @@ def _export(args) -> int:
 
 def _baseline(args, design) -> dict | None:
     """The baseline to compare with: ``--baseline FILE`` (its current ledger), else the design's pinned one."""
+    from layerloom.core.baseline import snapshot_of_file
+
     if not getattr(args, "baseline", None):
         return design.baseline
     return snapshot_of_file(args.baseline, design.target)
@@ -219,13 +245,17 @@ def _parser() -> argparse.ArgumentParser:
     led.set_defaults(run=_ledger)
     ex = sub.add_parser("export", help="write the design as a PyTorch nn.Module; refuses a design with errors")
     ex.add_argument("file", help="a .loom design")
-    ex.add_argument("-o", "--output", required=True, metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("-o", "--output", metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("--onnx", metavar="MODEL.onnx", help="write an ONNX file (through the PyTorch module); with "
+                    "--verify, run it in onnxruntime and compare with torch and the ledger")
     ex.add_argument("--class-name", metavar="NAME", help="name of the design's class (default: from the design name)")
     ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
                     "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
     ex.set_defaults(run=_export)
     measure_command.add_parser(sub)
     fit_command.add_parser(sub)
+    add_import_parser(sub)
+    picture.register(sub)
     return p
 
 
@@ -242,7 +272,7 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return args.run(args)
-    except (LoomFileError, UsageError) as e:
+    except (LoomFileError, UsageError, picture.PictureError) as e:
         print(f"layerloom: {e}", file=sys.stderr)
         return 2
     except BrokenPipeError:

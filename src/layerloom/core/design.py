@@ -63,9 +63,11 @@ class Change:
 
     @property
     def reinfers(self) -> bool:
-        """True when shapes, findings or costs may differ. A move never re-infers; a rename refreshes
-        only the findings that name the block."""
-        return bool(self.dirty or self.topology or self.motifs or self.renamed or self.fields & {"batch", "dtype"})
+        """True when shapes, findings or costs may differ (a budget or target edit changes the budget
+        findings and the latency). A move never re-infers; a rename refreshes only the findings that
+        name the block."""
+        return bool(self.dirty or self.topology or self.motifs or self.renamed
+                    or self.fields & {"batch", "dtype", "budget", "target"})
 
 
 class Motif(Graph):
@@ -153,6 +155,10 @@ class Design(Graph):
     def set_field(self, name: str, value: Any) -> None:
         """Change a design-wide field (``batch``, ``dtype``, ``name``, ``notes``, ``budget``,
         ``target``, ``baseline``, ``measurement``) as one edit."""
+        self.apply(self.field_edit(name, value))
+
+    def field_edit(self, name: str, value: Any) -> edits.Edit:
+        """The edit that sets a design-wide field, checked first (:class:`EditError` naming the value)."""
         if name == "budget":
             from layerloom.core.budget import check_budget
 
@@ -166,7 +172,9 @@ class Design(Graph):
             raise edits.EditError(f"element type {value!r} is not one of {', '.join(DTYPES)}")
         if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or value < 1):
             raise edits.EditError(f"batch size must be a whole number ≥ 1, not {value!r}")
-        self.apply(edits.Edit(f"Set {name}", (edits.SetField(name, value),)))
+        if name == "name" and (not isinstance(value, str) or not value.strip()):
+            raise edits.EditError("a design needs a name")
+        return edits.Edit(f"Set {name}", (edits.SetField(name, value),))
 
     # ----- changes
     def apply(self, edit: edits.Edit) -> edits.Edit:
@@ -184,6 +192,18 @@ class Design(Graph):
             change.note(op)
         self._emit(change)
         return edits.Edit(edit.label, tuple(reversed(done)))
+
+    def fill(self, graph: str, blocks, wires) -> None:
+        """Add checked blocks and then wires to the graph ``graph`` at once, as reading a file does:
+        no inverse is kept (a load is not undone), and subscribers hear of one change."""
+        g = self.graph(graph)
+        ids = set()
+        for b in blocks:
+            g._insert_block(b)
+            ids.add(b.id)
+        for w in wires:
+            g._insert_wire(w)
+        self._emit(Change(dirty={graph: ids}, topology={graph}))
 
     def subscribe(self, listener: Callable[[Change], None]) -> Callable[[], None]:
         """Call ``listener(change)`` after each edit or batch; returns a function that unsubscribes."""

@@ -1,6 +1,7 @@
 """The Depth ledger: how weights, MACs, activation memory and estimated latency add up along depth.
 
-x is the step in the core's depth order (hover names the block); y is the chosen metric, as a
+x counts blocks as executed in the core's depth order (a motif use spans the blocks it runs, so a
+network draws the same whether or not it is grouped; hover names the block); y is the metric, as a
 cumulative curve (activation memory: live bytes at each step and their running peak) or as
 per-block bars. The design's budget is drawn as a line and the block where the curve passes it
 is marked; a pinned baseline is overlaid dashed, with a table of totals and their change. With
@@ -17,7 +18,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QFileDialog, QHBoxLayout, QHeaderView, QLabel, QMenu, QMessageBox,
-                               QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
+                               QSizePolicy, QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot, snapshot_of_file
@@ -75,6 +76,7 @@ class DepthLedger(QWidget):
         self.document = document
         self.ledger: Ledger | None = None
         self.values = np.zeros(0)
+        self.x = np.zeros(0)  # each block's last step as executed
         self._pending = False
 
         self.metric_box = QComboBox()
@@ -109,7 +111,7 @@ class DepthLedger(QWidget):
         self.plot = pg.PlotWidget(axisItems={"left": self.axis, "bottom": StepAxis("bottom")}, background=theme.CARD)
         self.plot.setMenuEnabled(False)
         self.plot.showGrid(x=True, y=True, alpha=0.15)
-        self.plot.setLabel("bottom", "depth (blocks in order)")
+        self.plot.setLabel("bottom", "depth (blocks as executed)")
         self.plot.getPlotItem().hideButtons()
         self.base_curve = self.plot.plot(pen=BASE_PEN, name="baseline")
         self.peak_curve = self.plot.plot(pen=PEAK_PEN)
@@ -139,8 +141,10 @@ class DepthLedger(QWidget):
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         self.table.setMaximumHeight(132)
-        self.key = QLabel()
+        self.key = QLabel()  # wraps, and never asks for more width: the right column keeps its size
         self.key.setObjectName("chart_key")
+        self.key.setWordWrap(True)
+        self.key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.caution = QLabel(CAUTION)
         self.caution.setWordWrap(True)
         self.caution.setObjectName("caution")
@@ -167,7 +171,7 @@ class DepthLedger(QWidget):
 
     # ----- model → chart
     def _changed(self, change) -> None:
-        if change.reinfers or change.fields & {"budget", "target", "baseline", "measurement"} or change.renamed:
+        if change.reinfers or change.fields & {"baseline", "measurement"} or change.renamed:
             if not self._pending:  # one refresh per event-loop pass, however many edits arrive
                 self._pending = True
                 QTimer.singleShot(0, self.refresh)
@@ -177,6 +181,14 @@ class DepthLedger(QWidget):
         self._pending = False
         self.ledger = Ledger(self.document.design.analysis())
         self.redraw()
+
+    def remember_choices(self, settings) -> None:
+        """Start with the metric and view last chosen (kept in ``settings``) and keep each new choice."""
+        for box, name in ((self.metric_box, "ledger/metric"), (self.view_box, "ledger/view")):
+            index = box.findText(str(settings.value(name, box.currentText())))
+            if index >= 0:
+                box.setCurrentIndex(index)
+            box.currentTextChanged.connect(lambda text, name=name: settings.setValue(name, text))
 
     def metric_key(self) -> str:
         return METRICS[self.metric_box.currentIndex()][0]
@@ -198,7 +210,7 @@ class DepthLedger(QWidget):
         key, _, fmt, budget_key, base_key = METRICS[self.metric_box.currentIndex()]
         cumulative = self.view_box.currentIndex() == 0
         self.axis.format = fmt
-        x = np.arange(1, len(L.order) + 1, dtype=float)
+        self.x = x = L.steps.astype(float)
         self.values = y = self.series(key, cumulative)
         if cumulative:
             self.curve.setData(x, y)
@@ -265,7 +277,8 @@ class DepthLedger(QWidget):
                 self.base_curve.setData([], [])
                 return
             values = np.diff(values, prepend=0.0)
-        self.base_curve.setData(np.arange(1, len(values) + 1, dtype=float), values)
+        steps = base["blocks"].get("step") or range(1, len(values) + 1)  # pinned before steps were kept: one per block
+        self.base_curve.setData(np.asarray(steps, dtype=float)[:len(values)], values[:len(steps)])
 
     def _draw_crossing(self, budget_key: str) -> None:
         code = f"budget.{budget_key}"
@@ -273,7 +286,7 @@ class DepthLedger(QWidget):
         for f in self.document.design.analysis().budget_findings():
             if f.code == code and f.block in self.ledger.order:
                 i = self.ledger.order.index(f.block)
-                spots.append({"pos": (i + 1, self.values[i]), "data": f.block})
+                spots.append({"pos": (self.x[i], self.values[i]), "data": f.block})
         self.crossing.setData(spots)
         self.crossing.setToolTip("\n".join(f.message for f in self.document.design.analysis().budget_findings()
                                            if f.code == code))
@@ -308,7 +321,7 @@ class DepthLedger(QWidget):
         index = self._index(ids[0]) if ids and not inside else None
         self.marker.setVisible(index is not None)
         if index is not None:
-            self.marker.setValue(index + 1)
+            self.marker.setValue(self.x[index])
 
     # ----- chart → model
     def _index(self, block_id: str) -> int | None:
@@ -321,9 +334,9 @@ class DepthLedger(QWidget):
         vb = self.plot.getPlotItem().vb
         if not vb.sceneBoundingRect().contains(scene_pos) or not len(self.values):
             return None
-        x = vb.mapSceneToView(scene_pos).x()
-        i = int(round(x)) - 1
-        return i if 0 <= i < len(self.values) else None
+        step = round(vb.mapSceneToView(scene_pos).x())
+        i = int(np.searchsorted(self.x, step))  # the block whose steps reach ``step``
+        return i if step >= 1 and i < len(self.values) else None
 
     def _hovered(self, scene_pos) -> None:
         i = self._step_at(scene_pos)
@@ -333,8 +346,8 @@ class DepthLedger(QWidget):
         bid = self.ledger.order[i]
         block = self.document.design.blocks[bid]
         fmt = METRICS[self.metric_box.currentIndex()][2]
-        self.hover.setText(f"{i + 1}. {block.name} ({block.kind})\n{fmt(self.values[i])}")
-        self.hover.setPos(i + 1, self.values[i])
+        self.hover.setText(f"{int(self.x[i])}. {block.name} ({block.kind})\n{fmt(self.values[i])}")
+        self.hover.setPos(self.x[i], self.values[i])
         self.hover.show()
 
     def _clicked(self, event) -> None:

@@ -70,6 +70,8 @@ class Kind:
     view = False  # output aliases the input (no new activation memory)
     keeps: tuple[str, ...] = ()  # what its backward pass keeps, see backward_keeps
     scriptable = True  # accepted by torch.jit.script once exported
+    verifiable = True  # its export computes the block (False: a placeholder the user fills in)
+    torch_helper = ""  # source of a helper class its torch_layer needs, written once into the export
 
     def input_count(self, s: dict) -> int:
         return 1
