@@ -3,6 +3,7 @@ rounding keeps channel counts multiples of 8 (common practice; MobileNets, Howar
 compound scaling grows MACs by about α·β²·γ² ≈ 1.92 per step of φ (Tan & Le 2019, §3.3, eq. 3)."""
 from __future__ import annotations
 
+import json
 import math
 import subprocess
 import sys
@@ -164,6 +165,12 @@ def test_fit_command_writes_the_chosen_candidate(tmp_path):
     assert fitted.budget == {"macs": 10_000_000, "memory": 1 << 20}
     t = fitted.ledger().totals
     assert t.macs <= 10_000_000 and t.peak_memory <= 1 << 20 and not fitted.findings()
+    listed = subprocess.run([sys.executable, "-m", "layerloom", "fit", "samples/fastener_sorter.loom", "--macs", "10M",
+                             "--json"], capture_output=True, text=True, cwd=ROOT,
+                            env={"PYTHONPATH": str(ROOT / "src"), "PATH": "/usr/bin:/bin"})
+    data = json.loads(listed.stdout)
+    assert data["chosen"]["macs"] <= 10_000_000 and set(data["chosen"]["scaling"]) == {"width", "resolution", "depth"}
+    assert sum(c["pareto"] for c in data["candidates"]) >= 1
     bad = subprocess.run([sys.executable, "-m", "layerloom", "fit", "samples/fastener_sorter.loom", "--macs", "ten"],
                          capture_output=True, text=True, cwd=ROOT, env={"PYTHONPATH": str(ROOT / "src")})
     assert bad.returncode == 2 and "--macs 'ten'" in bad.stderr and "Traceback" not in bad.stderr

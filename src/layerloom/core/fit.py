@@ -27,6 +27,7 @@ import time
 from typing import NamedTuple
 
 from layerloom.core import edits
+from layerloom.core.fileformat import copy
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
 
@@ -158,8 +159,6 @@ class _Trial:
     """A working copy of the design on which candidates are applied and costed."""
 
     def __init__(self, design, budget: dict, target):
-        from layerloom.core.fileformat import copy
-
         self.original = design
         self.work = copy(design)
         self.work.budget = {}
