@@ -3,6 +3,7 @@ rounding keeps channel counts multiples of 8 (common practice; MobileNets, Howar
 compound scaling grows MACs by about α·β²·γ² ≈ 1.92 per step of φ (Tan & Le 2019, §3.3, eq. 3)."""
 from __future__ import annotations
 
+import json
 import math
 import subprocess
 import sys
@@ -114,6 +115,17 @@ def test_compound_scaling_grows_macs_about_192_per_step_of_phi():
     assert fit(design, {"macs": macs[1]}, families=("compound",)).best.multiplier == pytest.approx(1.92, rel=0.1)
 
 
+@pytest.mark.parametrize("family", ["depth", "width", "resolution", "compound"])
+def test_each_family_on_a_design_with_repeats(family):
+    design = _repeated_conv_design(size=64, width=32, repeat=6)
+    budget = {"macs": design.ledger().totals.macs // 2}
+    best = fit(design, budget, families=(family,)).best
+    assert best.family == family and _within(_scaled(design, best.scaling), budget)
+    assert not _within(_scaled(design, family_scaling(family, best.multiplier * 1.1)), budget)
+    if family == "depth":
+        assert all(1 <= b.settings["repeat"] < 6 for b in _scaled(design, best.scaling).of_kind("Motif"))
+
+
 def test_applying_a_candidate_is_one_edit_and_adds_no_findings():
     design = load(ROOT / "samples" / "leaf_blight_grader.loom")
     before = [(f.code, f.block) for f in design.findings()]
@@ -153,6 +165,12 @@ def test_fit_command_writes_the_chosen_candidate(tmp_path):
     assert fitted.budget == {"macs": 10_000_000, "memory": 1 << 20}
     t = fitted.ledger().totals
     assert t.macs <= 10_000_000 and t.peak_memory <= 1 << 20 and not fitted.findings()
+    listed = subprocess.run([sys.executable, "-m", "layerloom", "fit", "samples/fastener_sorter.loom", "--macs", "10M",
+                             "--json"], capture_output=True, text=True, cwd=ROOT,
+                            env={"PYTHONPATH": str(ROOT / "src"), "PATH": "/usr/bin:/bin"})
+    data = json.loads(listed.stdout)
+    assert data["chosen"]["macs"] <= 10_000_000 and set(data["chosen"]["scaling"]) == {"width", "resolution", "depth"}
+    assert sum(c["pareto"] for c in data["candidates"]) >= 1
     bad = subprocess.run([sys.executable, "-m", "layerloom", "fit", "samples/fastener_sorter.loom", "--macs", "ten"],
                          capture_output=True, text=True, cwd=ROOT, env={"PYTHONPATH": str(ROOT / "src")})
     assert bad.returncode == 2 and "--macs 'ten'" in bad.stderr and "Traceback" not in bad.stderr

@@ -42,7 +42,10 @@ def test_kept_activations_match_what_torch_saves_for_backward(make):
     torch.manual_seed(0)
     design = make(batch=2)
     ours = training_memory(design.ledger()).activations
-    theirs, _ = _saved_activation_bytes(_model(design), _inputs(design))
+    model = _model(design)
+    theirs, loss = _saved_activation_bytes(model, _inputs(design))
+    loss.backward()  # the whole training step runs: the saved tensors are the ones backward uses
+    torch.optim.SGD(model.parameters(), lr=0.01, momentum=0.9).step()
     # PyTorch keeps a few per-channel batch-norm statistics on top (2 × C floats per norm): within 10 %
     assert abs(ours - theirs) <= 0.10 * theirs, (ours, theirs)
 
@@ -109,3 +112,5 @@ def test_ledger_command_prints_and_returns_the_training_line():
     expected = training_memory(design.ledger(), "adam")
     assert data["training"]["activations"] == expected.activations and data["training"]["optimizer"] == "adam"
     assert "training at batch 4 (adam)" in text.stdout and "activations kept for backward" in text.stdout
+    mixed = subprocess.run(args + ["--mixed-precision"], capture_output=True, text=True, cwd=root, env=env).stdout
+    assert "(adam, mixed precision)" in mixed and "fp16 copy" in mixed

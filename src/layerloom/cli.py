@@ -112,7 +112,7 @@ def _ledger(args) -> int:
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
                        "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
                        "latency_s": t.latency},
-            "training": training_memory(ledger, args.optimizer)._asdict(),
+            "training": training_memory(ledger, args.optimizer, args.mixed_precision)._asdict(),
             "target": ledger.target.to_data() if ledger.target else None,
             "budget": design.budget,
             "baseline": None if baseline is None else {
@@ -145,7 +145,7 @@ def _ledger(args) -> int:
           f" · buffers {units.count(t.buffers)} · MACs {units.count(t.macs)} ({t.macs:,})")
     print(f"peak live activations {units.size(t.peak_memory)} at {peak_name} (batch {ledger.batch}, {ledger.dtype};"
           " first-order: execution in depth order, no in-place reuse)")
-    print(training_text(training_memory(ledger, args.optimizer)) + " (first-order)")
+    print(training_text(training_memory(ledger, args.optimizer, args.mixed_precision)) + " (first-order)")
     if timed:
         print(f"estimated latency {t.latency * 1e3:.3g} ms on {ledger.target.name} ({ledger.target.assumptions}). "
               f"{CAUTION}")
@@ -238,6 +238,8 @@ def _parser() -> argparse.ArgumentParser:
                      + "; ".join(f"'{t.name}'" for t in PRESETS))
     led.add_argument("--optimizer", choices=tuple(OPTIMIZERS), default="sgd_momentum",
                      help="optimizer for the training-memory line (state: sgd none, sgd_momentum 1 copy, adam 2)")
+    led.add_argument("--mixed-precision", action="store_true", help="training memory with fp16 activations and "
+                     "fp32 master weights, gradients and optimizer state")
     led.add_argument("--baseline", metavar="OTHER.loom", help="compare totals with another design "
                      "(default: the baseline pinned in FILE, if any)")
     led.set_defaults(run=_ledger)

@@ -67,10 +67,13 @@ def run(args) -> int:
         raise UsageError(f"{args.file}: {e}") from None
     front = pareto(result.candidates)
     if args.json:
+        def row(c):
+            return {**c._asdict(), "scaling": c.scaling._asdict(), "describe": c.describe()}
+
         print(json.dumps({"file": args.file, "budget": budget, "search_s": result.seconds,
-                          "chosen": result.best._asdict() if result.best else None,
-                          "candidates": [{**c._asdict(), "describe": c.describe(), "pareto": p}
-                                         for c, p in zip(result.candidates, front)]}, indent=1, ensure_ascii=False))
+                          "chosen": row(result.best) if result.best else None,
+                          "candidates": [{**row(c), "pareto": p} for c, p in zip(result.candidates, front)]},
+                         indent=1, ensure_ascii=False))
     else:
         _print(design, budget, result, front)
     if result.best is None:

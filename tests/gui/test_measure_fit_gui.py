@@ -16,6 +16,7 @@ from layerloom.core.ledger import Ledger
 from layerloom.core.training_memory import training_curve, training_memory
 from layerloom.gui.budget_dialog import user_targets
 
+import small_designs
 from test_window_files import open_window
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -56,6 +57,13 @@ def test_measure_runs_in_a_worker_can_be_cancelled_and_is_kept_as_one_edit(qtbot
     ledger = Ledger(doc.design.analysis())
     assert dialog.table.rowCount() == int(ledger.working.sum())
     assert "Calibrated target" in dialog.summary.text() and "median error" in dialog.summary.text()
+    dialog.check_other(str(tmp_path / "nowhere.loom"))
+    assert "Not checked" in dialog.status.text() and "nowhere.loom" in dialog.status.text()
+    other = tmp_path / "other.loom"
+    save(small_designs.branches_concat(), other)
+    dialog.check_other(str(other))
+    qtbot.waitUntil(lambda: hasattr(dialog, "check_error"), timeout=120_000)
+    assert dialog.check_error >= 0 and "branches-concat" in dialog.summary.text()
     window.resize(1280, 800)
     dialog.resize(900, 640)
     qtbot.wait(20)

@@ -27,12 +27,13 @@ import time
 from typing import NamedTuple
 
 from layerloom.core import edits
+from layerloom.core.fileformat import copy
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
 
 ALPHA, BETA, GAMMA = 1.2, 1.1, 1.15  # EfficientNet's depth, width and resolution bases (Tan & Le 2019, eq. 3)
 FAMILIES = ("width", "resolution", "depth", "compound")
-LOW, HIGH, LIMIT = 1 / 32, 4.0, 1024.0  # the search starts in [LOW, HIGH], doubling HIGH up to LIMIT
+LOW, LIMIT = 1 / 32, 1024.0  # the multipliers searched
 PRECISION = 1.01  # bisection stops when the bracket is this narrow (ratio)
 GRID = 1.25  # smaller candidates listed below each family's largest: s / 1.25, s / 1.25², …
 GRID_STEPS = 5
@@ -158,8 +159,6 @@ class _Trial:
     """A working copy of the design on which candidates are applied and costed."""
 
     def __init__(self, design, budget: dict, target):
-        from layerloom.core.fileformat import copy
-
         self.original = design
         self.work = copy(design)
         self.work.budget = {}
@@ -210,19 +209,39 @@ def fit(design, budget: dict | None = None, target=None, families=FAMILIES) -> F
 
 
 def _largest(trial: _Trial, family: str) -> Candidate | None:
-    """The fitting candidate of ``family`` with the largest multiplier (bisection on log s)."""
-    lo = trial.cost(family, LOW)
-    if not lo.fits:
-        return None
-    hi = trial.cost(family, HIGH)
-    while hi.fits:
-        if hi.multiplier >= LIMIT:
-            return hi
-        lo, hi = hi, trial.cost(family, hi.multiplier * 2)
+    """The fitting candidate of ``family`` with the largest multiplier: a first guess from the
+    totals at s = 1 (costs grow about as s², or s for depth and compound), a bracket found by
+    growing steps from it, then bisection on log s."""
+    first = trial.cost(family, 1.0)
+    guess = min(max(_guess(first, trial.budget, family), LOW), LIMIT)
+    c = first if guess == 1.0 else trial.cost(family, guess)
+    step = 1.1
+    lo, hi = (c, None) if c.fits else (None, c)
+    while hi is None:  # grow until a candidate does not fit
+        if lo.multiplier >= LIMIT:
+            return lo
+        nxt = trial.cost(family, min(lo.multiplier * step, LIMIT))
+        lo, hi = (nxt, None) if nxt.fits else (lo, nxt)
+        step *= step
+    while lo is None:  # shrink until one fits
+        if hi.multiplier <= LOW:
+            return None
+        nxt = trial.cost(family, max(hi.multiplier / step, LOW))
+        lo, hi = (nxt, hi) if nxt.fits else (None, nxt)
+        step *= step
     while hi.multiplier / lo.multiplier > PRECISION:
         mid = trial.cost(family, math.sqrt(lo.multiplier * hi.multiplier))
         lo, hi = (mid, hi) if mid.fits else (lo, mid)
     return lo
+
+
+def _guess(c: Candidate, budget: dict, family: str) -> float:
+    """Where the first limit would be reached if every cost grew as s² (s for depth and compound)."""
+    power = 1.0 if family in ("depth", "compound") else 2.0
+    now = {"weights": c.weights, "macs": c.macs, "memory": c.memory,
+           "latency_ms": None if c.latency is None else c.latency * 1e3}
+    ratios = [limit / now[k] for k, limit in budget.items() if now.get(k)]
+    return min(ratios) ** (1 / power) if ratios else 1.0
 
 
 def pareto(candidates: list[Candidate]) -> list[bool]:

@@ -11,15 +11,14 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import (QDialog, QDialogButtonBox, QFormLayout, QHBoxLayout, QHeaderView, QLabel,
-                               QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout)
+from PySide6.QtWidgets import QDialog, QHBoxLayout, QLabel, QPushButton, QTableWidget, QVBoxLayout
 
 from layerloom.core import units
 from layerloom.core.fit import apply_edit, fit, pareto
-from layerloom.core.targets import CAUTION
 from layerloom.gui import theme
 from layerloom.gui.budget_dialog import MIB, _limit_field
 from layerloom.gui.depth_ledger import UnitAxis
+from layerloom.gui.result_parts import accept_buttons, caution_label, narrow_form, result_table, set_row
 
 COLUMNS = ("candidate", "weights", "MACs", "peak memory", "est. latency", "")
 
@@ -44,14 +43,8 @@ class FitDialog(QDialog):
         self.macs.setValue(budget.get("macs", 0))
         self.memory.setValue(budget.get("memory", 0) / MIB)
         self.latency.setValue(budget.get("latency_ms", 0))
-        for box in (self.weights, self.macs, self.memory, self.latency):
-            box.setMinimumWidth(160)
-            box.setMaximumWidth(220)
-        form = QFormLayout()
-        form.addRow("Weights", self.weights)
-        form.addRow("MACs (batch)", self.macs)
-        form.addRow("Peak live activations", self.memory)
-        form.addRow("Estimated latency", self.latency)
+        form = narrow_form({"Weights": self.weights, "MACs (batch)": self.macs, "Peak live activations": self.memory,
+                            "Estimated latency": self.latency}, 220)
         target = document.design.target
         self.latency.setEnabled(target is not None)
         self.latency.setToolTip(f"on {target.name}" if target else "choose a target in Budget and target first")
@@ -68,15 +61,9 @@ class FitDialog(QDialog):
         top.addWidget(search, 0, Qt.AlignmentFlag.AlignBottom)
         top.addStretch(1)
 
-        self.table = QTableWidget(0, len(COLUMNS))
-        self.table.setHorizontalHeaderLabels(COLUMNS)
-        self.table.verticalHeader().hide()
-        self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        self.table = result_table(COLUMNS)
         self.table.setSelectionBehavior(QTableWidget.SelectionBehavior.SelectRows)
         self.table.setSelectionMode(QTableWidget.SelectionMode.SingleSelection)
-        header = self.table.horizontalHeader()
-        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-        header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.table.itemSelectionChanged.connect(self._row_chosen)
 
         self.x_axis, self.y_axis = UnitAxis("bottom"), UnitAxis("left")
@@ -101,16 +88,7 @@ class FitDialog(QDialog):
         self.key.setWordWrap(True)
         self.status = QLabel()
         self.status.setWordWrap(True)
-        caution = QLabel(CAUTION)
-        caution.setWordWrap(True)
-        caution.setObjectName("caution")
-
-        self.buttons = QDialogButtonBox()
-        self.apply_button = self.buttons.addButton("Apply", QDialogButtonBox.ButtonRole.AcceptRole)
-        self.apply_button.setEnabled(False)
-        self.buttons.addButton(QDialogButtonBox.StandardButton.Close)
-        self.buttons.accepted.connect(self.apply)
-        self.buttons.rejected.connect(self.reject)
+        self.buttons, self.apply_button = accept_buttons(self, "Apply", self.apply)
 
         body = QHBoxLayout()
         body.addWidget(self.table, 5)
@@ -121,7 +99,7 @@ class FitDialog(QDialog):
         layout.addLayout(body, 1)
         layout.addWidget(self.key)
         layout.addWidget(self.status)
-        layout.addWidget(caution)
+        layout.addWidget(caution_label())
         layout.addWidget(self.buttons)
         self.resize(1040, 620)
         if budget:
@@ -156,13 +134,8 @@ class FitDialog(QDialog):
         self.table.setRowCount(len(cands))
         for r, (c, front) in enumerate(zip(cands, self.front)):
             mark = "chosen" if c is best else ("front" if front else "")
-            cells = (c.describe(), units.count(c.weights), units.count(c.macs), units.size(c.memory),
-                     "·" if c.latency is None else f"{c.latency * 1e3:.3g} ms", mark)
-            for col, text in enumerate(cells):
-                item = QTableWidgetItem(text)
-                if 0 < col < 5:
-                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-                self.table.setItem(r, col, item)
+            set_row(self.table, r, (c.describe(), units.count(c.weights), units.count(c.macs), units.size(c.memory),
+                                    "·" if c.latency is None else f"{c.latency * 1e3:.3g} ms", mark), range(1, 5))
         self.table.blockSignals(False)
         macs = np.array([c.macs for c in cands], dtype=float)
         weights = np.array([c.weights for c in cands], dtype=float)

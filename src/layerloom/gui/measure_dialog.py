@@ -5,7 +5,8 @@ there, on first use, never at the editor's start) and times it (:mod:`layerloom.
 reporting progress; Cancel stops it after the current timed call and the editor stays responsive
 throughout. The result shows each block's measured time beside its roofline estimate, the whole
 network against the sum of estimates, and a target calibrated from it (:mod:`layerloom.core.calibrate`)
-with how well it predicts the half of the blocks it was not fitted on. "Keep" stores the
+with how well it predicts the half of the blocks it was not fitted on, and, on request, every
+block of another design measured the same way ("Check on another design…"). "Keep" stores the
 measurement in the design (the Depth ledger draws it) and, if chosen, the calibrated target, as one
 undoable edit; the target is also kept among the user's targets for later designs.
 """
@@ -14,19 +15,18 @@ from __future__ import annotations
 import os
 import threading
 
-from PySide6.QtCore import QObject, Qt, QThread, Signal
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QDialog, QDialogButtonBox, QFormLayout, QHBoxLayout,
-                               QHeaderView, QLabel, QProgressBar, QPushButton, QSpinBox, QTableWidget,
-                               QTableWidgetItem, QVBoxLayout)
+from PySide6.QtCore import QObject, QThread, Signal
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QDialog, QFileDialog, QHBoxLayout, QLabel, QProgressBar,
+                               QPushButton, QSpinBox, QVBoxLayout)
 
 from layerloom.core.calibrate import calibrate, mape, samples, split_halves
 from layerloom.core.edits import Edit, SetField
-from layerloom.core.fileformat import copy
+from layerloom.core.fileformat import LoomFileError, copy, load
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
 from layerloom.core.measurement import compare
-from layerloom.core.targets import CAUTION
 from layerloom.gui.budget_dialog import keep_target
+from layerloom.gui.result_parts import accept_buttons, caution_label, narrow_form, result_table, set_row
 
 RUNTIMES = ("torch", "onnxruntime")
 COLUMNS = ("block", "kind", "measured µs", "± spread", "estimated µs", "measured ÷ est.")
@@ -74,6 +74,7 @@ class MeasureDialog(QDialog):
         self.document = document
         self.measurement = None
         self.target = None
+        self._half = None  # the target fitted on half of the blocks
         self._thread: QThread | None = None
         self._worker: MeasureWorker | None = None
         design = document.design
@@ -83,13 +84,8 @@ class MeasureDialog(QDialog):
         self.runtime = QComboBox()
         self.runtime.addItems(RUNTIMES)
         self.repeat = QSpinBox(minimum=1, maximum=1000, value=20)
-        for box in (self.batch, self.threads, self.runtime, self.repeat):
-            box.setMaximumWidth(180)
-        form = QFormLayout()
-        form.addRow("Batch", self.batch)
-        form.addRow("Threads", self.threads)
-        form.addRow("Runtime", self.runtime)
-        form.addRow("Timed runs", self.repeat)
+        form = narrow_form({"Batch": self.batch, "Threads": self.threads, "Runtime": self.runtime,
+                            "Timed runs": self.repeat}, 180)
 
         self.start_button = QPushButton("Measure")
         self.start_button.setDefault(True)
@@ -105,28 +101,21 @@ class MeasureDialog(QDialog):
         run_row.addWidget(self.start_button)
         run_row.addWidget(self.cancel_button)
 
-        self.table = QTableWidget(0, len(COLUMNS))
-        self.table.setHorizontalHeaderLabels(COLUMNS)
-        self.table.verticalHeader().hide()
-        self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
-        header = self.table.horizontalHeader()
-        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-        header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        self.table = result_table(COLUMNS)
         self.summary = QLabel()
         self.summary.setWordWrap(True)
         self.summary.setObjectName("measure_summary")
         self.use_target = QCheckBox("Use the calibrated target for this design's estimates")
         self.use_target.setEnabled(False)
-        caution = QLabel(CAUTION)
-        caution.setWordWrap(True)
-        caution.setObjectName("caution")
-
-        self.buttons = QDialogButtonBox()
-        self.keep_button = self.buttons.addButton("Keep in design", QDialogButtonBox.ButtonRole.AcceptRole)
-        self.keep_button.setEnabled(False)
-        self.buttons.addButton(QDialogButtonBox.StandardButton.Close)
-        self.buttons.accepted.connect(self.keep)
-        self.buttons.rejected.connect(self.reject)
+        self.check_button = QPushButton("Check on another design…")
+        self.check_button.setEnabled(False)
+        self.check_button.setToolTip("measure another design and see how well the target fitted on half of this "
+                                     "design's blocks predicts its blocks")
+        self.check_button.clicked.connect(lambda: self.check_other())
+        target_row = QHBoxLayout()
+        target_row.addWidget(self.use_target, 1)
+        target_row.addWidget(self.check_button)
+        self.buttons, self.keep_button = accept_buttons(self, "Keep in design", self.keep)
 
         layout = QVBoxLayout(self)
         layout.addLayout(form)
@@ -134,8 +123,8 @@ class MeasureDialog(QDialog):
         layout.addWidget(self.status)
         layout.addWidget(self.table, 1)
         layout.addWidget(self.summary)
-        layout.addWidget(self.use_target)
-        layout.addWidget(caution)
+        layout.addLayout(target_row)
+        layout.addWidget(caution_label())
         layout.addWidget(self.buttons)
         self.resize(760, 600)
 
@@ -150,16 +139,38 @@ class MeasureDialog(QDialog):
             self.status.setText(f"The design has {len(errors)} error finding{'s' if len(errors) > 1 else ''} "
                                 f"(first: {errors[0].message}); mend {'them' if len(errors) > 1 else 'it'} to measure.")
             return
-        work = copy(design)
-        work.set_field("batch", self.batch.value())
-        self._work = work
+        self._work = copy(design)
+        self._work.set_field("batch", self.batch.value())
+        self._run(self._work, self._done)
+
+    def check_other(self, path: str | None = None) -> None:
+        """Measure another design (same batch, threads, runtime, runs) and report how well the target
+        fitted on half of this design's blocks predicts its blocks."""
+        if path is None:
+            path, _ = QFileDialog.getOpenFileName(self, "Check on another design", "", "Designs (*.loom)")
+            if not path:
+                return
+        try:
+            other = load(path)
+        except LoomFileError as e:
+            self.status.setText(f"Not checked: {e}")
+            return
+        if any(f.severity == ERROR for f in other.findings()):
+            self.status.setText(f"Not checked: {other.name} has error findings; mend them first.")
+            return
+        other.set_field("batch", self.measurement.batch)
+        self._other = other
+        self._run(other, self._checked)
+
+    def _run(self, design, on_done) -> None:
+        """Measure ``design`` in a worker thread; ``on_done(measurement)`` when it is done."""
         options = {"threads": self.threads.value(), "runtime": self.runtime.currentText(), "repeat": self.repeat.value()}
         self._thread = QThread(self)
-        self._worker = MeasureWorker(work, options)
+        self._worker = MeasureWorker(design, options)
         self._worker.moveToThread(self._thread)
         self._thread.started.connect(self._worker.run)
         self._worker.progressed.connect(self._progressed)
-        self._worker.finished.connect(self._done)
+        self._worker.finished.connect(on_done)
         self._worker.failed.connect(self._failed)
         self._worker.cancelled.connect(self._cancelled)
         for signal in (self._worker.finished, self._worker.failed, self._worker.cancelled):
@@ -178,6 +189,7 @@ class MeasureDialog(QDialog):
 
     def _set_running(self, on: bool) -> None:
         self.start_button.setEnabled(not on)
+        self.check_button.setEnabled(not on and self._half is not None)
         self.cancel_button.setEnabled(on)
         for w in (self.batch, self.threads, self.runtime, self.repeat):
             w.setEnabled(not on)
@@ -215,13 +227,14 @@ class MeasureDialog(QDialog):
                                     f"{m.machine.torch_version}: least squares over {len(data)} blocks of "
                                     f"'{self._work.name}' at batch {m.batch}")
             fit_half, held = split_halves(data)
+            self._half = calibrate(fit_half, name) if len(fit_half) > 1 else None
             lines.append(f"Calibrated target “{name}”: {self.target.macs_per_second / 1e9:.3g} GMAC/s, "
                          f"{self.target.bytes_per_second / 1e9:.3g} GB/s, {self.target.overhead * 1e6:.3g} µs per layer.")
-            if held:
+            if held and self._half is not None:
                 lines.append(f"Fitted on half of the blocks, it predicts the other half with a median error of "
-                             f"{mape(calibrate(fit_half, name), held):.0f} %.")
+                             f"{mape(self._half, held):.0f} %.")
         except ValueError as e:
-            self.target = None
+            self.target = self._half = None
             lines.append(f"No target calibrated: {e}.")
         self.summary.setText("\n".join(lines))
         self.use_target.setEnabled(self.target is not None)
@@ -231,6 +244,18 @@ class MeasureDialog(QDialog):
         self._fill(compare(ledger, m))
         self.status.setText(f"Measured on {m.machine.describe()}, torch {m.machine.torch_version}, {m.date}.")
         self.keep_button.setEnabled(True)
+        self.check_button.setEnabled(self._half is not None)
+
+    def _checked(self, measurement) -> None:
+        self._set_running(False)
+        data = samples(Ledger(self._other.analysis()), measurement)
+        if not data:
+            self.status.setText(f"Not checked: {self._other.name} has no timed plain blocks.")
+            return
+        self.check_error = mape(self._half, data)
+        self.summary.setText(self.summary.text() + f"\nOn “{self._other.name}” ({len(data)} blocks, none fitted "
+                             f"on), it predicts with a median error of {self.check_error:.0f} %.")
+        self.status.setText(f"Checked on {self._other.name}.")
 
     def _fill(self, rows) -> None:
         def us(s):
@@ -238,13 +263,8 @@ class MeasureDialog(QDialog):
 
         self.table.setRowCount(len(rows))
         for r, row in enumerate(rows):
-            cells = (row.name, row.kind, us(row.measured), us(row.spread), us(row.estimated),
-                     f"{row.ratio:.2f}" if row.ratio else "·")
-            for c, text in enumerate(cells):
-                item = QTableWidgetItem(text)
-                if c > 1:
-                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-                self.table.setItem(r, c, item)
+            set_row(self.table, r, (row.name, row.kind, us(row.measured), us(row.spread), us(row.estimated),
+                                    f"{row.ratio:.2f}" if row.ratio else "·"), range(2, 6))
 
     # ----- result
     def keep(self) -> None:
