@@ -18,7 +18,7 @@ from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import H, W, sized_font
 
 NAME_PX = 10  # em size of a card's name drawn far out, viewport pixels (≥ theme.READABLE_PX)
-NAME_ROOM = 24.0  # a card narrower than this on screen shows no name
+NAME_ROOM = 40.0  # a card narrower than this on screen shows no name (a few letters and … say nothing)
 LABEL_PX = 12  # em size of a stage label, viewport pixels
 PAD = 4.0  # room around a label's text inside its plate
 LIFT = 3.0  # a label's plate ends this far above its stage's top card
