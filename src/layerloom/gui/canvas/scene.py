@@ -467,12 +467,13 @@ class CanvasScene(QGraphicsScene):
                 src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
                 a = blocks[src].output_pos(w.src_port if src == w.src else 0)
                 b = blocks[dst].input_pos(w.dst_port)
+                before = item.lines
                 item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
                                   self._labelled(w))
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
-                if src not in self.moving and dst not in self.moving:
-                    self.overview_revision += 1
+                if src not in self.moving and dst not in self.moving and item.lines != before:
+                    self.overview_revision += 1  # a still wire took another way
         self._dirty_wires.clear()
 
     def _labelled(self, w) -> bool:
