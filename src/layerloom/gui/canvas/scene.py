@@ -74,10 +74,9 @@ NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
 
 
 def _overview_colour(item: BlockItem):
-    """A card's outline far out: selection, else error or warning, else the plain edge."""
+    """A card's outline far out: error or warning, else the plain edge (the selection is drawn over it)."""
     status = item.state.status
-    return (theme.ACCENT if item.isSelected() else
-            theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE)
+    return theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE
 
 
 def _rect(item: BlockItem) -> tuple:
@@ -124,7 +123,7 @@ class CanvasScene(QGraphicsScene):
         document.graph_changed.connect(self.rebuild)
         document.selection_changed.connect(self._select_from_document)
         self.selectionChanged.connect(self._select_to_document)
-        self.selectionChanged.connect(self._overview_reselect)
+        self.selectionChanged.connect(self._selection_seen)
         self.rebuild()
 
     @property
@@ -348,9 +347,10 @@ class CanvasScene(QGraphicsScene):
             _overview_flags(item, on)
 
     def overview_shapes(self, moving: bool | None = None) -> tuple[list, list]:
-        """Wire lines, and (colour, card rectangles) groups: selection, error, warning, plain. Kept
-        up to date piece by piece while blocks move; made again after other changes. ``moving``
-        True gives only the cards being dragged and their wires, False all the rest."""
+        """Wire lines, and (colour, card rectangles) groups: error, warning, plain, and the selection
+        drawn over them. Kept up to date piece by piece while blocks move; made again after other
+        changes. ``moving`` True gives what is drawn live (the cards being dragged, their wires,
+        the selection), False the still rest."""
         if not self._ov_valid:
             self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
@@ -359,14 +359,17 @@ class CanvasScene(QGraphicsScene):
                 self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
                 self._ov_where[bid] = colour.rgba()
             self._ov_valid = True
+        chosen = [] if moving is False else [
+            (theme.ACCENT, [CARD_RECT.translated(i.pos()) for i in self.selectedItems() if isinstance(i, BlockItem)])]
         if moving is None or not self.moving:
             if moving:
-                return [], []
+                return [], chosen
             return ([ln for lines in self._ov_lines.values() for ln in lines],
-                    [(c, list(r.values())) for c, r in self._ov_rects.values()])
+                    [(c, list(r.values())) for c, r in self._ov_rects.values()] + chosen)
         dragged = self._moving_wires()
         lines = [ln for w, ls in self._ov_lines.items() if (w in dragged) == moving for ln in ls]
-        return lines, [(c, [r for b, r in rs.items() if (b in self.moving) == moving]) for c, rs in self._ov_rects.values()]
+        return lines, [(c, [r for b, r in rs.items() if (b in self.moving) == moving])
+                       for c, rs in self._ov_rects.values()] + chosen
 
     def overview_cards(self, moving: bool | None = None) -> list:
         """``(scene rectangle, name)`` of every card far out (``moving`` as for :meth:`overview_shapes`)."""
@@ -420,18 +423,10 @@ class CanvasScene(QGraphicsScene):
         self._ov_valid = False
         self.overview_revision += 1
 
-    def _overview_reselect(self) -> None:
-        """After a selection change, move only the cards whose outline colour changed."""
-        self.overview_revision += 1
-        if not self._ov_valid:
-            return
-        for bid, item in self.cards():
-            colour = _overview_colour(item)
-            was = self._ov_where.get(bid)
-            if was != colour.rgba():
-                rect = self._ov_rects[was][1].pop(bid) if was is not None else CARD_RECT.translated(item.pos())
-                self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = rect
-                self._ov_where[bid] = colour.rgba()
+    def _selection_seen(self) -> None:
+        """Far out the selection is drawn live over the still picture: show it where it is now."""
+        if self.overview:
+            self.update()
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:

@@ -148,8 +148,8 @@ class CanvasView(QGraphicsView):
         painter.resetTransform()
         painter.drawPixmap(0, 0, self._ov_cache[1])
         painter.restore()
-        if self.canvas_scene.moving:  # cards being dragged, and their wires, drawn live on top
-            self._draw_overview(painter, self.mapToScene(self.viewport().rect()).boundingRect(), moving=True)
+        # the selection, and cards being dragged with their wires, drawn live on top
+        self._draw_overview(painter, self.mapToScene(self.viewport().rect()).boundingRect(), moving=True)
 
     def shows_stage_summaries(self) -> bool:
         """Whether cards are too small here to show name and shape, so stage rows are labelled."""
@@ -168,9 +168,9 @@ class CanvasView(QGraphicsView):
             if specks:
                 painter.setPen(Qt.PenStyle.NoPen)
                 painter.setBrush(colour)
-            else:
+            else:  # the selection is an outline over its card's own rectangle
                 painter.setPen(QPen(colour, 0 if colour == theme.CARD_EDGE else 2))
-                painter.setBrush(theme.CARD)
+                painter.setBrush(Qt.BrushStyle.NoBrush if colour == theme.ACCENT else theme.CARD)
             painter.drawRects(group)
         if not specks:
             overview_names(painter, self, exposed, moving)
