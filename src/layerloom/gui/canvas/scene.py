@@ -180,7 +180,10 @@ class CanvasScene(QGraphicsScene):
                     item.setPos(x, y)
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
             self._stages = None
-            for bid in change.moved[key]:
+            moved = change.moved[key]
+            if len(moved) * 4 > len(self.blocks):  # most cards moved (Tidy): every route may change
+                self._dirty_wires.update(self.wires)
+            for bid in moved if len(moved) * 4 <= len(self.blocks) else ():
                 item = self.blocks.get(bid)
                 if isinstance(item, BlockItem):
                     self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
@@ -456,6 +459,7 @@ class CanvasScene(QGraphicsScene):
             siblings = out_wires.get(w.src, ())
             if len(siblings) > 1:
                 self._dirty_wires.update(x for x in siblings if x.src_port == w.src_port and x in self.wires)
+        chosen: dict = {}  # (block, port) → the wire of that output that carries the label
         for w in self._dirty_wires:
             item = self.wires.get(w)
             if item is not None:
@@ -464,26 +468,27 @@ class CanvasScene(QGraphicsScene):
                 b = blocks[dst].input_pos(w.dst_port)
                 before = item.lines
                 item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
-                                  self._labelled(w))
+                                  self._labelled(w, chosen))
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
                 if src not in self.moving and dst not in self.moving and item.lines != before:
                     self.overview_revision += 1  # a still wire took another way
         self._dirty_wires.clear()
 
-    def _labelled(self, w) -> bool:
+    def _labelled(self, w, chosen: dict) -> bool:
         """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the
-        nearest card does (they all carry the same tensor)."""
-        siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]
-        if len(siblings) < 2:
-            return True
-        here = self.blocks[self.card_of(w.src)].pos()
+        nearest card does (they all carry the same tensor); ``chosen`` remembers the pick per output."""
+        key = (w.src, w.src_port)
+        if key not in chosen:
+            siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]
+            here = self.blocks[self.card_of(w.src)].pos()
 
-        def distance(x):
-            p = self.blocks[self.card_of(x.dst)].pos() - here
-            return (abs(p.x()) + abs(p.y()), x.dst)
+            def distance(x):
+                p = self.blocks[self.card_of(x.dst)].pos() - here
+                return (abs(p.x()) + abs(p.y()), x.dst)
 
-        return min(siblings, key=distance) == w
+            chosen[key] = min(siblings, key=distance) if len(siblings) > 1 else w
+        return chosen[key] == w
 
     # ----- selection, both ways
     def _select_to_document(self) -> None:
