@@ -117,6 +117,7 @@ class CanvasScene(QGraphicsScene):
         self._ov_valid = False
         self.overview_revision = 0  # grows whenever the overview's still part may have changed
         self.moving: set[str] = set()  # cards dragged since the last change of the document
+        self._bulk = False  # while an edit moves most cards at once
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
         document.replaced.connect(self.rebuild)
@@ -172,18 +173,25 @@ class CanvasScene(QGraphicsScene):
         self.overview_revision += 1
         if key in change.topology:
             self._sync_topology()
-        for bid in change.moved.get(key, ()):
-            item = self.blocks.get(bid)
-            if isinstance(item, BlockItem):
-                x, y = graph.blocks[bid].position
-                if item.pos() != QPointF(x, y):
-                    item.setPos(x, y)
+        many = len(change.moved.get(key, ())) * 4 > len(self.blocks)  # most cards move (Tidy): in bulk
+        self._bulk = many
+        try:
+            for bid in change.moved.get(key, ()):
+                item = self.blocks.get(bid)
+                if isinstance(item, BlockItem):
+                    x, y = graph.blocks[bid].position
+                    if item.pos() != QPointF(x, y):
+                        item.setPos(x, y)
+        finally:
+            self._bulk = False
+        if many:
+            self.obstacles = Obstacles({b: _rect(i) for b, i in self.cards()})
+            self._ov_valid = False
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
             self._stages = None
-            moved = change.moved[key]
-            if len(moved) * 4 > len(self.blocks):  # most cards moved (Tidy): every route may change
+            if many:  # every route may change
                 self._dirty_wires.update(self.wires)
-            for bid in moved if len(moved) * 4 <= len(self.blocks) else ():
+            for bid in () if many else change.moved[key]:
                 item = self.blocks.get(bid)
                 if isinstance(item, BlockItem):
                     self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
@@ -433,6 +441,8 @@ class CanvasScene(QGraphicsScene):
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
+        if self._bulk:  # the scene re-indexes and re-routes everything once afterwards
+            return
         item = self.blocks[block_id]
         if block_id not in self.moving:  # the still part is drawn once more without it
             self.moving.add(block_id)
