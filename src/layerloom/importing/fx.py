@@ -163,7 +163,7 @@ class _Reader:
                 proposed = None
             chain = confirm(proposed, in_shapes, out, weights, buffers)
         return SourceOp(self._name(n, scope), self._label(n), ins, [n.name], chain, scope, params,
-                        self.flops.get(n.name, 0) // 2)
+                        self.flops.get(n.name, 0) // 2, n.name)
 
     def _params(self, n):
         """Weights and buffers the node owns (a module's, or those it reads with get_attr), by name."""

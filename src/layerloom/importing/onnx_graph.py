@@ -20,7 +20,7 @@ from typing import NamedTuple
 
 from layerloom.core.shapes import Shape
 from layerloom.importing.build import Imported, build_design
-from layerloom.importing.mapping import confirm, conv_chain, representable
+from layerloom.importing.mapping import chain_shape, confirm, conv_chain, representable
 from layerloom.importing.plan import ImportFailed, SourceOp, plan
 
 FLOAT_TYPES = {1, 10, 11, 16}  # FLOAT, FLOAT16, DOUBLE, BFLOAT16
@@ -160,16 +160,25 @@ class _Reader:
                 self.producer[v] = n
 
     def const(self, name: str):
-        """The value of a small initializer or a Constant output, as a numpy array, or None."""
+        """The value of a small initializer, a Constant, or a Concat, Unsqueeze, Cast or Identity of
+        such values (sizes the exporter computes without folding), as a numpy array; else None."""
+        import numpy as np
+
         if name in self.initializers:
             proto = self.initializers[name].proto
             return self.numpy(proto) if proto is not None else None
-        node = self.constants.get(name)
-        if node is not None:
-            for a in node.attribute:
-                if a.name == "value":
-                    return self.numpy(a.t)
-        return None
+        node = self.constants.get(name) or self.producer.get(name)
+        if node is None:
+            return None
+        if node.op_type == "Constant":
+            value = next((a.t for a in node.attribute if a.name == "value"), None)
+            return self.numpy(value) if value is not None else None
+        parts = [self.const(v) for v in node.input[:1 if node.op_type != "Concat" else None]]
+        if node.op_type not in ("Concat", "Unsqueeze", "Cast", "Identity") or any(p is None for p in parts):
+            return None
+        if node.op_type == "Concat":
+            return np.concatenate([np.atleast_1d(p) for p in parts])
+        return np.atleast_1d(parts[0]) if node.op_type == "Unsqueeze" else parts[0]
 
     def read(self, x: str):
         """Operations in graph order and the values the graph returns."""
@@ -195,18 +204,22 @@ class _Reader:
             outs = [v for v in n.output if v in data]
             name, scope = scopes[id(n)]
             weights_read = {v: self.initializers[v] for v in n.input if v in self.initializers}
-            params = {v: (math.prod(t.dims), False) for v, t in weights_read.items() if t.data_type in FLOAT_TYPES}
+            params = {v: (math.prod(t.dims), False) for v, t in weights_read.items()
+                      if t.data_type in FLOAT_TYPES and t.dims}  # a scalar (a Clip bound) is no weight
             chain = None
             if id(n) in fused:
                 chain, ins = fused[id(n)]
             out = self.shapes.get(outs[0]) if len(outs) == 1 else None
             in_shapes = tuple(self.shapes.get(v) for v in ins)
-            if out is not None and all(s is not None for s in in_shapes):
+            if len(outs) == 1 and all(s is not None for s in in_shapes):
                 if chain is None:
                     try:
                         chain = self._map(n, in_shapes, out)
                     except (TypeError, ValueError, KeyError, IndexError):
                         chain = None
+                if out is None:  # shape inference could not tell (sizes computed in the graph): our rule does
+                    out = self.shapes[outs[0]] = chain_shape(chain, in_shapes)
+            if out is not None and all(s is not None for s in in_shapes):
                 weights = sum(k for k, _ in params.values())
                 buffers = 0
                 if n.op_type == "BatchNormalization":
@@ -215,7 +228,7 @@ class _Reader:
                 chain = confirm(chain, in_shapes, out, weights, buffers)
             else:
                 chain = None
-            ops.append(SourceOp(name, n.op_type, ins, outs, chain, scope, params, 0))
+            ops.append(SourceOp(name, n.op_type, ins, outs, chain, scope, params, 0, n.name or outs[0]))
         outputs = [o.name for o in self.graph.output if o.name in data]
         return ops, outputs
 
@@ -428,13 +441,29 @@ def _resize(r, n, a, ins, out):
         kind = "nearest"
     else:
         return None
-    (c, h, w), (_, oh, ow) = ins[0], out
+    (c, h, w) = ins[0]
+    if out is None:
+        scales = r.const(n.input[2]) if len(n.input) > 2 and n.input[2] else None
+        sizes = r.const(n.input[3]) if len(n.input) > 3 and n.input[3] else None
+        if scales is not None and len(scales) == 4:
+            oh, ow = h * float(scales[2]), w * float(scales[3])
+        elif sizes is not None and len(sizes) == 4:
+            oh, ow = int(sizes[2]), int(sizes[3])
+        else:
+            return None
+    else:
+        oh, ow = out[1:]
     if oh % h or ow % w or oh // h != ow // w:
         return None
-    return [("Upsample", {"scale": oh // h, "mode": kind})]
+    return [("Upsample", {"scale": int(oh // h), "mode": kind})]
 
 
 def _reshape(r, n, a, ins, out):
+    if out is None:
+        target = r.const(n.input[1])
+        if target is None or len(target) != 2 or len(ins[0]) != 3:
+            return None
+        return [("Flatten", {})]
     if out == ins[0]:
         return [("Identity", {})]
     return [("Flatten", {})] if len(ins[0]) == 3 and len(out) == 1 else None
