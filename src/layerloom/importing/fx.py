@@ -80,6 +80,9 @@ def _propagate(gm, input_shape, cls: str, measure: set[str]):
                 with FlopCounterMode(display=False) as counter:
                     r = super().run_node(n)
                 flops[n.name] = counter.get_total_flops()
+            elif (n.op == "call_module" and type(self.module.get_submodule(n.target)) in _SHAPE_KEEPING
+                  and getattr(self.env.get(n.args[0]), "is_meta", False)):
+                r = torch.empty_like(self.env[n.args[0]])  # a norm or activation: same shape, no work on meta
             else:
                 r = super().run_node(n)
             results[n.name] = r
@@ -391,10 +394,12 @@ def _tables():
     module_types = {nn.Conv2d, nn.ConvTranspose2d, nn.BatchNorm2d, nn.LeakyReLU, nn.Softmax, nn.MaxPool2d,
                     nn.AvgPool2d, nn.AdaptiveAvgPool2d, nn.Upsample, nn.Linear, nn.Flatten, nn.Dropout, nn.Identity,
                     *modules}
+    _SHAPE_KEEPING.update({nn.BatchNorm2d, nn.LeakyReLU, nn.Dropout, nn.Identity, *modules})
     return module_types, modules, functions, rules
 
 
 _MODULE_TYPES: set = set()
+_SHAPE_KEEPING: set = set()  # module types whose output has the input's shape (propagated without running)
 _ACTIVATION_MODULES: dict = {}
 _ACTIVATION_FUNCTIONS: dict = {}
 _FUNCTION_RULES: list = []
