@@ -15,11 +15,14 @@ import re
 
 from layerloom.core.shapes import Shape
 from layerloom.importing.build import Imported, build_design
-from layerloom.importing.mapping import confirm, conv_chain, representable
-from layerloom.importing.plan import ImportFailed, SourceOp, plan
+from layerloom.importing.mapping import confirm, conv_chain, representable, upsample_chain
+from layerloom.importing.plan import ImportFailed, SourceOp, one_line, plan
 
 
-def import_module(module, input_shape: Shape = Shape.chw(3, 224, 224), name: str | None = None,
+DEFAULT_INPUT = Shape.chw(3, 224, 224)
+
+
+def import_module(module, input_shape: Shape = DEFAULT_INPUT, name: str | None = None,
                   motifs: bool = True) -> Imported:
     """A design read from ``module`` (an ``nn.Module``) for inputs of ``input_shape`` (C×H×W).
 
@@ -32,7 +35,7 @@ def import_module(module, input_shape: Shape = Shape.chw(3, 224, 224), name: str
     try:
         gm = torch.fx.symbolic_trace(module)
     except Exception as e:  # noqa: BLE001 — any tracing failure is the user's module's, reported in one line
-        raise ImportFailed(f"{cls} does not trace with torch.fx ({type(e).__name__}: {_line(e)}); "
+        raise ImportFailed(f"{cls} does not trace with torch.fx ({type(e).__name__}: {one_line(e)}); "
                            "import needs a forward without data-dependent control flow") from None
     placeholders = [n for n in gm.graph.nodes if n.op == "placeholder"]
     if len(placeholders) != 1:
@@ -49,10 +52,6 @@ def import_module(module, input_shape: Shape = Shape.chw(3, 224, 224), name: str
     blocks = plan(ops, shapes, [(x, x)], outputs)
     return build_design(name or _snake(cls), blocks, motifs, reader.notes())
 
-
-def _line(e: BaseException) -> str:
-    text = str(e).strip().splitlines()
-    return text[0][:200] if text else type(e).__name__
 
 
 def _snake(text: str) -> str:
@@ -110,7 +109,7 @@ def _propagate(gm, input_shape, cls: str, measure: set[str]):
             Measure(gm).run(torch.zeros(1, *input_shape))
     except Exception as e:  # noqa: BLE001 — the user's module failing on this input, in one line
         raise ImportFailed(f"{cls} fails on an input of shape 1×{'×'.join(map(str, input_shape))} "
-                           f"({type(e).__name__}: {_line(e)}); give the input it expects with --input") from None
+                           f"({type(e).__name__}: {one_line(e)}); give the input it expects with --input") from None
     return results, flops
 
 
@@ -282,10 +281,7 @@ def _flatten(ins):
 def _upsample(mode, align_corners, ins, out):
     if mode not in ("nearest", "bilinear") or align_corners:
         return None
-    (c, h, w), (_, oh, ow) = ins[0], out
-    if oh % h or ow % w or oh // h != ow // w:
-        return None
-    return [("Upsample", {"scale": oh // h, "mode": mode})]
+    return upsample_chain(*ins[0][1:], *out[1:], mode)
 
 
 def _activation(n, ins, out):

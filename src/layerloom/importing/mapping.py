@@ -31,6 +31,13 @@ def conv_chain(in_channels: int, out: int, kernel, stride, padding, dilation, gr
                         "padding": _pair(padding), "dilation": _pair(dilation), "groups": groups, "bias": bias})]
 
 
+def upsample_chain(h: int, w: int, oh, ow, mode: str) -> Chain | None:
+    """Upsample by a whole factor, the same on both axes, from sizes h×w to oh×ow; else None."""
+    if oh % h or ow % w or oh // h != ow // w:
+        return None
+    return [("Upsample", {"scale": int(oh // h), "mode": mode})]
+
+
 def _pair(value):
     """``(3, 3)`` → ``3``; ``(3, 1)`` → ``[3, 1]``; an int (or ``"same"``) stays."""
     if isinstance(value, (int, str)):

@@ -181,11 +181,14 @@ def _motif_name(cls: str | None, taken: set[str]) -> str:
 
 def _identifier(text: str, taken: set[str]) -> str:
     stem = re.sub(r"\W+", "_", text).strip("_") or "p"
-    if stem[0].isdigit():
-        stem = "p_" + stem
-    name, n = stem, 1
-    while name in taken:
+    return unique(stem if not stem[0].isdigit() else "p_" + stem, taken)
+
+
+def unique(name: str, taken: set[str]) -> str:
+    """``name``, or ``name_2``, ``name_3``, … the first not in ``taken``; added to ``taken``."""
+    out, n = name, 1
+    while out in taken:
         n += 1
-        name = f"{stem}_{n}"
-    taken.add(name)
-    return name
+        out = f"{name}_{n}"
+    taken.add(out)
+    return out

@@ -20,8 +20,8 @@ from typing import NamedTuple
 
 from layerloom.core.shapes import Shape
 from layerloom.importing.build import Imported, build_design
-from layerloom.importing.mapping import chain_shape, confirm, conv_chain, representable
-from layerloom.importing.plan import ImportFailed, SourceOp, plan
+from layerloom.importing.mapping import chain_shape, confirm, conv_chain, representable, upsample_chain
+from layerloom.importing.plan import ImportFailed, SourceOp, one_line, plan
 
 FLOAT_TYPES = {1, 10, 11, 16}  # FLOAT, FLOAT16, DOUBLE, BFLOAT16
 
@@ -41,7 +41,7 @@ def import_onnx(path: str, input_shape: Shape | None = None, motifs: bool = True
     try:
         onnx.checker.check_model(model)
     except Exception as e:  # noqa: BLE001 — onnx raises several kinds; all mean the same to the user
-        raise ImportFailed(f"{path} is not a valid ONNX model: {_line(e)}") from None
+        raise ImportFailed(f"{path} is not a valid ONNX model: {one_line(e)}") from None
     inputs = [i for i in graph.input if i.name not in initializers]
     if len(inputs) != 1:
         raise ImportFailed(f"{path} has {len(inputs)} graph inputs; import reads networks with one image input")
@@ -56,7 +56,7 @@ def import_onnx(path: str, input_shape: Shape | None = None, motifs: bool = True
     try:
         model = onnx.shape_inference.infer_shapes(model, strict_mode=True, data_prop=True)
     except Exception as e:  # noqa: BLE001
-        raise ImportFailed(f"{path}: shape inference fails ({_line(e)})") from None
+        raise ImportFailed(f"{path}: shape inference fails ({one_line(e)})") from None
     reader = _Reader(model.graph, initializers)
     x = inputs[0].name
     if reader.shapes.get(x) is None or len(reader.shapes[x]) != 3:
@@ -81,7 +81,7 @@ def _load(path: str):
     except FileNotFoundError:
         raise ImportFailed(f"{path}: no such file") from None
     except Exception as e:  # noqa: BLE001 — a truncated or foreign file fails in the protobuf decoder
-        raise ImportFailed(f"{path} is not a readable ONNX file, perhaps truncated ({_line(e)})") from None
+        raise ImportFailed(f"{path} is not a readable ONNX file, perhaps truncated ({one_line(e)})") from None
     if not model.graph.node:
         raise ImportFailed(f"{path} holds no ONNX graph (no nodes)")
     return model
@@ -118,10 +118,6 @@ def _lighten(graph) -> dict[str, Tensor]:
     graph.input.extend(big)
     return described
 
-
-def _line(e: BaseException) -> str:
-    text = str(e).strip().splitlines()
-    return text[0][:200] if text else type(e).__name__
 
 
 def _safe(text: str) -> str:
@@ -441,7 +437,7 @@ def _resize(r, n, a, ins, out):
         kind = "nearest"
     else:
         return None
-    (c, h, w) = ins[0]
+    h, w = ins[0][1:]
     if out is None:
         scales = r.const(n.input[2]) if len(n.input) > 2 and n.input[2] else None
         sizes = r.const(n.input[3]) if len(n.input) > 3 and n.input[3] else None
@@ -453,9 +449,7 @@ def _resize(r, n, a, ins, out):
             return None
     else:
         oh, ow = out[1:]
-    if oh % h or ow % w or oh // h != ow // w:
-        return None
-    return [("Upsample", {"scale": int(oh // h), "mode": kind})]
+    return upsample_chain(h, w, oh, ow, kind)
 
 
 def _reshape(r, n, a, ins, out):

@@ -24,6 +24,12 @@ class ImportFailed(Exception):
     """A source that cannot be imported; the message is one line naming the place and the reason."""
 
 
+def one_line(e: BaseException) -> str:
+    """The first line of an exception's message (at most 200 characters), to quote in ImportFailed."""
+    text = str(e).strip().splitlines()
+    return text[0][:200] if text else type(e).__name__
+
+
 @dataclass
 class SourceOp:
     """One operation of the source network.
