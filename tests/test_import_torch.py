@@ -141,3 +141,17 @@ def test_a_module_called_twice_is_noted():
 
     imported = import_module(Twice(), (4, 8, 8))
     assert any("conv is called 2 times" in n for n in imported.notes)
+
+
+def test_forward_arguments_with_defaults_are_traced_with_them():
+    class Optional(torch.nn.Module):
+        def __init__(self):
+            super().__init__()
+            self.conv = torch.nn.Conv2d(3, 4, 3)
+
+        def forward(self, x, extra=None, doubled=False):
+            y = self.conv(x)
+            return y * 2 if doubled else y
+
+    d = import_module(Optional(), (3, 8, 8)).design
+    assert [b.kind for b in d.blocks.values()] == ["Input", "Conv2d", "Output"]

@@ -33,11 +33,11 @@ def import_module(module, input_shape: Shape = DEFAULT_INPUT, name: str | None =
     _load_tables()
     cls = type(module).__name__
     try:
-        gm = torch.fx.symbolic_trace(module)
+        gm = torch.fx.symbolic_trace(module, concrete_args=_defaults(module))
     except Exception as e:  # noqa: BLE001 — any tracing failure is the user's module's, reported in one line
         raise ImportFailed(f"{cls} does not trace with torch.fx ({type(e).__name__}: {one_line(e)}); "
                            "import needs a forward without data-dependent control flow") from None
-    placeholders = [n for n in gm.graph.nodes if n.op == "placeholder"]
+    placeholders = [n for n in gm.graph.nodes if n.op == "placeholder" and not n.args]  # args: a default
     if len(placeholders) != 1:
         raise ImportFailed(f"{cls}.forward takes {len(placeholders)} inputs; import reads networks with one image input")
     likely = {n.name for n in gm.graph.nodes if not _maybe_mapped(gm, n)}
@@ -52,6 +52,17 @@ def import_module(module, input_shape: Shape = DEFAULT_INPUT, name: str | None =
     blocks = plan(ops, shapes, [(x, x)], outputs)
     return build_design(name or _snake(cls), blocks, motifs, reader.notes())
 
+
+
+def _defaults(module) -> dict:
+    """Arguments of ``forward`` after the first that have defaults: traced with those values."""
+    import inspect
+
+    try:
+        params = list(inspect.signature(module.forward).parameters.values())[1:]
+    except (TypeError, ValueError):
+        return {}
+    return {p.name: p.default for p in params if p.default is not inspect.Parameter.empty}
 
 
 def _snake(text: str) -> str:
@@ -132,7 +143,8 @@ class _Reader:
         for n in self.gm.graph.nodes:
             value = self.results.get(n.name)
             if n.op == "placeholder":
-                data.add(n.name)
+                if n.name in inputs:  # not an argument traced with its default
+                    data.add(n.name)
                 continue
             if n.op == "output":
                 outputs = [a.name for a in _nodes(n.args) if a.name in data]

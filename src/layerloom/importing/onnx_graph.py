@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 import re
+from pathlib import Path
 from typing import NamedTuple
 
 from layerloom.core.shapes import Shape
@@ -69,8 +70,9 @@ def import_onnx(path: str, input_shape: Shape | None = None, motifs: bool = True
     if unmapped:
         notes.append(f"{len(unmapped)} ONNX operation{'s' if len(unmapped) != 1 else ''} could not be mapped; "
                      "their MACs are not counted")
-    name = re.sub(r"[^\w-]+", "-", (graph.name or "").strip()).strip("-") or "imported"
-    return build_design(name if name not in ("main_graph", "torch_jit") else "imported", blocks, motifs, notes)
+    named = (graph.name or "").strip() not in ("", "main_graph", "torch_jit")
+    name = re.sub(r"[^\w-]+", "-", graph.name if named else Path(path).stem).strip("-").lower() or "imported"
+    return build_design(name, blocks, motifs, notes)
 
 
 def _load(path: str):
