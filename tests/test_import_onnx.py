@@ -8,6 +8,7 @@ convolution before it, so a deployed file has convolutions with biases and no Ba
 from __future__ import annotations
 
 import warnings
+from pathlib import Path
 
 import numpy as np
 import onnx
@@ -18,9 +19,13 @@ from reference_nets import resnet50 as resnet50_design
 from reference_torch_nets import ResNet50, SeedlingCounter
 from test_import_torch import torch_counts
 
+from layerloom.core.fileformat import load
 from layerloom.export import ExportRefused, VerifyRefused, module_source, verify
 from layerloom.export.onnx_file import TOLERANCE, check_onnx, export_onnx
 from layerloom.importing import import_module, import_onnx
+
+
+SAMPLES = Path(__file__).resolve().parents[1] / "samples"
 
 
 def to_onnx(model, shape, path, fold=False):
@@ -31,12 +36,28 @@ def to_onnx(model, shape, path, fold=False):
     return path
 
 
-@pytest.mark.parametrize("cls, shape", [(ResNet50, (3, 224, 224)), (SeedlingCounter, (3, 96, 96))])
-def test_torch_to_onnx_to_design_has_the_same_ledger(cls, shape, tmp_path):
+def _exported(cls, shape, factory):
+    """A reference network and the ONNX file PyTorch writes for it (batch norms kept as nodes)."""
     torch.manual_seed(1)
     model = cls().eval()
+    return model, shape, to_onnx(model, shape, factory.mktemp("onnx") / f"{cls.__name__}.onnx")
+
+
+@pytest.fixture(scope="module")
+def resnet_file(tmp_path_factory):
+    return _exported(ResNet50, (3, 64, 64), tmp_path_factory)
+
+
+@pytest.fixture(scope="module")
+def seedling_file(tmp_path_factory):
+    return _exported(SeedlingCounter, (3, 96, 96), tmp_path_factory)
+
+
+@pytest.mark.parametrize("which", ["resnet_file", "seedling_file"])
+def test_torch_to_onnx_to_design_has_the_same_ledger(which, request):
+    model, shape, path = request.getfixturevalue(which)
     params, macs = torch_counts(model, shape)
-    via_onnx = import_onnx(to_onnx(model, shape, tmp_path / "m.onnx")).design
+    via_onnx = import_onnx(path).design
     via_fx = import_module(model, shape).design
     t, f = via_onnx.ledger().totals, via_fx.ledger().totals
     assert t.weights == params  # PyTorch: sum(p.numel())
@@ -73,10 +94,9 @@ def test_onnx_blocks_have_the_shapes_onnxruntime_computes(tmp_path):
     assert checked >= 40
 
 
-def test_resnet50_from_onnx_has_the_bottleneck_motifs(tmp_path):
+def test_resnet50_from_onnx_has_the_bottleneck_motifs(resnet_file):
     """ONNX names no classes; alike units are found from the exporter's scopes and structure."""
-    model = ResNet50().eval()
-    d = import_onnx(to_onnx(model, (3, 224, 224), tmp_path / "r.onnx")).design
+    d = import_onnx(resnet_file[2]).design
     assert len(d.motifs) == 2
     uses = sorted((b.settings["motif"], b.settings["repeat"]) for b in d.blocks.values() if b.kind == "Motif")
     assert uses == sorted([("unit", 1)] * 4 + [("unit_2", r) for r in (2, 3, 5, 2)])
@@ -151,7 +171,7 @@ def test_onnx_export_of_resnet50_agrees_with_torch_and_the_ledger(tmp_path):
 
 
 def test_onnx_check_finds_a_changed_weight(tmp_path):
-    design = resnet50_design(64)
+    design = load(SAMPLES / "fastener_sorter.loom")
     path = tmp_path / "r.onnx"
     model = export_onnx(design, path)
     m = onnx.load(str(path))
