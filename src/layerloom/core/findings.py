@@ -50,7 +50,8 @@ CODES: dict[str, str] = {
 
 @dataclass(frozen=True)
 class Finding:
-    """One finding. ``block`` is a top-level block id; ``path`` the ids inside motifs, outermost first."""
+    """One finding. ``block`` is a top-level block id; ``path`` the ids inside motifs, outermost first;
+    ``port`` an input port of the block the finding is about (the last of ``path`` when there is one)."""
 
     code: str
     severity: str
@@ -70,7 +71,7 @@ class Finding:
     def inside(self, instance: str, instance_name: str) -> "Finding":
         """This finding seen from one level up, through the motif instance ``instance``."""
         return Finding(self.code, self.severity, instance, f"{instance_name} › {self.message}",
-                       self.port if not self.path else None, self.numbers, (self.block, *self.path))
+                       self.port, self.numbers, (self.block, *self.path))
 
 
 class Stop(Exception):
