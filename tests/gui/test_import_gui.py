@@ -57,6 +57,7 @@ def test_dialog_lists_module_classes_and_says_the_file_runs(qtbot, tmp_path):
     qtbot.keyClicks(dialog.args, '{"classes": 5}')
     dialog.name.setCurrentText("tray_camera")
     qtbot.mouseClick(dialog.import_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: window.import_job is None, timeout=60_000)  # the import runs in a worker thread
     design = window.document.design
     assert [b.kind for b in design.blocks.values()] == ["Input", "Conv2d", "ReLU", "Unmapped", "AdaptiveAvgPool2d",
                                                        "Flatten", "Linear", "Output"]
@@ -85,6 +86,7 @@ def test_a_failed_import_says_why_and_keeps_the_design(qtbot, tmp_path):
     qtbot.keyClicks(dialog.source, str(tmp_path / "weights.pth"))
     assert not dialog.caution.isVisible()
     qtbot.mouseClick(dialog.import_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: bool(prompts.asked) and prompts.asked[-1][0] == "Not imported", timeout=60_000)
     title, text = prompts.asked[-1]
     assert title == "Not imported" and "pickle" in text and "never opens one" in text
     assert len(window.document.design.blocks) == before
