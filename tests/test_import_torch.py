@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import pytest
 import torch
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from reference_torch_nets import ResNet50, SeedlingCounter
 from torch.utils.flop_counter import FlopCounterMode
 
@@ -155,3 +157,54 @@ def test_forward_arguments_with_defaults_are_traced_with_them():
 
     d = import_module(Optional(), (3, 8, 8)).design
     assert [b.kind for b in d.blocks.values()] == ["Input", "Conv2d", "Output"]
+
+
+LAYERS = st.sampled_from(["conv", "pointwise", "depthwise", "grouped", "bn", "relu", "hardswish", "maxpool", "avgpool",
+                          "upsample", "dropout"])
+
+
+def _layer(kind: str, ch: int, draw) -> tuple[torch.nn.Module, int]:
+    """One PyTorch layer for ``ch`` input channels and its output channels."""
+    nn = torch.nn
+    out = draw(st.sampled_from([4, 8, 12]))
+    if kind == "conv":
+        k = draw(st.sampled_from([1, 3, 5]))
+        return nn.Conv2d(ch, out, k, draw(st.integers(1, 2)), k // 2, bias=draw(st.booleans())), out
+    if kind == "pointwise":
+        return nn.Conv2d(ch, out, 1), out
+    if kind == "depthwise":
+        return nn.Conv2d(ch, ch * 2, 3, padding=1, groups=ch, bias=False), ch * 2
+    if kind == "grouped":
+        return nn.Conv2d(ch, 8, 3, padding=2, dilation=2, groups=4 if ch % 4 == 0 else 1), 8
+    simple = {"bn": nn.BatchNorm2d(ch), "relu": nn.ReLU(), "hardswish": nn.Hardswish(),
+              "maxpool": nn.MaxPool2d(2, ceil_mode=True), "avgpool": nn.AvgPool2d(3, 1, 1),
+              "upsample": nn.Upsample(scale_factor=2), "dropout": nn.Dropout(0.1)}
+    return simple[kind], ch
+
+
+@st.composite
+def stacks(draw):
+    """A random nn.Sequential of mappable layers, then a pooled classifier."""
+    ch, layers = 4, []
+    for kind in draw(st.lists(LAYERS, min_size=1, max_size=8)):
+        layer, ch = _layer(kind, ch, draw)
+        layers.append(layer)
+    layers += [torch.nn.AdaptiveAvgPool2d(1), torch.nn.Flatten(), torch.nn.Linear(ch, 3)]
+    return torch.nn.Sequential(*layers).eval()
+
+
+@settings(max_examples=30)
+@given(stacks())
+def test_random_stacks_import_with_pytorchs_counts_and_shapes(model):
+    """Any stack of mappable layers maps every layer (nothing unmapped) with PyTorch's parameter count,
+    FlopCounterMode's MACs exactly, and PyTorch's shape after every layer."""
+    shape = (4, 12, 12)
+    imported = import_module(model, shape, motifs=False)
+    d = imported.design
+    assert not imported.unmapped
+    params, macs = torch_counts(model, shape)
+    assert d.ledger().totals.weights == params and d.ledger().totals.macs == macs
+    expected = torch_shapes(model, shape)
+    for bid, origin in imported.origins.items():
+        if d.blocks[bid].kind != "Output" and origin in expected:
+            assert tuple(d.analysis().shape(bid)) == expected[origin]
