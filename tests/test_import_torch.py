@@ -106,6 +106,9 @@ def test_resnet50_reads_like_its_source():
     assert {b.name for b in projection.blocks.values()} >= {"conv1", "bn1", "conv2", "conv3", "downsample_0", "add"}
     flat = import_module(model, (3, 224, 224), motifs=False).design.ledger().totals
     assert d.ledger().totals[:4] == flat[:4]  # weights, buffers, MACs, other operations
+    row = {b.name: b.position[1] for b in d.blocks.values()}  # Tidy: one stage row per resolution
+    assert [row[f"layer{k}_0"] == row[f"layer{k}_1"] for k in range(1, 5)] == [True] * 4
+    assert row["layer1_0"] < row["layer2_0"] < row["layer3_0"] < row["layer4_0"]
 
 
 @pytest.mark.parametrize("layer, kind, settings", [
