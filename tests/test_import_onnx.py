@@ -195,3 +195,18 @@ def test_onnx_export_refuses_unmapped_and_broken_designs(tmp_path):
     broken.add("Output", broken.add("Add", x, broken.add("Conv2d", x, out_channels=4)))
     with pytest.raises(ExportRefused):
         export_onnx(broken, tmp_path / "b.onnx")
+
+
+def test_a_custom_operator_without_shape_information_imports_whole(tmp_path):
+    """ONNX shape inference knows nothing of another domain's operator: the operator and what reads
+    its unknown-shaped output become one unmapped block ending where a shape is known again."""
+    w = numpy_helper.from_array(np.ones((4, 4, 1, 1), np.float32), "w")
+    nodes = [helper.make_node("Conv", ["x", "w"], ["c"]), helper.make_node("Swizzle", ["c"], ["s"], domain="acme"),
+             helper.make_node("Relu", ["s"], ["y"])]
+    model = _graph(nodes, [w])
+    model.opset_import.append(helper.make_opsetid("acme", 1))
+    onnx.save(model, tmp_path / "custom.onnx")
+    d = import_onnx(str(tmp_path / "custom.onnx")).design
+    assert [(b.kind, b.settings.get("operation")) for b in d.blocks.values()] == [
+        ("Input", None), ("Pointwise", None), ("Unmapped", "Swizzle → Relu"), ("Output", None)]
+    assert str(d.analysis().shape(d.of_kind("Unmapped")[0].id)) == "4×8×8"

@@ -185,9 +185,7 @@ class _Reader:
         for n in self.graph.node:
             if not any(v in data for v in n.input):
                 continue
-            outs = [v for v in n.output if v in self.floats]
-            if not outs:
-                continue
+            outs = [v for v in n.output if v in self.floats or (v and v not in self.dims)]  # unknown: a custom op's
             data.update(outs)
         for n in self.graph.node:
             pattern = self._gated(n, data) if self._is_op(n, data) else None
@@ -228,6 +226,8 @@ class _Reader:
                 chain = None
             ops.append(SourceOp(name, n.op_type, ins, outs, chain, scope, params, 0, n.name or outs[0]))
         outputs = [o.name for o in self.graph.output if o.name in data]
+        if not outputs:
+            raise ImportFailed("no output of the graph is computed from its input")
         return ops, outputs
 
     def _is_op(self, n, data) -> bool:
