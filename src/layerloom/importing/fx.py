@@ -148,6 +148,8 @@ class _Reader:
                 continue
             if n.op == "output":
                 outputs = [a.name for a in _nodes(n.args) if a.name in data]
+                if not outputs:
+                    raise ImportFailed(f"{type(self.gm).__name__}: forward returns no tensor computed from its input")
                 continue
             tensors = isinstance(value, torch.Tensor) or (
                 isinstance(value, (tuple, list)) and value and all(isinstance(v, torch.Tensor) for v in value))
