@@ -354,7 +354,9 @@ class CanvasView(QGraphicsView):
                                     ("Open motif", self.open_motif, instance is not None),
                                     ("Expand motif", self.expand_motif, instance is not None),
                                     ("Back", self.document.back, len(self.document.trail) > 1)):
-            menu.addAction(text, slot).setEnabled(enabled)
+            action = menu.addAction(text, slot)
+            action.setEnabled(enabled)
+            action.setObjectName("menu_" + text.lower().rstrip("…").replace(" ", "_"))
         return menu
 
     def _commit_moves(self) -> None:
