@@ -145,11 +145,14 @@ class MainWindow(QMainWindow):
         self._action(edit, "Copy", c.copy, Key.Copy)
         self._action(edit, "Paste", c.paste, Key.Paste)
         self._action(edit, "Duplicate", c.duplicate, "Ctrl+D")
-        self._action(edit, "Delete", c.delete_selection, Key.Delete)
+        self._action(edit, "Delete", lambda: c.delete_selection(bridge=True), Key.Delete)
+        self._action(edit, "Delete without bridging", lambda: c.delete_selection(bridge=False), "Shift+Del",
+                     name="delete_unbridged")
         self._action(edit, "Select all", c.select_all, Key.SelectAll)
         self._action(edit, "Rename block", c.rename_selected, "F2", name="rename")
         edit.addSeparator()
         self._action(edit, "Quick add…", lambda: c.quick_add(), "Ctrl+K", name="quick_add")
+        self._action(edit, "Wire into selection from…", c.wire_into_selection, "Ctrl+I", name="wire_into")
 
         motif = bar.addMenu("&Motif")
         self._action(motif, "Make motif…", lambda: c.make_motif(), "Ctrl+G", name="make_motif")

@@ -37,7 +37,7 @@ def block_menu(view, block_id: str) -> QMenu:
         for i, mend in enumerate(mends):
             _add(menu, "Mend: " + mend.label, lambda m=mend: view.canvas_scene.apply_mend(m), f"mend_{i}")
     menu.addSeparator()
-    return view.motif_menu(menu)
+    return view.motif_menu(menu, applicable_only=True)
 
 
 def wire_menu(view, wire) -> QMenu:
@@ -59,5 +59,5 @@ def canvas_menu(view, at) -> QMenu:
     _add(menu, "Tidy", view.tidy, "tidy", bool(view.document.graph.blocks))
     _add(menu, "Fit to view", view.fit_all, "fit")
     if len(view.document.trail) > 1:
-        _add(menu, "Back", view.document.back, "back")
+        _add(menu, "Back", lambda: view.document.back(), "back")
     return menu

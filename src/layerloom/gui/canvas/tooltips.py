@@ -41,8 +41,8 @@ def block_tip(document, block_id: str, total_macs: int) -> str:
     if r.outs:
         lines.append("out: " + ", ".join(str(s) for s in r.outs))
     share = f" ({r.cost.macs / total_macs:.0%} of the network)" if total_macs and r.cost.macs else ""
-    lines.append(f"weights: {units.count(r.cost.weights)}   MACs: {units.count(r.cost.macs * design.batch)}"
-                 f"{share}, batch {design.batch}")
+    lines.append(f"weights: {units.count(r.cost.weights)}")
+    lines.append(f"MACs: {units.count(r.cost.macs * design.batch)}{share}, batch {design.batch}")
     lines.append(f"receptive field: {_pair(r.rf)} px, jump {_pair(r.jump)}")
     if block.kind == "Motif":
         lines.append("double-click to open the motif")

@@ -346,14 +346,17 @@ class CanvasView(QGraphicsView):
         wire = self._wire_at(view_pos)
         return tooltips.wire_tip(self.document, wire) if wire is not None else ""
 
-    def motif_menu(self, menu: QMenu | None = None) -> QMenu:
-        """Make motif, Open motif, Expand and Back, each enabled when it applies (added to ``menu``)."""
+    def motif_menu(self, menu: QMenu | None = None, applicable_only: bool = False) -> QMenu:
+        """Make motif, Open motif, Expand and Back, each enabled when it applies (added to ``menu``;
+        with ``applicable_only``, only those that apply)."""
         menu = menu if menu is not None else QMenu(self)
         instance = self._selected_instance()
         for text, slot, enabled in (("Make motif…", self.make_motif, bool(self.document.selection)),
                                     ("Open motif", self.open_motif, instance is not None),
                                     ("Expand motif", self.expand_motif, instance is not None),
-                                    ("Back", self.document.back, len(self.document.trail) > 1)):
+                                    ("Back", lambda: self.document.back(), len(self.document.trail) > 1)):
+            if applicable_only and not enabled:
+                continue
             action = menu.addAction(text, slot)
             action.setEnabled(enabled)
             action.setObjectName("menu_" + text.lower().rstrip("…").replace(" ", "_"))
@@ -635,10 +638,19 @@ class CanvasView(QGraphicsView):
 
     # ----- wiring from the keyboard
     def _source_lines(self, text: str) -> list:
-        """Blocks of the graph shown with an output, other than the selected one, best match first."""
+        """Blocks that can feed the selected one (an output, and not downstream of it: no loops),
+        best match first, each with the shape it gives."""
         graph, target = self.document.graph, self._wire_target()
-        blocks = [b for b in graph.blocks.values() if b.id != target and self.canvas_scene.blocks[b.id].state.n_out]
-        return [(b.name, b.id) for b in (rank(text, blocks, lambda b: ((b.name,),)) if text.strip() else blocks)]
+        downstream, todo = {target}, [target]
+        while todo:
+            for w in graph.out_wires.get(todo.pop(), ()):
+                if w.dst not in downstream:
+                    downstream.add(w.dst)
+                    todo.append(w.dst)
+        items = self.canvas_scene.blocks
+        blocks = [b for b in graph.blocks.values() if b.id not in downstream and items[b.id].state.n_out]
+        shown = rank(text, blocks, lambda b: ((b.name,),)) if text.strip() else blocks
+        return [(f"{b.name}   · {items[b.id].state.shape or items[b.id].state.detail}", b.id) for b in shown]
 
     def _wire_target(self) -> str | None:
         sel = self.document.selection
