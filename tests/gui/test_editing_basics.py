@@ -310,3 +310,24 @@ def test_quick_add_adds_a_library_motif_by_its_everyday_word(qtbot):
     (unit,) = d.of_kind("Motif")
     assert unit.settings["motif"] in d.motifs and Wire(r, 0, unit.id, 0) in d.wires
     assert view.document.undo_stack.count() == 1
+
+
+def test_arrow_keys_walk_the_selection_from_card_to_card(qtbot):
+    d, x, c, r, o = chain()
+    side = d.add("Pointwise", c, out_channels=4, name="side", position=(460, 160))
+    view = open_view(qtbot, d)
+    doc = view.document
+    doc.select([])
+    view.setFocus()
+    QTest.keyClick(view, Qt.Key.Key_Right)  # nothing selected: the first block
+    assert doc.selection == [x]
+    for expected in (c, r, o):
+        QTest.keyClick(view, Qt.Key.Key_Right)
+        assert doc.selection == [expected]
+    QTest.keyClick(view, Qt.Key.Key_Left)
+    QTest.keyClick(view, Qt.Key.Key_Down)
+    assert doc.selection == [side]
+    QTest.keyClick(view, Qt.Key.Key_Down)  # nothing further down: stays
+    assert doc.selection == [side]
+    QTest.keyClick(view, Qt.Key.Key_Up)
+    assert doc.selection == [r]

@@ -24,6 +24,7 @@ from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import H, W, BlockItem
 from layerloom.gui.canvas.block_item import font as block_font
 from layerloom.gui.canvas import context_menus, tooltips
+from layerloom.gui.canvas.arrow_keys import neighbour
 from layerloom.gui.canvas.name_editor import NameEditor
 from layerloom.gui.canvas.quick_add import QuickAdd
 from layerloom.gui.canvas.scene import CanvasScene
@@ -35,6 +36,7 @@ KIND_MIME = "application/x-layerloom-kind"
 MOTIF_MIME = "application/x-layerloom-motif"
 """Drag-and-drop type of a motif from Parts; the data is ``library:<key>`` or ``design:<name>`` in UTF-8."""
 
+ARROWS = {Qt.Key.Key_Left: "left", Qt.Key.Key_Right: "right", Qt.Key.Key_Up: "up", Qt.Key.Key_Down: "down"}
 PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down and right
 ZOOM_STEP = 1.25
 
@@ -418,6 +420,8 @@ class CanvasView(QGraphicsView):
             self.settings_wanted.emit()
         elif key == Qt.Key.Key_I and mods & Qt.KeyboardModifier.ControlModifier:
             self.wire_into_selection()
+        elif key in ARROWS and not mods & ~Qt.KeyboardModifier.KeypadModifier and self.document.graph.blocks:
+            self.step_selection(ARROWS[key])
         elif key == Qt.Key.Key_F2:
             self.rename_selected()
         elif key == Qt.Key.Key_Space and not event.isAutoRepeat():
@@ -682,6 +686,20 @@ class CanvasView(QGraphicsView):
         self._refocus()
 
     # ----- selection and edits
+    def step_selection(self, direction: str) -> None:
+        """Select the nearest block in ``direction`` (``left``, ``right``, ``up``, ``down``) from the one
+        selected, and bring it into view; with none selected, the first block."""
+        items = self.canvas_scene.blocks
+        sel = [b for b in self.document.selection if b in items]
+        if len(sel) != 1:
+            target = next(iter(self.document.graph.blocks))
+        else:
+            centres = {bid: (i.pos().x(), i.pos().y()) for bid, i in items.items()}
+            target = neighbour(centres, sel[0], direction)
+        if target is not None:
+            self.document.select([target])
+            self.ensureVisible(items[target].sceneBoundingRect(), 60, 40)
+
     def select_all(self) -> None:
         self.document.select(list(self.document.graph.blocks))
 
