@@ -28,7 +28,7 @@ from layerloom.gui.flow_layout import FlowLayout
 
 FAMILY_ORDER = ("Ends", "Convolution", "Norm & activation", "Pooling & resizing", "Joins", "Dense", "Plumbing")
 """Families left to right in the order data usually meets them; other families follow."""
-HIDDEN_KINDS = {"Motif"}  # an instance needs a motif of the design; it is added from the motif, not the shelf
+HIDDEN_KINDS = {"Motif", "Unmapped"}  # an instance needs a motif of the design; an unmapped operation comes from import
 TILE_ROWS = 3
 GLYPH_PX = 16
 

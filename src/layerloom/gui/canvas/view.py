@@ -18,10 +18,11 @@ from layerloom.core.motif_library import BY_KEY, library_edit
 from layerloom.core.quick_add_words import choices, rank
 from layerloom.core.graph import Wire
 from layerloom.core.kinds import KINDS
-from layerloom.core.layout import COLUMN, tidy_positions
+from layerloom.core.layout import COLUMN, tidy_layout
 from layerloom.core.settings import SettingError
 from layerloom.gui import theme
-from layerloom.gui.canvas.block_item import H, W, BlockItem
+from layerloom.gui.canvas import stage_summary
+from layerloom.gui.canvas.block_item import H, W, BlockItem, summary_zoom
 from layerloom.gui.canvas.block_item import font as block_font
 from layerloom.gui.canvas import context_menus, tooltips
 from layerloom.gui.canvas.arrow_keys import neighbour
@@ -47,6 +48,7 @@ class CanvasView(QGraphicsView):
 
     message = Signal(str)
     settings_wanted = Signal()
+    zoom_changed = Signal(float)  # the zoom (1.0 = 100 %) after any change of it
 
     def __init__(self, document, parent=None):
         super().__init__(parent)
@@ -114,8 +116,19 @@ class CanvasView(QGraphicsView):
     def _sync_overview(self) -> None:
         """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
         self.canvas_scene.set_overview(self.transform().m11() < theme.SHAPE_MIN_DETAIL)
+        self.zoom_changed.emit(self.transform().m11())
 
     def drawForeground(self, painter, rect: QRectF) -> None:
+        scene = self.canvas_scene
+        if self.shows_stage_summaries():
+            self._draw_overview(painter)
+            stage_summary.draw(painter, self)
+
+    def shows_stage_summaries(self) -> bool:
+        """Whether cards are too small here to show name and shape, so stage rows are labelled."""
+        return self.transform().m11() < summary_zoom()
+
+    def _draw_overview(self, painter) -> None:
         scene = self.canvas_scene
         if not scene.overview:
             return
@@ -145,10 +158,32 @@ class CanvasView(QGraphicsView):
 
     def fit_all(self) -> None:
         """Show every block (never magnified beyond 1.25×)."""
-        rect = self.canvas_scene.itemsBoundingRect()
+        self._fit(self.canvas_scene.itemsBoundingRect())
+
+    def zoom_to_selection(self) -> None:
+        """Show the selected blocks as large as fits (a chip shows its card), or all when none is."""
+        scene = self.canvas_scene
+        rect = QRectF()
+        for bid in self.document.selection:
+            item = scene.blocks.get(scene.card_of(bid))
+            if item is not None:
+                rect = rect.united(item.sceneBoundingRect())
+        self._fit(rect if not rect.isEmpty() else scene.itemsBoundingRect())
+
+    def actual_size(self) -> None:
+        """Zoom to 100 % about the middle of the view."""
+        centre = self.mapToScene(self.viewport().rect().center())
+        self.resetTransform()
+        self.centerOn(centre)
+
+    def _fit(self, rect: QRectF) -> None:
+        """Fit ``rect`` with a margin (never above 1.25×), leaving room above it for stage labels."""
         if rect.isEmpty():
             return
         self.fitInView(rect.adjusted(-40, -40, 40, 40), Qt.AspectRatioMode.KeepAspectRatio)
+        if self.shows_stage_summaries():
+            room = stage_summary.top_room() / self.transform().m11()
+            self.fitInView(rect.adjusted(-40, -40 - room, 40, 40), Qt.AspectRatioMode.KeepAspectRatio)
         if self.transform().m11() > 1.25:
             self.resetTransform()
             self.scale(1.25, 1.25)
@@ -759,13 +794,33 @@ class CanvasView(QGraphicsView):
         if ids and self.canvas_scene.apply(edit):
             self.document.select(ids)
 
+    def tidy_layout(self, fold: bool | None = None):
+        """The stage-row layout of the graph shown, with its shapes, for this view's size."""
+        results = self.document.results()
+        shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
+        size = self.viewport().size()
+        return tidy_layout(self.document.graph, shapes, self.canvas_scene.fold if fold is None else fold,
+                           (float(size.width()), float(size.height())))
+
     def tidy(self) -> None:
-        """Lay the graph shown out left → right with Tidy, as one undoable edit, and show it all."""
+        """Lay the graph shown out in stage rows with Tidy, as one undoable edit, and show it all."""
         design = self.document.graph
-        changed = {b: p for b, p in tidy_positions(design).items() if tuple(design.blocks[b].position) != p}
+        changed = {b: p for b, p in self.tidy_layout().positions.items() if tuple(design.blocks[b].position) != p}
         if changed:
             self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
         self.fit_all()
+
+    def set_fold(self, on: bool) -> None:
+        """Fold norms and activations into their convolution's card (on) or show each as a card. A
+        design laid out by Tidy is tidied again for the new look (one undoable edit)."""
+        scene = self.canvas_scene
+        if on == scene.fold:
+            return
+        graph = self.document.graph
+        was_tidy = all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(scene.fold).positions.items())
+        scene.set_fold(on)
+        if was_tidy:
+            self.tidy()
 
     def rename_selected(self) -> None:
         sel = self.document.selection
