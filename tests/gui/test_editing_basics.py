@@ -13,6 +13,7 @@ from PySide6.QtGui import QContextMenuEvent, QHelpEvent
 from PySide6.QtTest import QTest
 from PySide6.QtWidgets import QApplication, QToolTip
 
+from layerloom.core import edits
 from layerloom.core.design import Design
 from layerloom.core.fileformat import dumps
 from layerloom.core.graph import Wire
@@ -28,6 +29,13 @@ def chain():
     r = d.add("ReLU", c, name="relu", position=(460, 0))
     o = d.add("Output", r, name="out", position=(690, 0))
     return d, x, c, r, o
+
+
+def open_unfolded(qtbot, design, **kw):
+    """A canvas with Fold off, so the ReLU after the convolution is a card with wires of its own."""
+    view = open_view(qtbot, design, **kw)
+    view.canvas_scene.set_fold(False)
+    return view
 
 
 def wire_point(view, wire, t=0.5) -> QPoint:
@@ -68,7 +76,7 @@ def quick_type(view, text: str) -> None:
 
 def test_a_part_dropped_on_a_wire_is_wired_both_sides_and_undo_takes_it_out(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     with qtbot.waitActive(view):
         view.activateWindow()
     doc = view.document
@@ -86,7 +94,7 @@ def test_a_part_dropped_on_a_wire_is_wired_both_sides_and_undo_takes_it_out(qtbo
 
 def test_quick_add_on_a_selected_wire_inserts_there(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     click(view, wire_point(view, Wire(x, 0, c, 0), 0.3))
     assert wire_item(view, Wire(x, 0, c, 0)).isSelected()
     view.setFocus()
@@ -100,7 +108,7 @@ def test_quick_add_on_a_selected_wire_inserts_there(qtbot):
 
 def test_a_join_dropped_on_a_wire_is_refused_with_a_message(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     said = []
     view.message.connect(said.append)
     drop_kind(view, "Add", wire_point(view, Wire(c, 0, r, 0)))
@@ -111,7 +119,7 @@ def test_a_join_dropped_on_a_wire_is_refused_with_a_message(qtbot):
 
 def test_delete_bridges_shift_delete_does_not_each_one_undo_step(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     doc = view.document
     before = dumps(d)
     click(view, at(view, card(view, r).sceneBoundingRect().center()))
@@ -134,7 +142,7 @@ def test_delete_bridges_shift_delete_does_not_each_one_undo_step(qtbot):
 
 def test_a_wire_dropped_on_a_taken_input_replaces_the_old_wire(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     doc = view.document
     start = card(view, x).mapToScene(QPointF(W - 2, port_y(0, 1)))
     end = card(view, r).mapToScene(QPointF(2, port_y(0, 1)))
@@ -151,7 +159,7 @@ def test_a_wire_dropped_on_a_taken_input_replaces_the_old_wire(qtbot):
 
 def test_block_menu_rename_duplicate_insert_and_delete(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     doc = view.document
     centre = lambda b: at(view, card(view, b).sceneBoundingRect().center())  # noqa: E731
     texts = right_click_pick(qtbot, view, centre(c), "rename")
@@ -184,7 +192,7 @@ def test_block_menu_rename_duplicate_insert_and_delete(qtbot):
 
 def test_block_menu_offers_the_mends_of_its_findings_and_make_motif(qtbot):
     d, join = residual_clash()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     view.fit_all()
     texts = right_click_pick(qtbot, view, at(view, card(view, join).sceneBoundingRect().center()), "mend_0")
     assert "Mend: Insert a 1×1 projection to 128 channels after trunk" in texts
@@ -198,7 +206,7 @@ def test_block_menu_offers_the_mends_of_its_findings_and_make_motif(qtbot):
 def test_insert_before_a_block_with_nothing_before_it_wires_into_it(qtbot):
     d = Design("lonely")
     c = d.add("Conv2d", name="conv", position=(300, 0))
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     right_click_pick(qtbot, view, at(view, card(view, c).sceneBoundingRect().center()), "insert_before")
     quick_type(view, "input")
     (inp,) = d.of_kind("Input")
@@ -207,7 +215,7 @@ def test_insert_before_a_block_with_nothing_before_it_wires_into_it(qtbot):
 
 def test_wire_menu_inserts_a_block_and_deletes_the_wire(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     texts = right_click_pick(qtbot, view, wire_point(view, Wire(c, 0, r, 0)), "insert_on_wire")
     assert texts == ["Insert block…", "Delete wire"]
     quick_type(view, "bn")
@@ -219,7 +227,7 @@ def test_wire_menu_inserts_a_block_and_deletes_the_wire(qtbot):
 
 def test_canvas_menu_quick_add_paste_tidy_and_fit(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     doc = view.document
     empty = at(view, (400, 300))
     texts = right_click_pick(qtbot, view, empty, "quick_add")
@@ -244,7 +252,7 @@ def test_canvas_menu_quick_add_paste_tidy_and_fit(qtbot):
 def test_hover_texts_of_a_block_and_a_wire(qtbot):
     d, x, c, r, o = chain()
     d.set_field("dtype", "fp16")
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     tip = view.tip_at(at(view, card(view, c).sceneBoundingRect().center()))
     # 16 filters of 3×3×8 plus 16 biases = 1,168 weights; 16·8·9 MACs per position × 32·32 = 1,179,648
     # (PyTorch: sum(p.numel()) of nn.Conv2d(8, 16, 3); FlopCounterMode counts 2 FLOPs per MAC)
@@ -266,7 +274,7 @@ def test_hover_texts_of_a_block_and_a_wire(qtbot):
 
 def test_quick_add_sizes_its_list_says_no_match_and_opens_beside_the_selection(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d, size=(1000, 560))
+    view = open_unfolded(qtbot, d, size=(1000, 560))
     with qtbot.waitActive(view):
         view.activateWindow()
     doc = view.document
@@ -301,7 +309,7 @@ def test_quick_add_sizes_its_list_says_no_match_and_opens_beside_the_selection(q
 
 def test_quick_add_adds_a_library_motif_by_its_everyday_word(qtbot):
     d, x, c, r, o = chain()
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     view.document.select([r])
     view.setFocus()
     QTest.keyClicks(view, "se")
@@ -315,7 +323,7 @@ def test_quick_add_adds_a_library_motif_by_its_everyday_word(qtbot):
 def test_arrow_keys_walk_the_selection_from_card_to_card(qtbot):
     d, x, c, r, o = chain()
     side = d.add("Pointwise", c, out_channels=4, name="side", position=(460, 160))
-    view = open_view(qtbot, d)
+    view = open_unfolded(qtbot, d)
     doc = view.document
     doc.select([])
     view.setFocus()
@@ -331,3 +339,22 @@ def test_arrow_keys_walk_the_selection_from_card_to_card(qtbot):
     assert doc.selection == [side]
     QTest.keyClick(view, Qt.Key.Key_Up)
     assert doc.selection == [r]
+
+
+def test_with_fold_on_a_chip_is_a_block_for_menus_hover_and_delete(qtbot):
+    d, x, c, r, o = chain()
+    bn = d.add("BatchNorm2d", c, name="bn", position=(345, 0))
+    d.apply(edits.replace_wire(d, Wire(bn, 0, r, 0)))
+    view = open_view(qtbot, d)
+    scene = view.canvas_scene
+    assert scene.fold and scene.card_of(r) == c and scene.card_of(bn) == c  # conv ▸ BN ▸ ReLU in one card
+    chip = scene.blocks[r]
+    point = at(view, chip.sceneBoundingRect().center())
+    assert view.tip_at(point).splitlines()[0] == "relu — ReLU"
+    texts = right_click_pick(qtbot, view, point, "delete")
+    assert texts[0] == "Rename relu…" and view.document.selection == []
+    assert r not in d.blocks and Wire(bn, 0, o, 0) in d.wires  # bridged past the removed chip
+    view.document.select([bn])
+    view.setFocus()
+    QTest.keyClick(view, Qt.Key.Key_Right)  # from a chip, the next card after its card
+    assert view.document.selection == [o]
