@@ -30,7 +30,8 @@ def test_design_settings_round_trip_set_save_reopen(qtbot, tmp_path):
     ds = panel.design_settings
     assert ds.isVisible() and panel.heading.text() == "Design"
     assert ds.name_edit.text() == "untitled" and ds.batch_edit.text() == "1"
-    assert "input: 3×224×224" in ds.inputs.text()
+    # 3·224·224 elements × 4 bytes (fp32) = 588 KiB for batch 1
+    assert ds.inputs.text() == "input: 3×224×224 (588 KiB for batch 1 at fp32)"
     type_into(qtbot, ds.name_edit, "orchard-drone")
     type_into(qtbot, ds.batch_edit, "8")
     ds.dtype_box.setFocus()
@@ -46,6 +47,7 @@ def test_design_settings_round_trip_set_save_reopen(qtbot, tmp_path):
     # int8 is one byte per element: the input's 3·224·224 elements × batch 8 (common practice)
     assert Ledger(d.analysis()).out_memory[0] == 3 * 224 * 224 * 8
     assert "class OrchardDrone" in module_source(d)
+    assert ds.inputs.text() == "input: 3×224×224 (1.15 MiB for batch 8 at int8)"  # 150,528 × 8 × 1 byte
     shoot(window, "design_settings_1280")
     type_into(qtbot, ds.batch_edit, "0")
     assert d.batch == 8 and "batch size must be a whole number ≥ 1" in panel.message.text()

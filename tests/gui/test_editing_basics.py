@@ -358,3 +358,23 @@ def test_with_fold_on_a_chip_is_a_block_for_menus_hover_and_delete(qtbot):
     view.setFocus()
     QTest.keyClick(view, Qt.Key.Key_Right)  # from a chip, the next card after its card
     assert view.document.selection == [o]
+
+
+def test_motif_commands_from_the_block_and_canvas_menus(qtbot):
+    from layerloom.core.motif_library import define
+
+    d = Design("gated")
+    x = d.input(8, 16, 16, name="frame")
+    define(d, "se_gate", "gate")
+    unit = d.use("gate", x, channels=8, reduced=2)
+    d.add("Output", unit, name="out", position=(600, 0))
+    d.apply(edits.move(d, {unit: (300.0, 0.0)}))
+    view = open_unfolded(qtbot, d)
+    centre = lambda: at(view, card(view, unit).sceneBoundingRect().center())  # noqa: E731
+    texts = right_click_pick(qtbot, view, centre(), "open_motif")
+    assert "Expand motif" in texts and "Back" not in texts  # only the motif commands that apply
+    assert view.document.graph_key == "gate"
+    right_click_pick(qtbot, view, QPoint(5, 5), "back")
+    assert view.document.graph_key == ""
+    right_click_pick(qtbot, view, centre(), "expand_motif")
+    assert not d.of_kind("Motif") and len(d.blocks) > 3
