@@ -145,7 +145,7 @@ def test_at_1280_every_family_is_reachable_and_a_family_folds(qtbot, tmp_path):
     assert not parts.groups[0].folded and parts.groups[0].body.isVisible()
 
 
-def test_dock_sizes_and_the_ledger_metric_are_remembered(qtbot, tmp_path):
+def test_dock_sizes_the_ledger_metric_and_folded_families_are_remembered(qtbot, tmp_path):
     window, _ = open_window(qtbot, tmp_path)
     window.resize(1400, 860)
     QApplication.processEvents()
@@ -153,6 +153,7 @@ def test_dock_sizes_and_the_ledger_metric_are_remembered(qtbot, tmp_path):
     window.resizeDocks([window.shelf_dock], [260], Qt.Orientation.Vertical)
     window.depth_ledger.metric_box.setCurrentIndex(1)
     window.depth_ledger.view_box.setCurrentIndex(1)
+    window.shelf.parts.groups[1].heading.click()  # fold Convolution
     QApplication.processEvents()
     sizes = (window.settings_dock.width(), window.shelf_dock.height())
     window.close()
@@ -164,4 +165,5 @@ def test_dock_sizes_and_the_ledger_metric_are_remembered(qtbot, tmp_path):
     QApplication.processEvents()
     assert (again.settings_dock.width(), again.shelf_dock.height()) == sizes
     assert again.depth_ledger.metric_key() == "macs" and again.depth_ledger.view_box.currentText() == "Per block"
+    assert [g.family for g in again.shelf.parts.groups if g.folded] == ["Convolution"]
     again.close()

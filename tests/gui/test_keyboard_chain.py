@@ -67,7 +67,7 @@ def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, re
     doc, canvas = window.document, window.canvas
     d = doc.design
     assert [d.blocks[b].kind for b in doc.selection] == ["Input"]  # a new design starts with its Input selected
-    canvas.setFocus()
+    assert QApplication.focusWidget() is canvas  # and the keys are on the canvas: no click needed
     keys = Keyboard(qtbot)
     for step in script:
         keys.type(step)

@@ -100,6 +100,8 @@ class MainWindow(QMainWindow):
         self.files.start(list(files))
         self._refresh_title()
         self._refresh_totals()
+        self.shelf.parts.remember_folds(self.settings)
+        self.canvas.setFocus()  # typing starts Quick add at once
 
     def _dock(self, title: str, name: str, widget, area) -> QDockWidget:
         dock = QDockWidget(title, self)
