@@ -654,6 +654,7 @@ class CanvasView(QGraphicsView):
             self._quick.open_at(self.mapFromScene(mid).x() + 12, self.mapFromScene(mid).y() + 12, text)
         elif sel is not None:
             card = self._card_item(sel[0])
+            self.ensureVisible(card.sceneBoundingRect(), 60, 40)  # scrolled away: bring it back first
             self._quick_spot = card.pos() + QPointF(COLUMN + W / 2, H / 2)
             self._quick.open_beside(self.mapFromScene(card.sceneBoundingRect()).boundingRect(), text)
         else:
