@@ -268,6 +268,8 @@ def test_hover_texts_of_a_block_and_a_wire(qtbot):
                                                        view.viewport().mapToGlobal(point)))
     assert QToolTip.text() == wire_tip
     assert view.tip_at(at(view, (400, 400))) == ""
+    view.document.apply(edits.disconnect(d, Wire(c, 0, r, 0)))  # relu loses its input: the hover says so
+    assert view.tip_at(at(view, card(view, r).sceneBoundingRect().center())).splitlines()[-1].startswith("error: ")
 
 
 # ----- Quick add ---------------------------------------------------------------------------------

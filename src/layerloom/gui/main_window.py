@@ -11,10 +11,12 @@ from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QIcon, QKeySequence
-from PySide6.QtWidgets import QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QToolTip, QVBoxLayout,
+                               QWidget)
 
 from layerloom.core import units
 from layerloom.core.ledger import Ledger
+from layerloom.gui import theme
 from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
@@ -48,6 +50,7 @@ class MainWindow(QMainWindow):
         self.setObjectName("main_window")
         self.setWindowIcon(QIcon(str(resource(APP_ICON))))
         self.setStyleSheet(resource(STYLE_SHEET).read_text(encoding="utf-8"))
+        QToolTip.setPalette(theme.tooltip_palette())  # hover texts are windows of their own: no style sheet
         self.settings = settings if settings is not None else house_settings()
         self.document = Document(parent=self)
         self.prompts = prompts if prompts is not None else Prompts(self)
