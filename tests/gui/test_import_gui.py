@@ -11,7 +11,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction
 from test_window_files import SAMPLES, open_window
 
-from layerloom.gui.interchange import ImportDialog, module_names
+from layerloom.gui.interchange import ImportDialog, ImportRequest, module_names, run_import
 
 NET = textwrap.dedent("""
     import torch
@@ -90,6 +90,17 @@ def test_a_failed_import_says_why_and_keeps_the_design(qtbot, tmp_path):
     title, text = prompts.asked[-1]
     assert title == "Not imported" and "pickle" in text and "never opens one" in text
     assert len(window.document.design.blocks) == before
+
+
+def test_closing_the_window_during_an_import_is_safe(qtbot, tmp_path):
+    source = tmp_path / "tray.py"
+    source.write_text(NET, encoding="utf-8")
+    window, _ = open_window(qtbot, tmp_path)
+    assert run_import(window, ImportRequest(f"{source}:TrayCamera", "3x64x64", ""))
+    _, worker = window.import_job
+    with qtbot.waitSignal(worker.finished, timeout=60_000):  # the import ends on its own
+        window.close()
+    qtbot.waitUntil(lambda: window.import_job is None)
 
 
 def test_export_onnx_from_the_menu(qtbot, tmp_path):

@@ -15,6 +15,7 @@ from pathlib import Path
 from PySide6.QtCore import QObject, Qt, QThread, Signal
 from PySide6.QtWidgets import (QApplication, QComboBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout,
                                QHBoxLayout, QLabel, QLineEdit, QPushButton, QVBoxLayout)
+from shiboken6 import isValid
 
 SOURCE_FILTER = "PyTorch source or ONNX file (*.py *.onnx)"
 
@@ -167,14 +168,17 @@ def run_import(window, request: ImportRequest) -> bool:
         return False
     if not window.files.confirm_discard():
         return False
-    thread, worker = QThread(window), ImportWorker(request, shape, args)
+    app = QApplication.instance()
+    thread, worker = QThread(app), ImportWorker(request, shape, args)  # not the window's: it may close first
     worker.moveToThread(thread)
     thread.started.connect(worker.run)
-    worker.finished.connect(lambda imported: _imported(window, request, imported))
-    worker.failed.connect(lambda message: window.prompts.error("Not imported", message))
+    worker.finished.connect(lambda imported: isValid(window) and _imported(window, request, imported))
+    worker.failed.connect(lambda message: isValid(window) and window.prompts.error("Not imported", message))
     for signal in (worker.finished, worker.failed):
         signal.connect(thread.quit)
-    thread.finished.connect(lambda: setattr(window, "import_job", None))
+    thread.finished.connect(lambda: isValid(window) and setattr(window, "import_job", None))
+    thread.finished.connect(thread.deleteLater)
+    app.aboutToQuit.connect(thread.wait)  # never end the process under a running import
     window.import_job = (thread, worker)  # kept alive until the thread ends
     window.statusBar().showMessage(f"Importing {request.source}…")
     thread.start()
