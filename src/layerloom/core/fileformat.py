@@ -15,9 +15,11 @@ from typing import Any
 from layerloom.core import edits
 from layerloom.core.design import Design
 from layerloom.core.graph import Block, Wire
+from layerloom.core.measurement import Measurement
 from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
+from layerloom.core.layout import tidy_positions
 
 FORMAT, VERSION = "layerloom-design", 1
 
@@ -95,6 +97,8 @@ def _build(data: dict) -> Design:
         except ValueError as e:
             raise LoomFileError(f"target: {e}") from None
     design.baseline = data.get("baseline")
+    if "measurement" in data:
+        design.measurement = Measurement.from_data(data["measurement"])
     lengths = {k: len(v) for k, v in (design.baseline or {}).get("blocks", {}).items()}
     if len(set(lengths.values())) > 1:
         raise LoomFileError(f"baseline.blocks: the lists differ in length ({lengths})")
@@ -111,7 +115,16 @@ def _build(data: dict) -> Design:
         for i, m in enumerate(motifs):
             _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({m['name']}) ")
         _fill(design, "", data["blocks"], data["wires"], "")
+    for m in motifs:
+        _place_unplaced(design, design.motifs[m["name"]], m["blocks"])
+    _place_unplaced(design, design, data["blocks"])
     return design
+
+
+def _place_unplaced(design: Design, graph, blocks: list) -> None:
+    """A graph none of whose blocks has a saved position is laid out by Tidy (stage rows, folded)."""
+    if blocks and not any("position" in b for b in blocks):
+        design.apply(edits.move(graph, tidy_positions(graph)))
 
 
 def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> None:
@@ -170,12 +183,19 @@ def to_data(design: Design) -> dict:
         data["target"] = design.target.to_data()
     if design.baseline is not None:
         data["baseline"] = design.baseline
+    if design.measurement is not None:
+        data["measurement"] = design.measurement.to_data()
     if design.motifs:
         data["motifs"] = [{"name": m.name, "params": m.params, "blocks": blocks(m), "wires": wires(m)}
                           for m in design.motifs.values()]
     data["blocks"] = blocks(design)
     data["wires"] = wires(design)
     return data
+
+
+def copy(design: Design) -> Design:
+    """An independent copy of ``design`` (everything the file holds)."""
+    return _build(to_data(design))
 
 
 _encode = json.JSONEncoder(ensure_ascii=False).encode  # one line, by the C encoder
