@@ -118,11 +118,17 @@ def folded_design():
     return d, c, bn, act, f, bad
 
 
-def test_chips_sit_inside_their_card_select_their_block_and_carry_their_findings(qtbot, tmp_path):
-    d, c, bn, act, f, bad = folded_design()
+def folded_window(qtbot, tmp_path):
+    """A 1280×800 window on :func:`folded_design`, tidied: (window, canvas, document, its design,
+    the ids of conv, bn, act, fc and the faulty bn)."""
+    d, *ids = folded_design()
     window = window_on(qtbot, tmp_path, d)
-    canvas, scene, doc = window.canvas, window.canvas.canvas_scene, window.document
-    d = doc.design
+    return window, window.canvas, window.document, window.document.design, ids
+
+
+def test_chips_sit_inside_their_card_select_their_block_and_carry_their_findings(qtbot, tmp_path):
+    window, canvas, doc, d, (c, bn, act, f, bad) = folded_window(qtbot, tmp_path)
+    scene = canvas.canvas_scene
     assert isinstance(scene.blocks[bn], ChipItem) and isinstance(scene.blocks[act], ChipItem)
     card = scene.blocks[c]
     assert card.state.chips == ("BN", "ReLU6") and [i.block_id for i in card.chip_items] == [bn, act]
@@ -175,12 +181,8 @@ def test_zoom_to_selection_and_the_zoom_readout(qtbot, tmp_path):
     window.close()
 
 
-
 def test_a_selected_chip_is_renamed_deleted_and_chained_from_like_a_block(qtbot, tmp_path):
-    d, c, bn, act, f, bad = folded_design()
-    window = window_on(qtbot, tmp_path, d)
-    canvas, doc = window.canvas, window.document
-    d = doc.design
+    window, canvas, doc, d, (c, bn, act, f, bad) = folded_window(qtbot, tmp_path)
     doc.select([act])
     canvas.rename_selected()  # F2 on a chip edits its name over the chip
     assert canvas._names.isVisible()
@@ -200,10 +202,7 @@ def test_a_selected_chip_is_renamed_deleted_and_chained_from_like_a_block(qtbot,
 
 
 def test_unfolding_blocks_that_share_their_cards_place_gives_them_places(qtbot, tmp_path):
-    d, c, bn, act, f, bad = folded_design()
-    window = window_on(qtbot, tmp_path, d)
-    canvas, doc = window.canvas, window.document
-    d = doc.design
+    window, canvas, doc, d, (c, bn, act, f, bad) = folded_window(qtbot, tmp_path)
     x, y = d.blocks[c].position
     moved = (x + 37, y + 11)  # the user moved the card (no longer Tidy's layout); its chips share its place
     doc.apply(edits.move(d, {c: moved, bn: moved, act: moved}))
