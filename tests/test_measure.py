@@ -132,3 +132,11 @@ def test_measure_command_reports_calibrates_and_saves(tmp_path):
     assert bad.returncode == 2 and "--repeat" in bad.stderr and "Traceback" not in bad.stderr
     clash = _run("measure", "samples/shelf_gap_counter_clash.loom", "--repeat", "1")
     assert clash.returncode == 2 and "error finding" in clash.stderr and "Traceback" not in clash.stderr
+
+
+def test_measure_names_only_the_option_out_of_range():
+    repeat = _run("measure", "samples/fastener_sorter.loom", "--repeat", "0")
+    threads = _run("measure", "samples/fastener_sorter.loom", "--threads", "0")
+    assert repeat.returncode == threads.returncode == 2
+    assert repeat.stderr.strip() == "layerloom: --repeat must be at least 1, not 0"
+    assert threads.stderr.strip() == "layerloom: --threads must be at least 1, not 0"

@@ -230,3 +230,17 @@ def test_findings_without_a_mend_still_name_the_numbers(code):
         d.add("Output", d.add("Conv2d", x, out_channels=8, kernel=7))
         assert "height 4" in finding(d, code).message and "7" in finding(d, code).message
     assert mends_for(d, finding(d, code)) == []
+
+
+def test_a_mend_puts_its_new_block_clear_of_every_card():
+    """The clash sample's projection goes on the wire from relu_3 to add_2, whose middle (plus the
+    usual step down) falls on relu_5's card: it moves further down until it covers no card."""
+    from layerloom.core.fileformat import load
+    from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH
+
+    d = load("samples/shelf_gap_counter_clash.loom")
+    before = {b.id: b.position for b in d.blocks.values()}
+    d.apply(mends_for(d, finding(d, "join.channels"))[0].edit)
+    (new,) = [b for b in d.blocks.values() if b.id not in before]
+    nx, ny = new.position
+    assert all(abs(nx - x) >= CARD_WIDTH or abs(ny - y) >= CARD_HEIGHT for x, y in before.values())

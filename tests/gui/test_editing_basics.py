@@ -380,3 +380,17 @@ def test_motif_commands_from_the_block_and_canvas_menus(qtbot):
     assert view.document.graph_key == ""
     right_click_pick(qtbot, view, centre(), "expand_motif")
     assert not d.of_kind("Motif") and len(d.blocks) > 3
+
+
+def test_quick_add_beside_a_block_with_a_card_on_its_right_lands_below_that_card(qtbot):
+    d, x, c, r, o = chain()
+    view = open_unfolded(qtbot, d)
+    doc = view.document
+    doc.select([c])
+    view.setFocus()
+    QTest.keyClicks(view, "bn")
+    QTest.keyClick(view._quick.edit, Qt.Key.Key_Return)
+    (new,) = doc.selection
+    added, taken = card(view, new).sceneBoundingRect(), card(view, r).sceneBoundingRect()
+    assert doc.design.blocks[new].kind == "BatchNorm2d" and added.left() > card(view, c).sceneBoundingRect().right()
+    assert not added.intersects(taken)  # relu's card, one column to the right, is not covered

@@ -13,6 +13,7 @@ from typing import Any, NamedTuple
 from layerloom.core.graph import Block, Graph, Wire, kind_stem
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import SettingError
+from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH, STACK
 
 
 class EditError(ValueError):
@@ -247,7 +248,8 @@ def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str
             raise EditError(f"only a block with one input and one output can go on a wire; "
                             f"{kind} has {ins} inputs and {outs} outputs")
         f = i / (n + 1)
-        here = position if n == 1 and position is not None else (ax + (bx - ax) * f, ay + (by - ay) * f + 90.0)
+        here = position if n == 1 and position is not None else clear_spot(
+            (b.position for b in g.blocks.values()), (ax + (bx - ax) * f, ay + (by - ay) * f + 90.0))
         block_name = name if n == 1 and name is not None else g.fresh_name(kind_stem(kind), names)
         names.add(block_name)
         edit, bid = add_block(design, kind, settings, graph=graph, inputs=[src], name=block_name, position=here)
@@ -255,6 +257,17 @@ def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str
         src = (bid, 0)
     ops.append(AddWire(graph, Wire(src[0], 0, wire.dst, wire.dst_port)))
     return Edit("Insert " + " and ".join(k for k, _ in steps), tuple(ops))
+
+
+def clear_spot(cards, position: tuple[float, float]) -> tuple[float, float]:
+    """``position`` (a card's top-left, scene pixels), moved down a stacking step at a time until the
+    card it places overlaps none of ``cards`` (their top-left corners): a block added by a mend or
+    beside another one never lands on top of one already there."""
+    x, y = position
+    cards = list(cards)
+    while any(abs(cx - x) < CARD_WIDTH and abs(cy - y) < CARD_HEIGHT for cx, cy in cards):
+        y += STACK
+    return x, y
 
 
 def added_blocks(edit: Edit) -> list[str]:

@@ -265,6 +265,6 @@ def _mend_cycle(place: Place, finding: Finding):
 @mend("graph.dead_end")
 def _mend_dead_end(place: Place, finding: Finding):
     b = place.graph.blocks[place.block]
-    edit, _ = edits.add_block(place.design, "Output", graph=place.graph.key, inputs=[(b.id, 0)],
-                              position=(b.position[0] + 220.0, b.position[1]))
+    spot = edits.clear_spot((o.position for o in place.graph.blocks.values()), (b.position[0] + 220.0, b.position[1]))
+    edit, _ = edits.add_block(place.design, "Output", graph=place.graph.key, inputs=[(b.id, 0)], position=spot)
     yield Mend(f"Add an Output after {b.name}", edit)

@@ -38,8 +38,9 @@ def run(args) -> int:
     from layerloom.core.calibrate import calibrate, mape, samples, split_halves  # numpy: only when measuring
     from layerloom.core.ledger import Ledger
 
-    if args.repeat < 1 or (args.threads is not None and args.threads < 1):
-        raise UsageError(f"--repeat and --threads must be at least 1, not {args.repeat} and {args.threads}")
+    for option, value in (("--repeat", args.repeat), ("--threads", args.threads)):
+        if value is not None and value < 1:
+            raise UsageError(f"{option} must be at least 1, not {value}")
     design = _open(args)
     ledger, measurement = _measure(design, args)
     target_name = f"this machine, {measurement.machine.threads} thread{'s' if measurement.machine.threads > 1 else ''}"

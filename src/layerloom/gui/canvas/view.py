@@ -700,7 +700,10 @@ class CanvasView(QGraphicsView):
         elif sel is not None:
             card = self._card_item(sel[0])
             self.ensureVisible(card.sceneBoundingRect(), 60, 40)  # scrolled away: bring it back first
-            self._quick_spot = card.pos() + QPointF(COLUMN + W / 2, H / 2)
+            scene = self.canvas_scene
+            cards = ((i.pos().x(), i.pos().y()) for b, i in scene.blocks.items() if scene.card_of(b) == b)
+            x, y = edits.clear_spot(cards, (card.pos().x() + COLUMN, card.pos().y()))
+            self._quick_spot = QPointF(x + W / 2, y + H / 2)  # to its right, below any card already there
             self._quick.open_beside(self.mapFromScene(card.sceneBoundingRect()).boundingRect(), text)
         else:
             if at is None:
