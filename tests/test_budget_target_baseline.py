@@ -82,6 +82,7 @@ def test_budget_is_passed_at_the_right_block_and_clears_when_the_design_fits():
     (f,) = [f for f in d.findings() if f.code == "budget.weights"]
     assert f.block == ids[3] and f.severity == "warning"  # 23,584 > 20,000 at the third convolution
     assert "20 K" in f.message and "97.4 K" in f.message and "487 %" in f.message
+    assert f.badge == "97.4 K > 20 K"  # the design's total over its limit: a budget passed, not a clash
     d.set(ids[4], out_channels=8)  # last conv now 64·8·9+8 = 4,616 weights: total 28,200, still over at ids[3]
     assert [f.block for f in d.findings() if f.code == "budget.weights"] == [ids[3]]
     d.set(ids[3], out_channels=16)  # 32·16·9+16 = 4,624 and 16·8·9+8 = 1,160: total 10,872

@@ -63,9 +63,10 @@ class Finding:
 
     @property
     def badge(self) -> str:
-        """Short text for a badge: ``256 ≠ 128`` when there are two numbers, else the code."""
+        """Short text for a badge: ``256 ≠ 128`` when there are two numbers (``26.6 M > 10 M`` for a
+        passed budget: the design's figure, then its limit), else the code."""
         if len(self.numbers) == 2:
-            return f"{self.numbers[0]} ≠ {self.numbers[1]}"
+            return f"{self.numbers[0]} {'>' if self.code.startswith('budget.') else '≠'} {self.numbers[1]}"
         return self.code
 
     def inside(self, instance: str, instance_name: str) -> "Finding":
