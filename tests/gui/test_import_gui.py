@@ -122,3 +122,32 @@ def test_editor_modules_import_neither_torch_nor_onnx():
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
     assert done.returncode == 0, done.stderr[-2000:]
 
+
+
+def test_the_imported_design_is_taken_in_the_editors_thread(qtbot, tmp_path, monkeypatch):
+    """The worker's signals reach the window in the GUI thread (Qt's widgets are not thread-safe)."""
+    import threading
+
+    from layerloom.gui import interchange
+
+    seen = []
+    taken = interchange._imported
+    monkeypatch.setattr(interchange, "_imported", lambda *a: (seen.append(threading.current_thread()), taken(*a)))
+    source = tmp_path / "tray.py"
+    source.write_text(NET, encoding="utf-8")
+    window, _ = open_window(qtbot, tmp_path)
+    assert run_import(window, ImportRequest(f"{source}:TrayCamera", "3x64x64", ""))
+    qtbot.waitUntil(lambda: window.import_job is None, timeout=60_000)
+    assert seen == [threading.main_thread()] and window.document.design.name == "traycamera"
+
+
+def test_quitting_during_an_import_waits_for_it_and_ends(qtbot, tmp_path):
+    """Quitting waits for a running import in the GUI thread (aboutToQuit → wait): the thread must
+    end without that thread's help, or the editor hangs on quit."""
+    source = tmp_path / "tray.py"
+    source.write_text(NET, encoding="utf-8")
+    window, _ = open_window(qtbot, tmp_path)
+    assert run_import(window, ImportRequest(f"{source}:TrayCamera", "3x64x64", ""))
+    thread, _ = window.import_job
+    assert thread.wait(30_000)  # blocks the GUI thread, as on quit
+    qtbot.waitUntil(lambda: window.import_job is None)

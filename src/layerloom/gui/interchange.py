@@ -12,7 +12,7 @@ import json
 from dataclasses import dataclass
 from pathlib import Path
 
-from PySide6.QtCore import QObject, Qt, QThread, Signal
+from PySide6.QtCore import QObject, Qt, QThread, Signal, Slot
 from PySide6.QtWidgets import (QApplication, QComboBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout,
                                QHBoxLayout, QLabel, QLineEdit, QPushButton, QVBoxLayout)
 from shiboken6 import isValid
@@ -153,6 +153,31 @@ class ImportWorker(QObject):
             self.finished.emit(imported)
 
 
+class ImportOutcome(QObject):
+    """Takes an import's end in the editor's thread: a plain function connected to the worker's
+    signals would run in the worker's thread and touch the window from there."""
+
+    def __init__(self, window, request: ImportRequest):
+        super().__init__(QApplication.instance())  # not the window's child: it may close first
+        self.window, self.request = window, request
+
+    @Slot(object)
+    def imported(self, imported) -> None:
+        if isValid(self.window):
+            _imported(self.window, self.request, imported)
+
+    @Slot(str)
+    def failed(self, message: str) -> None:
+        if isValid(self.window):
+            self.window.prompts.error("Not imported", message)
+
+    @Slot()
+    def ended(self) -> None:
+        if isValid(self.window):
+            self.window.import_job = None
+        self.deleteLater()
+
+
 def run_import(window, request: ImportRequest) -> bool:
     """Start importing ``request`` into ``window``'s document in a worker thread; False when it did not
     start (a bad input shape or arguments, said in a dialog, or unsaved changes kept)."""
@@ -172,11 +197,12 @@ def run_import(window, request: ImportRequest) -> bool:
     thread, worker = QThread(app), ImportWorker(request, shape, args)  # not the window's: it may close first
     worker.moveToThread(thread)
     thread.started.connect(worker.run)
-    worker.finished.connect(lambda imported: isValid(window) and _imported(window, request, imported))
-    worker.failed.connect(lambda message: isValid(window) and window.prompts.error("Not imported", message))
-    for signal in (worker.finished, worker.failed):
-        signal.connect(thread.quit)
-    thread.finished.connect(lambda: isValid(window) and setattr(window, "import_job", None))
+    outcome = ImportOutcome(window, request)
+    worker.finished.connect(outcome.imported)
+    worker.failed.connect(outcome.failed)
+    for signal in (worker.finished, worker.failed):  # directly: the GUI thread may be waiting in aboutToQuit
+        signal.connect(thread.quit, Qt.ConnectionType.DirectConnection)
+    thread.finished.connect(outcome.ended)
     thread.finished.connect(thread.deleteLater)
     app.aboutToQuit.connect(thread.wait)  # never end the process under a running import
     window.import_job = (thread, worker)  # kept alive until the thread ends
