@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 
 from layerloom.core import units
@@ -16,7 +17,7 @@ from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
 from layerloom.core.ledger import Ledger
-from layerloom.core.ledger_csv import ledger_csv, rf_text
+from layerloom.core.ledger_csv import ledger_csv, pixels, rf_text
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
@@ -94,12 +95,12 @@ def _ledger(args) -> int:
             "blocks": [{"block": r.block, "name": r.name, "kind": r.kind, "depth": r.depth,
                         "shape": list(r.shape) if r.shape else None, "weights": r.weights, "buffers": r.buffers,
                         "macs": r.macs, "other_ops": r.other, "out_memory_bytes": r.memory,
-                        "receptive_field": list(r.rf) if r.rf else None, "jump": list(r.jump) if r.jump else None,
+                        "receptive_field": _pixels(r.rf), "jump": _pixels(r.jump),
                         "bytes_moved": r.moved, "intensity_macs_per_byte": round(r.intensity, 3),
-                        "latency_s": r.latency, "bound": r.bound or None} for r in rows],
+                        "latency_s": _finite(r.latency), "bound": r.bound or None} for r in rows],
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
                        "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
-                       "latency_s": t.latency},
+                       "latency_s": _finite(t.latency)},
             "target": ledger.target.to_data() if ledger.target else None,
             "budget": design.budget,
             "baseline": None if baseline is None else {
@@ -150,6 +151,15 @@ def _ledger(args) -> int:
     return 0
 
 
+def _pixels(pair) -> list | None:
+    return [pixels(v) for v in pair] if pair else None
+
+
+def _finite(v: float | None) -> float | None:
+    """JSON has no infinity: a latency beyond a float's range is written as null."""
+    return v if v is not None and math.isfinite(v) else None
+
+
 def _export(args) -> int:
     from pathlib import Path
 
@@ -175,6 +185,8 @@ def _export(args) -> int:
         report = verify(design, target)
     except ImportError as e:
         raise UsageError(f"--verify needs PyTorch ({e}); install it with: pip install torch") from None
+    except ValueError as e:
+        raise UsageError(f"--verify: {e}") from None
     print(report.table())
     return 0 if report.ok else 1
 

@@ -7,7 +7,10 @@ bytes, so the Depth ledger can overlay the old curves on the new.
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from typing import NamedTuple
+
+from layerloom.core.units import ratio
 
 METRICS = (("weights", "weights"), ("macs", "MACs"), ("peak_memory", "peak live activations"),
            ("latency", "estimated latency"))
@@ -18,7 +21,7 @@ class Difference(NamedTuple):
 
     metric: str
     label: str
-    current: float
+    current: float  # counts and bytes as exact integers, latency in seconds
     baseline: float
 
     @property
@@ -27,7 +30,7 @@ class Difference(NamedTuple):
 
     @property
     def percent(self) -> float | None:
-        return 100.0 * self.delta / self.baseline if self.baseline else None
+        return ratio(100 * self.delta, self.baseline) if self.baseline else None
 
 
 def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
@@ -46,7 +49,7 @@ def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
             "live": [int(v) for v in ledger.live],
         },
     }
-    if ledger.latency is not None:
+    if ledger.latency is not None and math.isfinite(t.latency):  # a file holds no infinity
         data["totals"]["latency"] = t.latency
         data["blocks"]["latency"] = [float(v) for v in ledger.cumulative_latency]
         data["target"] = ledger.target.name
@@ -73,5 +76,5 @@ def compare(ledger, baseline: dict) -> list[Difference]:
     for key, label in METRICS:
         if now.get(key) is None or key not in baseline["totals"]:
             continue
-        out.append(Difference(key, label, float(now[key]), float(baseline["totals"][key])))
+        out.append(Difference(key, label, now[key], baseline["totals"][key]))
     return out

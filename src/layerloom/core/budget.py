@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from layerloom.core import units
+from layerloom.core.units import ratio
 from layerloom.core.findings import NOTE, WARNING, Finding
 
 LIMITS = {
@@ -57,13 +58,13 @@ def budget_findings(ledger, budget: dict) -> list[Finding]:
         if not len(over):
             continue
         at = ledger.order[int(over[0])]
-        worst = float(curve.max())
+        worst = curve.max()
         what = LIMITS[key]
         so_far = "alive there" if key == "memory" else "so far"
         total = "the peak is" if key == "memory" else "the design totals"
         found.append(Finding(f"budget.{key}", WARNING, at,
                              f"{what}: the budget of {_text(key, limit)} is passed at {blocks[at].name} "
-                             f"({_text(key, float(curve[over[0]]))} {so_far}); {total} {_text(key, worst)}, "
-                             f"{100 * worst / limit:.0f} % of the budget",
+                             f"({_text(key, curve[over[0]])} {so_far}); {total} {_text(key, worst)}, "
+                             f"{ratio(100 * worst, limit):.0f} % of the budget",
                              numbers=(_text(key, worst), _text(key, limit))))
     return found

@@ -25,6 +25,10 @@ them for users):
   that compute (not Input, Output or views); a first-order roofline estimate.
 - **depth order**: topological order by longest-path level from the inputs, ties broken by the
   order blocks were added; **depth** is that level.
+
+Counts and bytes are exact at any size: numpy arrays of them are int64 when every sum fits, else
+Python integers (``dtype=object``); only latency (seconds) and intensity are floats, which saturate
+to infinity rather than fail.
 """
 from __future__ import annotations
 
@@ -37,6 +41,7 @@ from layerloom.core.design import DTYPES
 from layerloom.core.kinds import KINDS
 from layerloom.core.shapes import Shape
 from layerloom.core.targets import Target
+from layerloom.core.units import ratio
 
 
 class Row(NamedTuple):
@@ -71,6 +76,23 @@ class Totals(NamedTuple):
     latency: float | None  # seconds on the target, None without one
 
 
+def exact_array(values: list, scale: int = 1, headroom: int = 1) -> np.ndarray:
+    """``values`` × ``scale`` as int64 when any sum of them, times ``headroom``, fits in it; else as
+    Python integers."""
+    try:
+        a = np.array(values, dtype=np.int64)
+    except OverflowError:
+        a = None
+    if a is not None and (not a.size or int(np.abs(a).max()) * scale * headroom * len(a) < 1 << 62):
+        return a * scale
+    return np.array(values, dtype=object) * scale
+
+
+def floats(values) -> np.ndarray:
+    """Exact counts as floats for drawing: infinity where one is beyond a float's range."""
+    return np.array([ratio(v, 1.0) for v in values], dtype=float)
+
+
 class Ledger:
     """Costs of a design as it is now; see the module docstring for what is counted.
 
@@ -89,11 +111,11 @@ class Ledger:
         results = analysis.top.results
         self._results = [results.get(b) for b in self.order]
         free = (0, 0, 0, 0)
-        costs = np.array([r.cost if r is not None else free for r in self._results],
-                         dtype=np.int64).reshape(-1, 4)
+        costs = exact_array([r.cost if r is not None else free for r in self._results],
+                            headroom=self.batch).reshape(-1, 4)
         costs[:, 2:] *= self.batch
         self.costs = costs
-        self.live = np.asarray(analysis.live_profile(), dtype=np.int64) * (self.batch * self.bytes_per_element)
+        self.live = exact_array(analysis.live_profile(), self.batch * self.bytes_per_element)
         peak_at = int(self.live.argmax()) if len(self.live) else None
         t = costs.sum(axis=0)
         self.latency = self._latency() if self.target is not None else None
@@ -107,8 +129,8 @@ class Ledger:
         """Estimated seconds per block on the target (zeros for blocks that do no work)."""
         t = self.target
         work = np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
-        compute = self.costs[:, 2] / t.macs_per_second
-        memory = self.moved / t.bytes_per_second
+        compute = np.array([ratio(m, t.macs_per_second) for m in self.costs[:, 2]], dtype=float)
+        memory = np.array([ratio(m, t.bytes_per_second) for m in self.moved], dtype=float)
         return np.where(work, np.maximum(compute, memory) + t.overhead, 0.0)
 
     def _works(self, block_id: str) -> bool:
@@ -121,14 +143,14 @@ class Ledger:
         """Bytes each block moves: weights plus input and output activations."""
         n = self.batch
         elems = [(sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n if r is not None else 0 for r in self._results]
-        return (self.costs[:, 0] + np.asarray(elems, dtype=np.int64)) * self.bytes_per_element
+        return exact_array([w + e for w, e in zip(self.costs[:, 0].tolist(), elems)], self.bytes_per_element)
 
     @property
     def out_memory(self) -> np.ndarray:
         """Bytes of the tensor each block allocates (0 for views and blocks without a shape)."""
         elems = [sum(map(prod, r.outs)) if r is not None and self._allocates(b) else 0
                  for b, r in zip(self.order, self._results)]
-        return np.asarray(elems, dtype=np.int64) * (self.batch * self.bytes_per_element)
+        return exact_array(elems, self.batch * self.bytes_per_element)
 
     def _allocates(self, block_id: str) -> bool:
         return not KINDS[self.analysis.design.blocks[block_id].kind].view
@@ -171,7 +193,7 @@ class Ledger:
         if self.latency is not None:
             latency = float(self.latency[i])
             if latency:
-                compute = m / self.target.macs_per_second
-                bound = "compute" if compute >= moved / self.target.bytes_per_second else "memory"
+                compute = ratio(m, self.target.macs_per_second)
+                bound = "compute" if compute >= ratio(moved, self.target.bytes_per_second) else "memory"
         return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), r.outs[0] if r.outs else None, w, b, m, o,
-                   out_bytes, r.rf, r.jump, moved, m / moved if moved else 0.0, latency, bound)
+                   out_bytes, r.rf, r.jump, moved, ratio(m, moved) if moved else 0.0, latency, bound)

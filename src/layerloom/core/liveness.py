@@ -9,13 +9,11 @@ it is the last reader of its inputs they are freed inside it as soon as the inne
 with them. Counts are elements per sample; the ledger multiplies by batch size and bytes.
 
 When each tensor dies depends only on the wiring, so it is worked out once per order
-(:class:`Plan`); a settings edit only recomputes the sizes, with numpy.
+(:class:`Plan`); a settings edit only recomputes the sizes, as exact integers.
 """
 from __future__ import annotations
 
 from math import prod
-
-import numpy as np
 
 from layerloom.core.kinds import KINDS
 
@@ -55,22 +53,24 @@ class Plan:
                     death[o], read[o] = i, True
         last = [all((o := owner.get(w.src)) is not None and death[o] == i for w in in_wires[bid])
                 for i, bid in enumerate(order)]
-        self.allocates = np.array(allocates, dtype=bool)
-        self.death = np.array(death, dtype=np.int64)
-        self.last_reader = np.array(last, dtype=bool)
+        self.allocates, self.death, self.last_reader = allocates, death, last
 
 
-def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> np.ndarray:
-    """Live elements per sample at each step of ``order`` (after allocation, before freeing)."""
+def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
+    """Live elements per sample at each step of ``order`` (after allocation, before freeing), exact."""
     plan = plan or Plan(graph, order, inputs_outside)
-    n = len(order)
-    if not n:
-        return np.zeros(0, dtype=np.int64)
-    rs = [results.get(b) for b in order]
-    sizes = np.array([sum(map(prod, r.outs)) if r is not None else 0 for r in rs], dtype=np.int64)
-    sizes[~plan.allocates] = 0
-    freed = np.bincount(np.minimum(plan.death, n), weights=sizes, minlength=n + 1)[:n].astype(np.int64)
-    live = np.cumsum(sizes) - np.concatenate(([0], np.cumsum(freed)[:-1]))
-    extra = np.array([(r.extra_freed if last else r.extra) if r is not None else 0
-                      for r, last in zip(rs, plan.last_reader)], dtype=np.int64)
-    return live + extra
+    live = []
+    freed = [0] * (len(order) + 1)  # elements freed after each step
+    total = 0
+    allocates, death, last_reader = plan.allocates, plan.death, plan.last_reader
+    for i, bid in enumerate(order):
+        r = results.get(bid)
+        if r is None:
+            total -= freed[i - 1] if i else 0
+            live.append(total)
+            continue
+        size = sum(map(prod, r.outs)) if allocates[i] else 0
+        total += size - (freed[i - 1] if i else 0)
+        freed[death[i]] += size
+        live.append(total + (r.extra_freed if last_reader[i] else r.extra))
+    return live
