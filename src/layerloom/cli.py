@@ -21,6 +21,7 @@ from layerloom.core.ledger_csv import ledger_csv, pixels, rf_text
 from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
+from layerloom.core.values import one_line
 
 COMMANDS = ("check", "ledger", "export")
 
@@ -70,9 +71,9 @@ def _check(args) -> int:
                          indent=1, ensure_ascii=False))
     else:
         for f in findings:
-            print(f"{f.severity:<7} {f.code:<20} {f.message}")
+            print(f"{f.severity:<7} {f.code:<20} {one_line(f.message)}")
             for m in mends_for(design, f):
-                print(f"        mend: {m.label}")
+                print(f"        mend: {one_line(m.label)}")
         counts = {s: sum(f.severity == s for f in findings) for s in ("error", "warning", "note")}
         verdict = "well formed" if not errors else "not well formed"
         print(f"{args.file}: {verdict} — {counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes")
@@ -115,7 +116,7 @@ def _ledger(args) -> int:
     timed = ledger.latency is not None
     table = [LEDGER_COLUMNS + (TARGET_COLUMNS if timed else ())]
     for i, r in enumerate(rows, 1):
-        cells = (str(i), r.name, r.kind, str(r.depth), str(r.shape or "?"),
+        cells = (str(i), one_line(r.name, 60), r.kind, str(r.depth), str(r.shape or "?"),
                  units.count(r.weights) if r.weights else "·", units.count(r.macs) if r.macs else "·",
                  units.size(r.memory) if r.memory else "·", rf_text(r.rf))
         if timed:
@@ -169,7 +170,7 @@ def _export(args) -> int:
     try:
         made = export(design, args.class_name)
     except ExportRefused as e:
-        print(f"layerloom: {args.file}: {e}", file=sys.stderr)
+        print(f"layerloom: {one_line(f'{args.file}: {e}')}", file=sys.stderr)
         return 1
     except ValueError as e:
         raise UsageError(f"--class-name: {e}") from None
@@ -244,7 +245,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return args.run(args)
     except (LoomFileError, UsageError) as e:
-        print(f"layerloom: {e}", file=sys.stderr)
+        print(f"layerloom: {one_line(str(e))}", file=sys.stderr)
         return 2
     except BrokenPipeError:
         return 0

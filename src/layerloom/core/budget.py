@@ -7,6 +7,8 @@ goes over the limit, with the overrun in its message.
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from layerloom.core import units
@@ -29,7 +31,12 @@ def check_budget(budget: dict) -> dict:
             raise ValueError(f"budget has no limit {key!r} (limits: {', '.join(LIMITS)})")
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
             raise ValueError(f"budget {key} must be a number above 0, not {value!r}")
-        clean[key] = float(value) if key == "latency_ms" else int(value)
+        try:
+            clean[key] = float(value) if key == "latency_ms" else int(value)
+        except OverflowError:
+            raise ValueError(f"budget {key} is too large") from None
+        if clean[key] == math.inf:
+            raise ValueError(f"budget {key} is too large")
     return clean
 
 

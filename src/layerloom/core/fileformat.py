@@ -13,10 +13,12 @@ from pathlib import Path
 from typing import Any
 
 from layerloom.core import edits
+from layerloom.core.budget import check_budget
 from layerloom.core.design import Design
 from layerloom.core.graph import Wire
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
+from layerloom.core.values import POSITION_LIMIT, bad_value, label, quote
 from layerloom.resource_paths import resource
 
 FORMAT, VERSION = "layerloom-design", 1
@@ -51,17 +53,21 @@ def parse(text: str, source: str = "<text>") -> Design:
         raise LoomFileError(f"{source}: not a design file: {e}") from None
     if not isinstance(data, dict):
         raise LoomFileError(f"{source}: a design file holds a JSON object, not {type(data).__name__}")
+    bad = bad_value(data, text)
+    if bad is not None:
+        raise LoomFileError(f"{source}: {_place(data, bad[0])}: {bad[1]}")
     if data.get("format") != FORMAT:
-        raise LoomFileError(f"{source}: not a Layerloom design (format is {data.get('format')!r}, expected {FORMAT!r})")
+        raise LoomFileError(f"{source}: not a Layerloom design (format is {quote(data.get('format'))}, "
+                            f"expected {FORMAT!r})")
     if data.get("version") != VERSION:
-        raise LoomFileError(f"{source}: design format version {data.get('version')!r} is not supported "
+        raise LoomFileError(f"{source}: design format version {quote(data.get('version'))} is not supported "
                             f"(this Layerloom reads version {VERSION})")
     try:
         error = next(iter(sorted(_schema_validator().iter_errors(data), key=lambda e: list(e.absolute_path))), None)
     except RecursionError:
         raise LoomFileError(f"{source}: nested too deeply to be a design file") from None
     if error is not None:
-        raise LoomFileError(f"{source}: {_place(data, list(error.absolute_path))}: {error.message}")
+        raise LoomFileError(f"{source}: {_place(data, list(error.absolute_path))}: {_schema_message(error)}")
     try:
         return _build(data)
     except (SettingError, edits.EditError, ValueError, KeyError) as e:
@@ -80,6 +86,15 @@ def load(path: str | os.PathLike) -> Design:
     return parse(text, str(path))
 
 
+def _schema_message(error) -> str:
+    """The validator's message, with the offending value quoted short (it may be megabytes long)."""
+    message = error.message
+    if len(message) > 200:
+        whole = repr(error.instance)
+        message = message.replace(whole, quote(error.instance)) if whole in message else quote(message, 200)
+    return message
+
+
 def _place(data: Any, path: list) -> str:
     """``['blocks', 3, 'settings', 'stride']`` → ``blocks[3] (conv_2) settings.stride``."""
     out, node = "", data
@@ -88,7 +103,7 @@ def _place(data: Any, path: list) -> str:
             out += f"[{step}]"
             node = node[step] if isinstance(node, list) and step < len(node) else None
             if isinstance(node, dict) and isinstance(node.get("name"), str):
-                out += f" ({node['name']})"
+                out += f" ({label(node['name'])})"
         else:
             out += ("." if out and not out.endswith(")") else (" " if out else "")) + str(step)
             node = node.get(step) if isinstance(node, dict) else None
@@ -99,7 +114,7 @@ def _build(data: dict) -> Design:
     # JSON Schema counts 2.0 as an integer; whole numbers are stored as int from here on
     design = Design(data.get("name", "untitled"), int(data.get("batch", 1)), data.get("dtype", "fp32"),
                     data.get("notes", ""))
-    design.budget = dict(data.get("budget", {}))
+    design.budget = check_budget(data.get("budget", {}))
     if "target" in data:
         try:
             design.target = Target.from_data(data["target"])
@@ -114,13 +129,13 @@ def _build(data: dict) -> Design:
     seen = set()
     for i, m in enumerate(motifs):
         if m["name"] in seen:
-            raise LoomFileError(f"motifs[{i}]: motif name {m['name']!r} is used twice")
+            raise LoomFileError(f"motifs[{i}]: motif name {quote(m['name'])} is used twice")
         seen.add(m["name"])
         ops.append(edits.AddMotif(m["name"], {k: int(v) for k, v in m.get("params", {}).items()}))
     design.apply(edits.Edit("Load", tuple(ops)))
     with design.bulk():
         for i, m in enumerate(motifs):
-            _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({m['name']}) ")
+            _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({label(m['name'])}) ")
         _fill(design, "", data["blocks"], data["wires"], "")
     return design
 
@@ -129,22 +144,25 @@ def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> 
     ops: list = []
     ids: dict[str, str] = {}
     for i, b in enumerate(blocks):
-        label = f"{where}blocks[{i}]" + (f" ({b['name']})" if b.get("name") else "")
+        place = f"{where}blocks[{i}]" + (f" ({label(b['name'])})" if b.get("name") else "")
         if b["id"] in ids:
-            raise LoomFileError(f"{label}: block id {b['id']!r} is used twice")
+            raise LoomFileError(f"{place}: block id {quote(b['id'])} is used twice")
         try:
             settings = edits.check_settings(design, b["kind"], b.get("settings", {}), graph)
         except (SettingError, edits.EditError) as e:
-            raise LoomFileError(f"{label}: {e}") from None
+            raise LoomFileError(f"{place}: {e}") from None
         ids[b["id"]] = b["kind"]
+        position = b.get("position", (0.0, 0.0))
+        if not all(abs(v) <= POSITION_LIMIT for v in position):
+            raise LoomFileError(f"{place}: position {quote(position)} lies beyond ±{POSITION_LIMIT:g} on the canvas")
         ops.append(edits.AddBlock(graph, b["id"], b["kind"], b.get("name", b["id"]), settings,
-                                  tuple(b.get("position", (0.0, 0.0)))))
+                                  tuple(float(v) for v in position)))
     seen = set()
     for i, w in enumerate(wires):
         (src, sp), (dst, dp) = w["from"], w["to"]
         for end, bid in (("from", src), ("to", dst)):
             if bid not in ids:
-                raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {bid!r}")
+                raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {quote(bid)}")
         wire = Wire(src, int(sp), dst, int(dp))
         if wire in seen:
             raise LoomFileError(f"{where}wires[{i}]: the same wire appears twice")

@@ -10,6 +10,8 @@ data layout. Measured latency on the real device decides.
 """
 from __future__ import annotations
 
+import math
+
 from typing import NamedTuple
 
 CAUTION = ("First-order estimate (roofline): ignores caches, fusion and kernel choice; "
@@ -39,6 +41,10 @@ class Target(NamedTuple):
                        str(data.get("assumptions", "")))
         except KeyError as e:
             raise ValueError(f"target is missing {e.args[0]!r}") from None
+        except OverflowError:
+            t = None
+        if t is None or not all(map(math.isfinite, (t.macs_per_second, t.bytes_per_second, t.overhead))):
+            raise ValueError("target rates are too large to count with")
         if t.macs_per_second <= 0 or t.bytes_per_second <= 0 or t.overhead < 0:
             raise ValueError(f"target {t.name!r} needs a positive MAC rate and bandwidth and an overhead ≥ 0")
         return t

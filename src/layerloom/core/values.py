@@ -1,0 +1,92 @@
+"""Values that come from outside (a file, a typed name) and values shown in messages.
+
+- Text must be valid Unicode: a lone surrogate (``"\\ud800"`` in JSON) cannot be printed or
+  saved as UTF-8, so it is refused where it enters (:func:`check_text`, :func:`bad_value`).
+- Numbers in a file must be finite (``1e400`` reads as infinity, which a file cannot hold) and
+  small enough to print: integers of at most :data:`MAX_DIGITS` digits.
+- :func:`quote` shows a value in a one-line message: quoted, control characters escaped, shortened
+  to :data:`QUOTE_LIMIT` characters.
+"""
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+MAX_DIGITS = 1000
+"""Most decimal digits of a whole number in a design file (far beyond any count a design makes)."""
+POSITION_LIMIT = 1e9
+"""Farthest a block may lie from the canvas origin, in scene units."""
+QUOTE_LIMIT = 60
+"""Most characters of a value quoted in a message."""
+
+_SURROGATE = re.compile("[\ud800-\udfff]")
+# text that may hold a lone surrogate escape, an overflowing float or a huge integer: only then
+# is the parsed data walked value by value
+_SUSPECT = re.compile(r"\\u[dD][89a-fA-F]|[eE][+]?\d{3}|\d{300}")
+
+
+def check_text(value: str, what: str) -> str:
+    """Return ``value``; ValueError naming ``what`` when it holds a lone surrogate (not valid text)."""
+    m = _SURROGATE.search(value)
+    if m:
+        raise ValueError(f"{what} {quote(value)} is not valid text: it holds a lone surrogate "
+                         f"U+{ord(m.group()):04X} at character {m.start() + 1}")
+    return value
+
+
+def bad_value(data: Any, text: str | None = None) -> tuple[list, str] | None:
+    """The first value of parsed JSON ``data`` a design file may not hold, as (path, reason), or
+    None. With ``text`` (the JSON source), a quick look at it skips the walk when nothing can be wrong."""
+    if text is not None and not _SUSPECT.search(text):
+        return None
+    stack: list[tuple[list, Any]] = [([], data)]
+    while stack:
+        path, node = stack.pop()
+        if isinstance(node, dict):
+            for key, value in reversed(node.items()):
+                if _SURROGATE.search(key):
+                    return path, f"the key {quote(key)} is not valid text (it holds a lone surrogate)"
+                stack.append((path + [key], value))
+        elif isinstance(node, list):
+            stack.extend((path + [i], v) for i, v in reversed(list(enumerate(node))))
+        elif isinstance(node, str):
+            if _SURROGATE.search(node):
+                return path, f"{quote(node)} is not valid text (it holds a lone surrogate)"
+        elif isinstance(node, float):
+            if not math.isfinite(node):
+                return path, "the number is too large (it reads as infinity)"
+        elif isinstance(node, int) and not isinstance(node, bool) and node.bit_length() > MAX_DIGITS * 3.33:
+            return path, f"the number is too large (more than {MAX_DIGITS} digits)"
+    return None
+
+
+def quote(value: Any, limit: int = QUOTE_LIMIT) -> str:
+    """``value`` for a one-line message: ``repr`` (quotes, newlines as ``\\n``), shortened with
+    ``…`` and the full length when longer than ``limit`` characters.
+
+    >>> quote("conv\\n2"), quote("x" * 100, 10)
+    ("'conv\\\\n2'", "'xxxxxxxxx…' (100 characters)")
+    """
+    if isinstance(value, str):
+        if len(value) <= limit:
+            return repr(value)
+        return repr(value[:limit - 1] + "…") + f" ({len(value):,} characters)"
+    if isinstance(value, (list, tuple, dict)) and len(value) > limit:
+        return f"a {type(value).__name__} of {len(value):,} items"
+    try:
+        text = repr(value)
+    except ValueError:  # an integer beyond Python's limit for printing
+        return "a number of thousands of digits"
+    return text if len(text) <= limit else text[:limit - 1] + "…"
+
+
+def label(name: str, limit: int = QUOTE_LIMIT) -> str:
+    """A name as it is when short and printable (``conv_2``), else quoted and shortened."""
+    return name if len(name) <= limit and name.isprintable() else quote(name, limit)
+
+
+def one_line(message: str, limit: int = 2000) -> str:
+    """A message on one line: line breaks shown as ``⏎``, shortened to ``limit`` characters."""
+    message = re.sub(r"\r\n|[\r\n\v\f\x1c-\x1e\x85\u2028\u2029]", "⏎", message)
+    return message if len(message) <= limit else message[:limit - 1] + "…"
