@@ -7,7 +7,7 @@ import os
 import pytest
 
 from layerloom import Design, LoomFileError, load, save
-from layerloom.core import fileformat
+from layerloom.core import atomic_write, fileformat
 from layerloom.core.fileformat import parse
 
 NOTES = "Für die Türkamera — 夜間モード\nzweite Zeile\r\n\ttab, \"quotes\" and \\ backslash 🙂\n"
@@ -61,7 +61,7 @@ def test_interrupted_save_keeps_the_old_file(tmp_path, monkeypatch, fail_at):
     def fail(*args, **kwargs):
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(fileformat.os, fail_at.split(".")[1], fail)
+    monkeypatch.setattr(atomic_write.os, fail_at.split(".")[1], fail)
     with pytest.raises(OSError):
         save(changed, path)
     monkeypatch.undo()

@@ -2,17 +2,17 @@
 
 Reading never evaluates anything; a broken file raises :class:`LoomFileError` whose message names
 the file, the place inside it (``blocks[3] (conv_2) settings.stride``) and the offending value.
-Writing is atomic: a temporary file beside the target is written, flushed and renamed over it.
+Writing is atomic (:mod:`layerloom.core.atomic_write`).
 """
 from __future__ import annotations
 
 import json
 import os
-import tempfile
 from pathlib import Path
 from typing import Any
 
 from layerloom.core import edits
+from layerloom.core.atomic_write import write_atomically
 from layerloom.core.budget import check_budget
 from layerloom.core.design import Design
 from layerloom.core.graph import Wire
@@ -156,7 +156,7 @@ def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> 
         if not all(abs(v) <= POSITION_LIMIT for v in position):
             raise LoomFileError(f"{place}: position {quote(position)} lies beyond ±{POSITION_LIMIT:g} on the canvas")
         ops.append(edits.AddBlock(graph, b["id"], b["kind"], b.get("name", b["id"]), settings,
-                                  tuple(float(v) for v in position)))
+                                  tuple(position)))
     seen = set()
     for i, w in enumerate(wires):
         (src, sp), (dst, dp) = w["from"], w["to"]
@@ -203,19 +203,7 @@ def dumps(design: Design) -> str:
 
 
 def save(design: Design, path: str | os.PathLike) -> None:
-    """Write ``design`` to ``path`` atomically (an interrupted save leaves the old file intact)."""
-    path = Path(path)
-    text = dumps(design)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text)
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    """Write ``design`` to ``path`` atomically (:mod:`layerloom.core.atomic_write`: an interrupted
+    save leaves the old file intact; mode and symbolic links are kept). Raises OSError, or
+    UnicodeEncodeError for text that is not valid (before anything is written)."""
+    write_atomically(path, dumps(design).encode("utf-8"))
