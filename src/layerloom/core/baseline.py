@@ -56,16 +56,21 @@ def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
     return data
 
 
-def snapshot_of_file(path, target=None, name: str | None = None) -> dict:
+def snapshot_of_file(path, target=None, name: str | None = None, errors: list | None = None) -> dict:
     """A baseline from another design file (named ``name``, else the design's own name). Without a
-    target of its own, the other design is estimated on ``target`` so latencies compare. Raises
-    :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
+    target of its own, the other design is estimated on ``target`` so latencies compare. The other
+    design's error findings, whose blocks onward are not counted, are appended to ``errors`` when
+    given. Raises :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
     from layerloom.core.fileformat import load
     from layerloom.core.ledger import Ledger
 
     other = load(path)
     if other.target is None and target is not None:
         other.set_field("target", target)
+    if errors is not None:
+        from layerloom.core.findings import ERROR
+
+        errors += [f for f in other.findings() if f.severity == ERROR]
     return snapshot(Ledger(other.analysis()), name or other.name)
 
 

@@ -10,7 +10,8 @@ them for users):
   and linear layers, for the whole batch (batch size × per-sample count). PyTorch's
   ``FlopCounterMode`` reports 2 FLOPs per MAC for the same operations. Bias additions, norms,
   activations, pooling, resizing and joins are not MACs; they are counted roughly as **other
-  operations** (one per element per step).
+  operations** (one per element per step; an addition one per output element per extra input, a
+  product one per output element; a concatenation only copies and counts none).
 - **output memory**: bytes of the tensor a block allocates (batch × elements × bytes of the
   design's element type); views (Flatten, Identity, Dropout, Output) allocate none.
 - **peak live memory**: the largest total of activations alive at once during a forward pass

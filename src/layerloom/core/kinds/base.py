@@ -144,6 +144,26 @@ def conv_length(n: int, k: int, s: int, p: int, d: int, name: str, axis: str, re
     return span // s + 1
 
 
+def both_axes(rule) -> tuple[int, int]:
+    """``(rule("height", 0), rule("width", 1))``; when both axes collapse, one ``shape.collapsed``
+    names both (numbers ``h×w`` of each side), not only the height."""
+    sizes, collapsed = [], []
+    for i, axis in enumerate(("height", "width")):
+        try:
+            sizes.append(rule(axis, i))
+        except Stop as e:
+            if e.code != "shape.collapsed":
+                raise
+            collapsed.append(e)
+    if len(collapsed) == 2:
+        h, w = collapsed
+        raise Stop("shape.collapsed", f"{h.message}; and {w.message.split(': ', 1)[-1]}", h.port,
+                   tuple(f"{a}×{b}" for a, b in zip(h.numbers, w.numbers)))
+    if collapsed:
+        raise collapsed[0]
+    return sizes[0], sizes[1]
+
+
 def kw(**pairs: Any) -> str:
     """Keyword arguments in source form, skipping ``None``: ``kw(stride=2)`` → ``stride=2``."""
     return ", ".join(f"{k}={_py(v)}" for k, v in pairs.items() if v is not None)
