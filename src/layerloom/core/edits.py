@@ -82,9 +82,8 @@ class SetBlock(NamedTuple):
     def apply(self, design) -> "SetBlock":
         if self.attribute == "name":
             check_text(self.value, "block name")
-        b = design.graph(self.graph).blocks[self.id]
-        old = getattr(b, self.attribute)
-        setattr(b, self.attribute, dict(self.value) if self.attribute == "settings" else self.value)
+        value = dict(self.value) if self.attribute == "settings" else self.value
+        old = design.graph(self.graph)._set_block(self.id, self.attribute, value)
         return SetBlock(self.graph, self.id, self.attribute, old)
 
 
