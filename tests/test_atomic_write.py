@@ -39,18 +39,13 @@ def test_replacing_a_file_keeps_its_mode(tmp_path):
 
 
 def test_a_new_file_gets_the_umask(tmp_path):
-    old = os.umask(0o027)
-    try:
-        save(_design(), tmp_path / "new.loom")
-    finally:
-        os.umask(old)
-    assert _mode(tmp_path / "new.loom") == 0o640
-    old = os.umask(0o022)
-    try:
-        save(_design(), tmp_path / "other.loom")
-    finally:
-        os.umask(old)
-    assert _mode(tmp_path / "other.loom") == 0o644
+    for umask, mode in ((0o027, 0o640), (0o022, 0o644), (0o077, 0o600)):
+        old = os.umask(umask)
+        try:
+            save(_design(), tmp_path / f"new_{umask:o}.loom")
+        finally:
+            os.umask(old)
+        assert _mode(tmp_path / f"new_{umask:o}.loom") == mode
 
 
 def test_saving_through_a_symbolic_link_writes_the_target(tmp_path):

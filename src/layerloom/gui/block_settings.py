@@ -395,15 +395,9 @@ class BlockSettings(QWidget):
             self.name_message.show()
             self.name_edit.setText(block.name)
             return
-        if name != block.name:
-            try:
-                self.document.apply(edits.rename(design, bid, name))
-            except edits.EditError as e:
-                self.name_message.setText(f"{e} — kept {block.name}")
-                self.name_message.show()
-                self.name_edit.setText(block.name)
-                return
         self.name_message.hide()
+        if name != block.name:
+            self.document.apply(edits.rename(design, bid, name))
 
 
 def _shape(results: dict, block_id: str, port: int):
