@@ -20,6 +20,7 @@ import re
 from layerloom.core import edits
 from layerloom.core.graph import Wire
 from layerloom.core.settings import SettingError
+from layerloom.core.values import POSITION_LIMIT, bad_value, label, quote
 
 FORMAT, VERSION = "layerloom-blocks", 1
 
@@ -52,6 +53,9 @@ def from_text(text: str) -> dict:
         raise ClipboardError("the clipboard does not hold Layerloom blocks")
     if data.get("version") != VERSION:
         raise ClipboardError(f"copied blocks of version {data.get('version')!r} cannot be pasted (this reads {VERSION})")
+    bad = bad_value(data, text)
+    if bad is not None:
+        raise ClipboardError(f"copied blocks: {'.'.join(map(str, bad[0]))}: {bad[1]}")
     return data
 
 
@@ -76,8 +80,11 @@ def paste_edit(design, data: dict, offset=(40.0, 40.0), graph: str = "") -> tupl
             old_id, kind, name = str(item["id"]), item["kind"], str(item["name"])
             x, y = (float(v) for v in item["position"])
             settings = item.get("settings", {})
-        except (KeyError, TypeError, ValueError) as e:
+        except (KeyError, TypeError, ValueError, OverflowError) as e:
             raise ClipboardError(f"{where}: missing or malformed field ({e})") from None
+        if not (abs(x) <= POSITION_LIMIT and abs(y) <= POSITION_LIMIT):  # also refuses infinity and NaN
+            raise ClipboardError(f"{where} ({label(name)}): position {quote([x, y])} lies beyond "
+                                 f"±{POSITION_LIMIT:g} on the canvas")
         if old_id in fresh:
             raise ClipboardError(f"{where} ({name}): id {old_id!r} appears twice")
         if not name or name in taken:
