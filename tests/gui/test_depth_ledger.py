@@ -9,6 +9,7 @@ import pytest
 from PySide6.QtCore import QPointF, QSettings, Qt
 
 from layerloom import load
+from layerloom.core.baseline import snapshot
 from layerloom.core.edits import set_settings
 from layerloom.core.fileformat import dumps
 from layerloom.core.ledger import Ledger
@@ -16,6 +17,7 @@ from layerloom.core.ledger_csv import ledger_csv
 from layerloom.gui.budget_dialog import BudgetDialog
 from layerloom.gui.depth_ledger import DepthLedger
 from layerloom.gui.document import Document
+from flatten import expanded_copy
 
 ROOT = Path(__file__).resolve().parents[2]
 SHOTS = ROOT / "tests" / "screenshots"
@@ -44,12 +46,29 @@ def test_curves_equal_the_core_ledger(qtbot, sample):
         chart.metric_box.setCurrentIndex(index)
         x, y = chart.curve.xData, chart.curve.yData
         assert np.array_equal(y, expected.astype(float))
-        assert np.array_equal(x, np.arange(1, len(ledger.order) + 1))
+        assert np.array_equal(x, ledger.steps)  # blocks as executed: a motif use spans its inner blocks
     # the dotted curve is the running peak, whose last value is the ledger's peak
     assert chart.peak_curve.yData[-1] == ledger.totals.peak_memory
     chart.view_box.setCurrentIndex(1)  # per-block bars
     chart.metric_box.setCurrentIndex(1)
     assert np.array_equal(chart.bars.opts["height"], ledger.costs[:, 2].astype(float))
+
+
+def test_grouped_and_expanded_network_draw_the_same_curve_and_baseline(qtbot):
+    """The x axis counts blocks as executed, so the bottleneck-grouped sample and its expanded form
+    end at the same step with the same totals, and a baseline pinned on one lies on the other."""
+    chart, doc = chart_for(qtbot, "leaf_blight_grader.loom")
+    assert doc.design.motifs and doc.design.of_kind("Motif")
+    flat = expanded_copy(doc.design)
+    flat_ledger = Ledger(flat.analysis())
+    chart.metric_box.setCurrentIndex(1)  # MACs along depth
+    grouped_x, grouped_y = chart.curve.xData, chart.curve.yData
+    assert grouped_x[-1] == len(flat.blocks) == len(flat_ledger.order)
+    flat_at = dict(zip(flat_ledger.steps.astype(float), flat_ledger.cumulative_macs.astype(float)))
+    assert grouped_y[-1] == flat_at[grouped_x[-1]]
+    doc.design.set_field("baseline", snapshot(flat_ledger, "drawn flat"))
+    settle(qtbot)
+    assert chart.base_curve.xData[-1] == grouped_x[-1] and chart.base_curve.yData[-1] == grouped_y[-1]
 
 
 def click_step(qtbot, chart: DepthLedger, step: int) -> None:

@@ -188,3 +188,28 @@ def test_parts_tiles_grouped_by_family_filter_and_carry_the_kind(qtbot):
     assert parts.empty.isVisible()
     data = parts.tiles["Pointwise"].mime_data()
     assert bytes(data.data(KIND_MIME)).decode("utf-8") == "Pointwise"
+
+
+def test_budget_and_target_change_refreshes_findings_status_and_badges(qtbot, tmp_path):
+    """Design ▸ Budget and target… is an edit like any other: the Findings tab, the status bar
+    counts and the canvas badges follow it at once (and its undo)."""
+    from PySide6.QtCore import QSettings
+
+    from layerloom.gui.budget_dialog import BudgetDialog
+    from test_window_files import open_window
+
+    window, _ = open_window(qtbot, tmp_path, [SAMPLES / "fastener_sorter.loom"])
+    doc, scene = window.document, window.canvas.scene()
+    assert not [f for f in window.shelf.findings.findings if f.code.startswith("budget.")]
+    dialog = BudgetDialog(doc, QSettings(str(tmp_path / "budget.ini"), QSettings.Format.IniFormat), window)
+    qtbot.addWidget(dialog)
+    dialog.macs.setValue(20)  # millions; the sample needs more
+    dialog.choice.setCurrentText("phone, 2 big CPU cores")
+    dialog.accept()
+    listed = [f for f in window.shelf.findings.findings if f.code == "budget.macs"]
+    assert len(listed) == 1 and listed[0].block in doc.design.blocks
+    assert window.findings_button.text().endswith("1 warning")
+    assert any(f.code == "budget.macs" for b in scene.badges.get(listed[0].block, []) for f in b.findings)
+    doc.undo_stack.undo()
+    assert not [f for f in window.shelf.findings.findings if f.code.startswith("budget.")]
+    assert window.findings_button.text().endswith("0 warnings")

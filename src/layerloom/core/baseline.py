@@ -1,8 +1,9 @@
 """Baselines: a frozen copy of a design's ledger, pinned to compare later versions against.
 
 A baseline is plain JSON-ready data (saved inside the ``.loom`` file): the totals and, per block
-in depth order, the name and the cumulative weights, MACs and latency and the live activation
-bytes, so the Depth ledger can overlay the old curves on the new.
+in depth order, the name, the blocks executed up to it (``step``: a motif use counts the blocks
+it runs), the cumulative weights, MACs and latency and the live activation bytes, so the Depth
+ledger can overlay the old curves on the new whatever is grouped into motifs.
 """
 from __future__ import annotations
 
@@ -44,6 +45,7 @@ def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
         "totals": {"weights": t.weights, "macs": t.macs, "peak_memory": t.peak_memory},
         "blocks": {
             "name": [ledger.analysis.design.blocks[b].name for b in ledger.order],
+            "step": [int(v) for v in ledger.steps],
             "weights": [int(v) for v in ledger.cumulative_weights],
             "macs": [int(v) for v in ledger.cumulative_macs],
             "live": [int(v) for v in ledger.live],

@@ -40,6 +40,8 @@ CODES: dict[str, str] = {
     "motif.repeat_shape": "a repeated motif changes the shape, so its copies cannot be stacked",
     "motif.ports": "an instance's ports do not match its motif",
     "motif.param": "a motif parameter is unknown or its value does not fit the setting it feeds",
+    "import.unmapped": "an imported operation no kind describes; it carries its traced shape and costs",
+    "import.unmapped_input": "an unmapped operation receives another shape than it was traced with",
     "budget.weights": "the weights pass the design's budget",
     "budget.macs": "the MACs pass the design's budget",
     "budget.memory": "the peak live activation memory passes the design's budget",
@@ -50,7 +52,8 @@ CODES: dict[str, str] = {
 
 @dataclass(frozen=True)
 class Finding:
-    """One finding. ``block`` is a top-level block id; ``path`` the ids inside motifs, outermost first."""
+    """One finding. ``block`` is a top-level block id; ``path`` the ids inside motifs, outermost first;
+    ``port`` an input port of the block the finding is about (the last of ``path`` when there is one)."""
 
     code: str
     severity: str
@@ -70,7 +73,7 @@ class Finding:
     def inside(self, instance: str, instance_name: str) -> "Finding":
         """This finding seen from one level up, through the motif instance ``instance``."""
         return Finding(self.code, self.severity, instance, f"{instance_name} › {self.message}",
-                       self.port if not self.path else None, self.numbers, (self.block, *self.path))
+                       self.port, self.numbers, (self.block, *self.path))
 
 
 class Stop(Exception):

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import graphlib
 import heapq
+from math import prod
 from typing import NamedTuple
 
 from layerloom.core.findings import ERROR, WARNING, Finding, Report, Stop, sort_findings
@@ -49,6 +50,22 @@ class Result(NamedTuple):
     jump: tuple[float, float]
     extra: int = 0  # transient elements inside a motif instance beyond its inputs and outputs
     extra_freed: int = 0  # the same when the instance is the last reader of its inputs (may be < 0)
+    executed: "Executed | None" = None  # a motif instance: its blocks as executed
+
+
+class Executed(NamedTuple):
+    """The blocks a motif use runs, as executed: inner ports left out, nested uses opened, repeats
+    counted. The ledger takes a use's latency, bytes moved and output memory from here, so they are
+    the sums over these blocks, as if the use were expanded (per sample, elements)."""
+
+    steps: int  # blocks executed
+    elements: int  # activation elements they read and write (their inputs plus outputs)
+    allocated: int  # elements of the tensors they allocate (views allocate none)
+    work: tuple  # ((weights, MACs, elements), count) for the blocks that compute, for the roofline
+
+    def times(self, n: int) -> "Executed":
+        return Executed(self.steps * n, self.elements * n, self.allocated * n,
+                        tuple((sig, count * n) for sig, count in self.work))
 
 
 class MotifRun(NamedTuple):
@@ -61,6 +78,7 @@ class MotifRun(NamedTuple):
     extra: int  # inner peak beyond outputs, inputs kept alive by the caller
     extra_freed: int  # inner peak beyond inputs and outputs, inputs freed inside after their last use
     findings: tuple[Finding, ...]
+    executed: Executed
 
 
 def _widen(rf: float, extent: float, jump: float) -> float:
@@ -258,7 +276,7 @@ class GraphInference:
                     kh, kw, sh, sw = window
                     rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
                     jump = (jump[0] * sh, jump[1] * sw)
-                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0))
+                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None))
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
         self.results[bid] = result
@@ -355,19 +373,49 @@ class GraphInference:
                        f"does not have (it has: {', '.join(motif.params) or 'no parameters'})")
         run = self.analysis.motif_run(motif, ins, params, self.stack)
         found += [f.inside(blk.id, blk.name) for f in run.findings]
+        if any(o is None for o in run.outs):
+            return None  # an error inside was reported; whether copies stack is unknown
         repeat = s["repeat"]
         if repeat > 1 and (len(ins) != 1 or len(run.outs) != 1 or run.outs[0] != ins[0]):
+            came = ins[0] if len(ins) == 1 else f"{len(ins)} inputs"
             shown = run.outs[0] if len(run.outs) == 1 else f"{len(run.outs)} outputs"
             raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {motif.name!r} ×{repeat}, but one use turns "
-                       f"{ins[0] if len(ins) == 1 else f'{len(ins)} inputs'} into {shown}, so the copies cannot be "
-                       "stacked; use repeat 1 for the shape-changing use", numbers=(str(shown), str(ins[0])))
-        if any(o is None for o in run.outs):
-            return None
+                       f"{came} into {shown}, so the copies cannot be stacked; use repeat 1 for the shape-changing use",
+                       numbers=(str(shown), str(came)))
         for _ in range(repeat):
             rf = (_widen(rf[0], run.rf[0], jump[0]), _widen(rf[1], run.rf[1], jump[1]))
             jump = (jump[0] * run.jump[0], jump[1] * run.jump[1])
         cost = Cost(*(v * repeat for v in run.cost)) if repeat > 1 else run.cost
-        return Result(ins, run.outs, cost, rf, jump, run.extra, run.extra_freed)
+        executed = run.executed.times(repeat) if repeat > 1 else run.executed
+        return Result(ins, run.outs, cost, rf, jump, run.extra, run.extra_freed, executed)
+
+
+def _executed(graph, inference: GraphInference) -> Executed:
+    """The blocks of one motif run as executed (see :class:`Executed`)."""
+    steps = elements = allocated = 0
+    work: dict[tuple, int] = {}
+    blocks, results = graph.blocks, inference.results
+    for bid in inference.order:
+        kind = blocks[bid].kind
+        if kind in ("Input", "Output"):
+            continue  # ports: they vanish when the use is expanded
+        r = results.get(bid)
+        if r is not None and r.executed is not None:
+            inner = r.executed
+            steps, elements, allocated = steps + inner.steps, elements + inner.elements, allocated + inner.allocated
+            for sig, count in inner.work:
+                work[sig] = work.get(sig, 0) + count
+            continue
+        steps += 1
+        if r is None:
+            continue
+        e = sum(map(prod, r.ins)) + sum(map(prod, r.outs))
+        elements += e
+        if not KINDS[kind].view:
+            allocated += sum(map(prod, r.outs))
+            sig = (r.cost[0], r.cost[2], e)
+            work[sig] = work.get(sig, 0) + 1
+    return Executed(steps, elements, allocated, tuple(sorted(work.items())))
 
 
 class Analysis:
@@ -434,7 +482,8 @@ class Analysis:
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
             cost = _add_costs(r.cost for r in inner.results.values() if r is not None)
-            run = MotifRun(outs, cost, rf, jump, max(kept - ends, 0), freed - ends - ins_size, findings)
+            run = MotifRun(outs, cost, rf, jump, max(kept - ends, 0), freed - ends - ins_size, findings,
+                           _executed(motif, inner))
             self.motif_runs[key] = run
         return run
 
@@ -484,7 +533,7 @@ class Analysis:
         return self._budget[1]
 
     def live_profile(self):
-        """Live activation elements per sample at each step of :attr:`order`."""
+        """Live activation elements per sample at each step of :attr:`order` (a list)."""
         top = self.refresh().top
         if self._profile is None:
             if top.plan is None:

@@ -24,15 +24,31 @@ them for users):
 - **estimated latency** (with a target, see :mod:`layerloom.core.targets`): per block
   max(MACs / peak MAC rate, bytes moved / bandwidth) + the target's per-layer overhead, for blocks
   that compute (not Input, Output or views); a first-order roofline estimate.
+- **motif uses** are counted as the blocks they execute (ports left out, nested uses opened,
+  repeats counted): their weights, MACs, other operations, bytes moved, output memory (what their
+  blocks allocate) and latency (each inner block estimated on its own) are the sums over those
+  blocks, so every figure is the same whether blocks are grouped into a motif or not.
+- **training memory** at batch B (see :mod:`layerloom.core.training_memory`): weights +
+  gradients (one copy) + optimizer state (SGD: none; SGD with momentum: one copy; Adam: two copies;
+  common practice) + activations kept for the backward pass. First order: each block keeps what its
+  backward needs, as PyTorch's autograd does (a convolution, Linear, batch norm, pooling, most
+  activations and a Multiply keep their inputs; ReLU, Sigmoid, Tanh and Softmax their output;
+  max pooling also an int64 index per output; global average pooling, Add, Concat, Upsample and
+  views nothing), each tensor counted once however many blocks keep it; per-channel batch-norm
+  statistics and optimizer step counters are not counted. All at the design's element type; with
+  mixed precision, activations at fp16 and weights, gradients and optimizer state at fp32 (master
+  weights) plus an fp16 working copy of the weights.
 - **depth order**: topological order by longest-path level from the inputs, ties broken by the
-  order blocks were added; **depth** is that level.
+  order blocks were added; **depth** is that level. **steps** count blocks as executed (a motif
+  use counts the blocks it executes): the Depth ledger's x axis.
 
 Counts and bytes are exact at any size: numpy arrays of them are int64 when every sum fits, else
-Python integers (``dtype=object``); only latency (seconds) and intensity are floats, which saturate
-to infinity rather than fail.
+Python integers (``dtype=object``); only latency (seconds), intensity and steps drawn as floats are
+floats, which saturate to infinity rather than fail.
 """
 from __future__ import annotations
 
+from itertools import chain
 from math import prod
 from typing import NamedTuple
 
@@ -89,6 +105,13 @@ def exact_array(values: list, scale: int = 1, headroom: int = 1) -> np.ndarray:
     return np.array(values, dtype=object) * scale
 
 
+def per_second(values: np.ndarray, rate: float) -> np.ndarray:
+    """``values / rate`` as floats (infinity where beyond a float's range)."""
+    if values.dtype != object:
+        return values / rate
+    return np.array([ratio(v, rate) for v in values], dtype=float)
+
+
 def floats(values) -> np.ndarray:
     """Exact counts as floats for drawing: infinity where one is beyond a float's range."""
     return np.array([ratio(v, 1.0) for v in values], dtype=float)
@@ -112,7 +135,7 @@ class Ledger:
         results = analysis.top.results
         self._results = [results.get(b) for b in self.order]
         free = (0, 0, 0, 0)
-        costs = exact_array([r.cost if r is not None else free for r in self._results],
+        costs = exact_array(list(chain.from_iterable(r.cost if r is not None else free for r in self._results)),
                             headroom=self.batch).reshape(-1, 4)
         costs[:, 2:] *= self.batch
         self.costs = costs
@@ -127,12 +150,32 @@ class Ledger:
                              float(self.latency.sum()) if self.latency is not None else None)
 
     def _latency(self) -> np.ndarray:
-        """Estimated seconds per block on the target (zeros for blocks that do no work)."""
+        """Estimated seconds per block on the target (zeros for blocks that do no work; a motif use
+        the sum over the blocks it executes)."""
         t = self.target
-        work = np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
-        compute = np.array([ratio(m, t.macs_per_second) for m in self.costs[:, 2]], dtype=float)
-        memory = np.array([ratio(m, t.bytes_per_second) for m in self.moved], dtype=float)
-        return np.where(work, np.maximum(compute, memory) + t.overhead, 0.0)
+        compute = per_second(self.costs[:, 2], t.macs_per_second)
+        memory = per_second(self.moved, t.bytes_per_second)
+        latency = np.where(self.working, np.maximum(compute, memory) + t.overhead, 0.0)
+        for i, r in enumerate(self._results):
+            if r is not None and r.executed is not None:
+                latency[i] = self._roofline(r.executed)[0]
+        return latency
+
+    def _roofline(self, executed) -> tuple[float, float]:
+        """Seconds the blocks a motif use executes take: (estimate, its compute-bound part)."""
+        t, n, size = self.target, self.batch, self.bytes_per_element
+        total = compute_part = 0.0
+        for (w, m, e), count in executed.work:
+            compute, memory = ratio(m * n, t.macs_per_second), ratio((w + e * n) * size, t.bytes_per_second)
+            total += count * (max(compute, memory) + t.overhead)
+            compute_part += count * compute
+        return total, compute_part
+
+    @property
+    def working(self) -> np.ndarray:
+        """Per step: whether the block computes something (not Input, Output, a view or a block
+        without a result)."""
+        return np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
 
     def _works(self, block_id: str) -> bool:
         kind = self.analysis.design.blocks[block_id].kind
@@ -143,15 +186,26 @@ class Ledger:
     def moved(self) -> np.ndarray:
         """Bytes each block moves: weights plus input and output activations."""
         n = self.batch
-        elems = [(sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n if r is not None else 0 for r in self._results]
+        elems = [(r.executed.elements if r.executed is not None else sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n
+                 if r is not None else 0 for r in self._results]
         return exact_array([w + e for w, e in zip(self.costs[:, 0].tolist(), elems)], self.bytes_per_element)
 
     @property
     def out_memory(self) -> np.ndarray:
-        """Bytes of the tensor each block allocates (0 for views and blocks without a shape)."""
-        elems = [sum(map(prod, r.outs)) if r is not None and self._allocates(b) else 0
-                 for b, r in zip(self.order, self._results)]
-        return exact_array(elems, self.batch * self.bytes_per_element)
+        """Bytes of the tensors each block allocates (0 for views and blocks without a shape)."""
+        return exact_array([self._allocated(b, r) for b, r in zip(self.order, self._results)],
+                           self.batch * self.bytes_per_element)
+
+    def _allocated(self, block_id: str, r) -> int:
+        if r is None or not self._allocates(block_id):
+            return 0
+        return r.executed.allocated if r.executed is not None else sum(map(prod, r.outs))
+
+    @property
+    def steps(self) -> np.ndarray:
+        """Blocks executed up to and including each block (a motif use counts the blocks it executes)."""
+        return np.cumsum(exact_array([r.executed.steps if r is not None and r.executed is not None else 1
+                                      for r in self._results]))
 
     def _allocates(self, block_id: str) -> bool:
         return not KINDS[self.analysis.design.blocks[block_id].kind].view
@@ -189,12 +243,15 @@ class Ledger:
             return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), None, 0, 0, 0, 0, 0, None, None, 0, 0.0,
                        0.0 if self.latency is not None else None, "")
         w, b, m, o = (int(v) for v in self.costs[i])
-        out_bytes = sum(map(prod, r.outs)) * self.batch * self.bytes_per_element if self._allocates(bid) else 0
+        out_bytes = self._allocated(bid, r) * self.batch * self.bytes_per_element
         latency, bound = None, ""
         if self.latency is not None:
             latency = float(self.latency[i])
             if latency:
-                compute = ratio(m, self.target.macs_per_second)
-                bound = "compute" if compute >= ratio(moved, self.target.bytes_per_second) else "memory"
+                if r.executed is not None:  # compute-bound when most of its blocks' time is
+                    bound = "compute" if 2 * self._roofline(r.executed)[1] >= latency else "memory"
+                else:
+                    compute = ratio(m, self.target.macs_per_second)
+                    bound = "compute" if compute >= ratio(moved, self.target.bytes_per_second) else "memory"
         return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), r.outs[0] if r.outs else None, w, b, m, o,
                    out_bytes, r.rf, r.jump, moved, ratio(m, moved) if moved else 0.0, latency, bound)

@@ -9,7 +9,8 @@ it is the last reader of its inputs they are freed inside it as soon as the inne
 with them. Counts are elements per sample; the ledger multiplies by batch size and bytes.
 
 When each tensor dies depends only on the wiring, so it is worked out once per order
-(:class:`Plan`); a settings edit only recomputes the sizes, as exact integers.
+(:class:`Plan`); a settings edit only adds up the sizes again (plain lists: at a few thousand
+blocks one loop beats building numpy arrays from Python values).
 """
 from __future__ import annotations
 
@@ -51,26 +52,31 @@ class Plan:
                     death[o], read[o] = n, True
                 elif not read[o] or death[o] < i:
                     death[o], read[o] = i, True
-        last = [all((o := owner.get(w.src)) is not None and death[o] == i for w in in_wires[bid])
-                for i, bid in enumerate(order)]
+        last = [True] * n
+        for i, bid in enumerate(order):
+            for w in in_wires[bid]:
+                o = owner.get(w.src)
+                if o is None or death[o] != i:
+                    last[i] = False
+                    break
         self.allocates, self.death, self.last_reader = allocates, death, last
 
 
 def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
-    """Live elements per sample at each step of ``order`` (after allocation, before freeing), exact."""
+    """Live elements per sample at each step of ``order`` (after allocation, before freeing)."""
     plan = plan or Plan(graph, order, inputs_outside)
-    live = []
-    freed = [0] * (len(order) + 1)  # elements freed after each step
-    total = 0
     allocates, death, last_reader = plan.allocates, plan.death, plan.last_reader
+    freed = [0] * (len(order) + 1)  # elements freed after each step
+    live, total = [], 0
     for i, bid in enumerate(order):
         r = results.get(bid)
         if r is None:
-            total -= freed[i - 1] if i else 0
             live.append(total)
-            continue
-        size = sum(map(prod, r.outs)) if allocates[i] else 0
-        total += size - (freed[i - 1] if i else 0)
-        freed[death[i]] += size
-        live.append(total + (r.extra_freed if last_reader[i] else r.extra))
+        else:
+            if allocates[i]:
+                size = sum(map(prod, r.outs))
+                total += size
+                freed[death[i]] += size
+            live.append(total + (r.extra_freed if last_reader[i] else r.extra))
+        total -= freed[i]
     return live

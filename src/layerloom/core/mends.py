@@ -12,9 +12,10 @@ from math import gcd
 from typing import Callable, NamedTuple
 
 from layerloom.core import edits
-from layerloom.core.findings import Finding
+from layerloom.core.findings import Finding, Stop
 from layerloom.core.graph import Wire
 from layerloom.core.inference import GraphInference
+from layerloom.core.motif_view import feed
 
 _BUILDERS: dict[str, Callable] = {}
 
@@ -47,6 +48,14 @@ class Place(NamedTuple):
     def name(self, block_id: str) -> str:
         return self.graph.blocks[block_id].name
 
+    def settings(self, block_id: str) -> dict:
+        """The block's settings with motif parameters replaced by the values of this use."""
+        blk = self.graph.blocks[block_id]
+        try:
+            return self.inference.resolved_settings(blk) if self.inference.params is not None else blk.settings
+        except Stop:
+            return blk.settings
+
 
 def mend(*codes: str):
     """Register a mend builder for findings with these codes (one builder per code)."""
@@ -60,35 +69,34 @@ def mend(*codes: str):
 
 
 def mends_for(design, finding: Finding) -> list[Mend]:
-    """The mends that apply to ``finding`` in ``design`` as it is now (possibly none)."""
+    """The mends that apply to ``finding`` in ``design`` as it is now (possibly none).
+
+    Inside a motif used in more than one place, each mend is offered for this use only (setting the
+    instance's parameter, exposing the setting as a parameter first, or giving this use its own
+    copy of the motif), and for every use only when that makes no error elsewhere; its text says so.
+    """
     builder = _BUILDERS.get(finding.code)
     if builder is None:
         return []
     place = _locate(design, finding)
     if place is None:
         return []
-    return [m for m in builder(place, finding) if m is not None]
+    found = [m for m in builder(place, finding) if m is not None]
+    if not finding.path or not found:
+        return found
+    from layerloom.core import mends_in_use
+
+    return mends_in_use.for_this_use(design, finding, found)
 
 
 def _locate(design, finding: Finding) -> Place | None:
     """Follow ``finding.path`` through motif instances to the graph holding the block."""
-    analysis = design.analysis().refresh()
-    graph, inference, block = design, analysis.top, finding.block
+    graph, inference, block = design, design.analysis().refresh().top, finding.block
     for inner in finding.path:
-        inst = graph.blocks.get(block)
-        if inst is None or inst.kind != "Motif":
+        inference = feed(design, graph, inference, block)
+        if inference is None or inner not in inference.graph.blocks:
             return None
-        motif = design.motifs.get(inst.settings["motif"])
-        if motif is None or inner not in motif.blocks:
-            return None
-        ins = []
-        for w in sorted(graph.in_wires[block], key=lambda w: w.dst_port):
-            r = inference.results.get(w.src)
-            ins.append(r.outs[w.src_port] if r is not None else None)
-        params = {**motif.params, **{k: v for k, v in inst.settings.items() if k not in ("motif", "repeat")}}
-        inference = GraphInference(motif, analysis, tuple(ins), params, inference.stack + (motif.name,))
-        inference.run()
-        graph, block = motif, inner
+        graph, block = inference.graph, inner
     if block and block not in graph.blocks:
         return None
     return Place(design, graph, block, inference)
@@ -135,7 +143,7 @@ def _mend_channels(place: Place, finding: Finding):
     if gate or narrow[1:] == wide[1:]:
         conv = _upstream_conv(place, narrow_wire.src)
         if conv is not None:
-            groups = place.graph.blocks[conv].settings.get("groups", 1)
+            groups = place.settings(conv).get("groups", 1)
             if wide[0] % groups == 0:
                 yield _set(place, conv, f"Set {place.name(conv)}'s out channels to {wide[0]}", out_channels=wide[0])
 
@@ -198,7 +206,7 @@ def _mend_groups(place: Place, finding: Finding):
     shape = place.source_shape(wire) if wire else None
     if shape is None:
         return
-    s = place.graph.blocks[place.block].settings
+    s = place.settings(place.block)
     common = gcd(shape[0], s["out_channels"])
     g = max(d for d in range(1, min(s["groups"], common) + 1) if common % d == 0)
     yield _set(place, place.block, f"Set groups to {g}", groups=g)
@@ -206,7 +214,7 @@ def _mend_groups(place: Place, finding: Finding):
 
 @mend("conv.same_stride", "pool.padding")
 def _mend_padding(place: Place, finding: Finding):
-    k = place.graph.blocks[place.block].settings["kernel"]
+    k = place.settings(place.block)["kernel"]
     pad = k // 2 if isinstance(k, int) else [k[0] // 2, k[1] // 2]
     yield _set(place, place.block, f"Set padding to {pad if isinstance(pad, int) else f'{pad[0]}×{pad[1]}'}",
                padding=pad)

@@ -19,9 +19,10 @@ from layerloom.core.graph import Wire
 PORT_KINDS = ("Input", "Output")
 
 
-def _fresh_motif_name(design, stem: str) -> str:
+def _fresh_motif_name(design, stem: str, taken=None) -> str:
+    taken = design.motifs if taken is None else taken
     name, n = stem, 1
-    while name in design.motifs:
+    while name in taken:
         n += 1
         name = f"{stem}_{n}"
     return name
@@ -49,7 +50,11 @@ def make_motif(design, block_ids, name: str | None = None, graph: str = "") -> t
     xs = [g.blocks[b].position[0] for b in chosen]
     ys = [g.blocks[b].position[1] for b in chosen]
     left, right, middle = min(xs), max(xs), (min(ys) + max(ys)) / 2
-    ops: list = [AddMotif(name, {})]
+    used = _params_used(g.blocks[b] for b in chosen) if graph else []  # the new motif takes them over
+    missing = [p for p in used if p not in g.params]
+    if missing:
+        raise EditError(f"the selection refers to {', '.join(map(repr, missing))}, which motif {graph!r} does not have")
+    ops: list = [AddMotif(name, {p: g.params[p] for p in used})]
     taken = {b for b in chosen}
     port_ids = []
     for k, (kind, count, x) in enumerate((("Input", len(sources), left - 230.0), ("Output", len(results), right + 230.0))):
@@ -69,12 +74,18 @@ def make_motif(design, block_ids, name: str | None = None, graph: str = "") -> t
     ops += [AddWire(name, Wire(in_ports[sources.index((w.src, w.src_port))], 0, w.dst, w.dst_port)) for w in wires_in]
     ops += [AddWire(name, Wire(src, port, out_ports[i], 0)) for i, (src, port) in enumerate(results)]
 
-    instance_edit, instance = edits.add_block(design, "Motif", {"motif": name, "repeat": 1}, graph=graph,
+    passed = {p: {"param": p} for p in used}
+    instance_edit, instance = edits.add_block(design, "Motif", {"motif": name, "repeat": 1, **passed}, graph=graph,
                                               name=g.fresh_name(name), position=(sum(xs) / len(xs), middle))
     ops += list(edits.remove_blocks(g, chosen).ops) + list(instance_edit.ops)
     ops += [AddWire(graph, Wire(src, port, instance, k)) for k, (src, port) in enumerate(sources)]
     ops += [AddWire(graph, Wire(instance, results.index((w.src, w.src_port)), w.dst, w.dst_port)) for w in wires_out]
     return Edit(f"Make motif {name}", tuple(ops)), instance
+
+
+def _params_used(blocks) -> list[str]:
+    """Motif parameters the settings of ``blocks`` refer to, in order of first use."""
+    return list(dict.fromkeys(v["param"] for b in blocks for v in b.settings.values() if isinstance(v, dict)))
 
 
 def _input_defaults() -> dict:
@@ -94,9 +105,12 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
         raise EditError(f"{inst.name} uses motif {inst.settings['motif']!r}, which this design does not define")
     params = {**motif.params, **{k: v for k, v in inst.settings.items() if k not in ("motif", "repeat")}}
     in_ids, out_ids = motif.ports()
+    repeat = inst.settings["repeat"]
+    if repeat > 1 and len(in_ids) != len(out_ids):
+        raise EditError(f"{inst.name} repeats motif {motif.name!r} ×{repeat} but the motif has {len(in_ids)} input "
+                        f"and {len(out_ids)} output ports, so its copies cannot be chained; set repeat to 1 first")
     feeds = {w.dst_port: (w.src, w.src_port) for w in g.in_wires[instance_id]}
     current = [feeds.get(k) for k in range(len(in_ids))]
-    repeat = inst.settings["repeat"]
     x0, y0 = inst.position
     inner = [b for b in motif.blocks.values() if b.kind not in PORT_KINDS]
     span = (max((b.position[0] for b in inner), default=0) - min((b.position[0] for b in inner), default=0)) + 230.0
@@ -111,27 +125,40 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
             base = f"{inst.name}_{b.name}" + (f"_{r + 1}" if repeat > 1 else "")
             name = base if base not in names else g.fresh_name(base, names)
             names.add(name)
-            settings = {k: params[v["param"]] if isinstance(v, dict) else v for k, v in b.settings.items()}
             pos = (x0 + (b.position[0] - left) + r * span, y0 + b.position[1])
-            ops.append(AddBlock(graph, bid, b.kind, name, edits.check_settings(design, b.kind, settings, graph), pos))
+            ops.append(AddBlock(graph, bid, b.kind, name, _written(design, motif, b, params, graph), pos))
 
-        def outer(src: str, port: int):
+        def outer(src: str, port: int, dst: str):
             if src in in_ids:
                 return current[in_ids.index(src)]
+            if src not in ids:
+                raise EditError(f"cannot expand {inst.name}: inside motif {motif.name!r}, {motif.blocks[dst].name} "
+                                f"is wired from the output port {motif.blocks[src].name}; remove that wire first")
             return ids[src], port
 
         for w in motif.wires:
             if w.dst in ids:
-                src = outer(w.src, w.src_port)
+                src = outer(w.src, w.src_port, w.dst)
                 if src is not None:
                     ops.append(AddWire(graph, Wire(src[0], src[1], ids[w.dst], w.dst_port)))
-        current = [outer(motif.in_wires[o][0].src, motif.in_wires[o][0].src_port) if motif.in_wires[o] else None
+        current = [outer(motif.in_wires[o][0].src, motif.in_wires[o][0].src_port, o) if motif.in_wires[o] else None
                    for o in out_ids]
     for w in g.out_wires[instance_id]:
         src = current[w.src_port] if w.src_port < len(current) else None
         if src is not None:
             ops.append(AddWire(graph, Wire(src[0], src[1], w.dst, w.dst_port)))
     return Edit(f"Expand {inst.name}", tuple(ops))
+
+
+def _written(design, motif, block, params: dict, graph: str) -> dict:
+    """``block``'s settings with the instance's parameter values written in, checked for ``graph``."""
+    try:
+        settings = {k: params[v["param"]] if isinstance(v, dict) else v for k, v in block.settings.items()}
+        return edits.check_settings(design, block.kind, settings, graph)
+    except KeyError as e:
+        raise EditError(f"{block.name} in motif {motif.name!r} refers to parameter {e}, which the motif does not have") from None
+    except ValueError as e:
+        raise EditError(f"{block.name} in motif {motif.name!r}: {e}") from None
 
 
 def expose(design, motif_name: str, block_id: str, key: str, param: str) -> Edit:

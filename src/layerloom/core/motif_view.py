@@ -30,7 +30,7 @@ class MotifView(NamedTuple):
     names: tuple[str, ...]  # those instances' block names
 
 
-def _feed(design, graph, inference: GraphInference, instance_id: str) -> GraphInference | None:
+def feed(design, graph, inference: GraphInference, instance_id: str) -> GraphInference | None:
     """The inference of the motif used by ``instance_id`` of ``graph``, fed that instance's input
     shapes and parameter values; None when it is not a usable instance."""
     inst = graph.blocks.get(instance_id)
@@ -61,7 +61,7 @@ def follow(design, use: tuple[str, ...]) -> tuple[GraphInference, tuple[str, ...
     analysis = design.analysis().refresh()
     graph, inference, names = design, analysis.top, []
     for bid in use:
-        inner = _feed(design, graph, inference, bid)
+        inner = feed(design, graph, inference, bid)
         if inner is None:
             return None
         names.append(graph.blocks[bid].name)
@@ -97,7 +97,7 @@ def first_use(design, name: str) -> tuple[str, ...] | None:
             if used == name:
                 return chain + (bid,)
             if used in through:
-                inner = _feed(design, graph, inference, bid)
+                inner = feed(design, graph, inference, bid)
                 found = search(inner.graph, inner, chain + (bid,)) if inner is not None else None
                 if found:
                     return found

@@ -1,9 +1,12 @@
 """The Depth ledger: how weights, MACs, activation memory and estimated latency add up along depth.
 
-x is the step in the core's depth order (hover names the block); y is the chosen metric, as a
+x counts blocks as executed in the core's depth order (a motif use spans the blocks it runs, so a
+network draws the same whether or not it is grouped; hover names the block); y is the metric, as a
 cumulative curve (activation memory: live bytes at each step and their running peak) or as
 per-block bars. The design's budget is drawn as a line and the block where the curve passes it
-is marked; a pinned baseline is overlaid dashed, with a table of totals and their change.
+is marked; a pinned baseline is overlaid dashed, with a table of totals and their change. With
+latency, the design's last measurement (Design ▸ Measure on this machine) is drawn beside the
+estimate; training memory (:mod:`layerloom.core.training_memory`) is charted for a chosen optimizer.
 Curves are created once and refreshed with ``setData`` on each edit.
 """
 from __future__ import annotations
@@ -14,8 +17,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import (QComboBox, QFileDialog, QHBoxLayout, QHeaderView, QLabel, QMenu, QMessageBox,
-                               QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QFileDialog, QHBoxLayout, QHeaderView, QLabel, QMenu, QMessageBox,
+                               QSizePolicy, QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot, snapshot_of_file
@@ -24,6 +27,7 @@ from layerloom.core.fileformat import LoomFileError
 from layerloom.core.ledger import Ledger, floats
 from layerloom.core.ledger_csv import ledger_csv
 from layerloom.core.targets import CAUTION
+from layerloom.core.training_memory import training_curve, training_memory, training_text
 from layerloom.gui import theme
 
 METRICS = (  # key, menu label, axis unit formatter, budget key, baseline column
@@ -31,7 +35,10 @@ METRICS = (  # key, menu label, axis unit formatter, budget key, baseline column
     ("macs", "MACs", units.count, "macs", "macs"),
     ("memory", "Activation memory", units.size, "memory", "live"),
     ("latency", "Estimated latency", lambda s: f"{s * 1e3:.3g} ms", "latency_ms", "latency"),
+    ("training", "Training memory", units.size, None, None),
 )
+OPTIMIZER_LABELS = {"sgd_momentum": "SGD with momentum", "adam": "Adam", "sgd": "plain SGD"}  # keys: OPTIMIZERS
+MEASURED_PEN = pg.mkPen(theme.TEXT, width=1.5, style=Qt.PenStyle.DashDotDotLine)
 BASE_PEN = pg.mkPen(theme.TEXT_MUTED, width=1.5, style=Qt.PenStyle.DashLine)
 NOW_PEN = pg.mkPen(theme.ACCENT, width=2)
 PEAK_PEN = pg.mkPen(theme.ACCENT, width=1, style=Qt.PenStyle.DotLine)
@@ -69,6 +76,7 @@ class DepthLedger(QWidget):
         self.document = document
         self.ledger: Ledger | None = None
         self.values = np.zeros(0)
+        self.x = np.zeros(0)  # each block's last step as executed
         self._pending = False
 
         self.metric_box = QComboBox()
@@ -85,9 +93,16 @@ class DepthLedger(QWidget):
         menu.addAction("Export chart as PNG…", self.export_png)
         menu.addAction("Export ledger as CSV…", self.export_csv)
         more.setMenu(menu)
+        self.optimizer_box = QComboBox()
+        for key, label in OPTIMIZER_LABELS.items():
+            self.optimizer_box.addItem(label, key)
+        self.mixed_box = QCheckBox("mixed precision")
+        self.mixed_box.setToolTip("fp16 activations, fp32 master weights, gradients and optimizer state")
         top = QHBoxLayout()
         top.addWidget(self.metric_box)
         top.addWidget(self.view_box)
+        top.addWidget(self.optimizer_box)
+        top.addWidget(self.mixed_box)
         top.addStretch(1)
         top.addWidget(more)
 
@@ -96,12 +111,13 @@ class DepthLedger(QWidget):
         self.plot = pg.PlotWidget(axisItems={"left": self.axis, "bottom": StepAxis("bottom")}, background=theme.CARD)
         self.plot.setMenuEnabled(False)
         self.plot.showGrid(x=True, y=True, alpha=0.15)
-        self.plot.setLabel("bottom", "depth (blocks in order)")
+        self.plot.setLabel("bottom", "depth (blocks as executed)")
         self.plot.getPlotItem().hideButtons()
         self.base_curve = self.plot.plot(pen=BASE_PEN, name="baseline")
         self.peak_curve = self.plot.plot(pen=PEAK_PEN)
         self.curve = self.plot.plot(pen=NOW_PEN, name="now")
-        for c in (self.base_curve, self.peak_curve, self.curve):
+        self.measured_curve = self.plot.plot(pen=MEASURED_PEN, name="measured")
+        for c in (self.base_curve, self.peak_curve, self.curve, self.measured_curve):
             c.setClipToView(True)
             c.setDownsampling(auto=True, method="peak")
         self.bars = pg.BarGraphItem(x=[], height=[], width=0.8, brush=theme.COST_BAR, pen=None)
@@ -125,8 +141,10 @@ class DepthLedger(QWidget):
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         self.table.setMaximumHeight(132)
-        self.key = QLabel()
+        self.key = QLabel()  # wraps, and never asks for more width: the right column keeps its size
         self.key.setObjectName("chart_key")
+        self.key.setWordWrap(True)
+        self.key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.caution = QLabel(CAUTION)
         self.caution.setWordWrap(True)
         self.caution.setObjectName("caution")
@@ -141,6 +159,8 @@ class DepthLedger(QWidget):
 
         self.metric_box.currentIndexChanged.connect(self.redraw)
         self.view_box.currentIndexChanged.connect(self.redraw)
+        self.optimizer_box.currentIndexChanged.connect(self.redraw)
+        self.mixed_box.toggled.connect(self.redraw)
         self.plot.scene().sigMouseMoved.connect(self._hovered)
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         document.changed.connect(self._changed)
@@ -151,7 +171,7 @@ class DepthLedger(QWidget):
 
     # ----- model → chart
     def _changed(self, change) -> None:
-        if change.reinfers or change.fields & {"budget", "target", "baseline"} or change.renamed:
+        if change.reinfers or change.fields & {"baseline", "measurement"} or change.renamed:
             if not self._pending:  # one refresh per event-loop pass, however many edits arrive
                 self._pending = True
                 QTimer.singleShot(0, self.refresh)
@@ -162,6 +182,14 @@ class DepthLedger(QWidget):
         self.ledger = Ledger(self.document.design.analysis())
         self.redraw()
 
+    def remember_choices(self, settings) -> None:
+        """Start with the metric and view last chosen (kept in ``settings``) and keep each new choice."""
+        for box, name in ((self.metric_box, "ledger/metric"), (self.view_box, "ledger/view")):
+            index = box.findText(str(settings.value(name, box.currentText())))
+            if index >= 0:
+                box.setCurrentIndex(index)
+            box.currentTextChanged.connect(lambda text, name=name: settings.setValue(name, text))
+
     def metric_key(self) -> str:
         return METRICS[self.metric_box.currentIndex()][0]
 
@@ -170,6 +198,9 @@ class DepthLedger(QWidget):
         L = self.ledger
         if key == "memory":
             return floats(L.live if cumulative else L.out_memory)
+        if key == "training":
+            curve = floats(training_curve(L, self.optimizer_box.currentData(), self.mixed_box.isChecked()))
+            return curve if cumulative else np.diff(curve, prepend=0.0)
         per_block = {"weights": L.costs[:, 0], "macs": L.costs[:, 2],
                      "latency": L.latency if L.latency is not None else np.zeros(len(L.order))}[key]
         return floats(np.cumsum(per_block) if cumulative else per_block)
@@ -179,7 +210,7 @@ class DepthLedger(QWidget):
         key, _, fmt, budget_key, base_key = METRICS[self.metric_box.currentIndex()]
         cumulative = self.view_box.currentIndex() == 0
         self.axis.format = fmt
-        x = np.arange(1, len(L.order) + 1, dtype=float)
+        self.x = x = L.steps.astype(float)
         self.values = y = self.series(key, cumulative)
         if cumulative:
             self.curve.setData(x, y)
@@ -190,6 +221,7 @@ class DepthLedger(QWidget):
         peak = floats(L.running_peak) if key == "memory" and cumulative else np.zeros(0)
         self.peak_curve.setData(x[:len(peak)], peak)
         self._draw_baseline(base_key, cumulative)
+        measured = self._draw_measured(x, key, cumulative)
         limit = design.budget.get(budget_key)
         if limit is not None and key == "latency":
             limit = limit / 1e3
@@ -205,11 +237,33 @@ class DepthLedger(QWidget):
             key_text.append(f"dashed: baseline “{design.baseline['name']}”")
         if show_budget:
             key_text.append("dash-dot: budget" + (", ○ where it is passed" if len(self.crossing.data) else ""))
+        if measured:
+            key_text.append(measured)
+        if key == "training":
+            memory = training_memory(L, self.optimizer_box.currentData(), self.mixed_box.isChecked())
+            key_text.append(f"total {units.size(memory.total)}, of it kept activations {units.size(memory.activations)}")
+            self.key.setToolTip(training_text(memory))
         self.key.setText(" · ".join(key_text))
-        self.caution.setVisible(key == "latency")
+        self.caution.setVisible(key in ("latency", "training"))
+        self.optimizer_box.setVisible(key == "training")
+        self.mixed_box.setVisible(key == "training")
         self._fill_table()
         self._mark_selection(self.document.selection)
         self.clear_action.setEnabled(design.baseline is not None)
+
+    def _draw_measured(self, x: np.ndarray, key: str, cumulative: bool) -> str:
+        """The last measurement's latency along depth (on the latency metric); its key text or ""."""
+        m = self.document.design.measurement
+        if key != "latency" or m is None:
+            self.measured_curve.setData([], [])
+            return ""
+        per_block = m.along(self.ledger.order)
+        self.measured_curve.setData(x, np.cumsum(per_block) if cumulative else per_block)
+        missing = m.missing(self.ledger)
+        self.key.setToolTip(f"measured {m.date} on {m.machine.describe()}, torch {m.machine.torch_version}, "
+                            f"batch {m.batch}, median of {m.repeat} runs")
+        return (f"dash-dot-dot: measured {m.date[:10]}, {m.machine.threads} thr."
+                + (f" ({len(missing)} new blocks not timed)" if missing else ""))
 
     def _draw_baseline(self, column: str, cumulative: bool) -> None:
         base = self.document.design.baseline
@@ -223,7 +277,8 @@ class DepthLedger(QWidget):
                 self.base_curve.setData([], [])
                 return
             values = np.diff(values, prepend=0.0)
-        self.base_curve.setData(np.arange(1, len(values) + 1, dtype=float), values)
+        steps = base["blocks"].get("step") or range(1, len(values) + 1)  # pinned before steps were kept: one per block
+        self.base_curve.setData(np.asarray(steps, dtype=float)[:len(values)], values[:len(steps)])
 
     def _draw_crossing(self, budget_key: str) -> None:
         code = f"budget.{budget_key}"
@@ -231,7 +286,7 @@ class DepthLedger(QWidget):
         for f in self.document.design.analysis().budget_findings():
             if f.code == code and f.block in self.ledger.order:
                 i = self.ledger.order.index(f.block)
-                spots.append({"pos": (i + 1, self.values[i]), "data": f.block})
+                spots.append({"pos": (self.x[i], self.values[i]), "data": f.block})
         self.crossing.setData(spots)
         self.crossing.setToolTip("\n".join(f.message for f in self.document.design.analysis().budget_findings()
                                            if f.code == code))
@@ -266,7 +321,7 @@ class DepthLedger(QWidget):
         index = self._index(ids[0]) if ids and not inside else None
         self.marker.setVisible(index is not None)
         if index is not None:
-            self.marker.setValue(index + 1)
+            self.marker.setValue(self.x[index])
 
     # ----- chart → model
     def _index(self, block_id: str) -> int | None:
@@ -279,9 +334,9 @@ class DepthLedger(QWidget):
         vb = self.plot.getPlotItem().vb
         if not vb.sceneBoundingRect().contains(scene_pos) or not len(self.values):
             return None
-        x = vb.mapSceneToView(scene_pos).x()
-        i = int(round(x)) - 1
-        return i if 0 <= i < len(self.values) else None
+        step = round(vb.mapSceneToView(scene_pos).x())
+        i = int(np.searchsorted(self.x, step))  # the block whose steps reach ``step``
+        return i if step >= 1 and i < len(self.values) else None
 
     def _hovered(self, scene_pos) -> None:
         i = self._step_at(scene_pos)
@@ -291,8 +346,8 @@ class DepthLedger(QWidget):
         bid = self.ledger.order[i]
         block = self.document.design.blocks[bid]
         fmt = METRICS[self.metric_box.currentIndex()][2]
-        self.hover.setText(f"{i + 1}. {block.name} ({block.kind})\n{fmt(self.values[i])}")
-        self.hover.setPos(i + 1, self.values[i])
+        self.hover.setText(f"{int(self.x[i])}. {block.name} ({block.kind})\n{fmt(self.values[i])}")
+        self.hover.setPos(self.x[i], self.values[i])
         self.hover.show()
 
     def _clicked(self, event) -> None:

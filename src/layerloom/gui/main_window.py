@@ -19,7 +19,9 @@ from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
+from layerloom.gui import interchange
 from layerloom.gui.graph_trail import GraphTrail
+from layerloom.gui.measure_actions import open_fit, open_measure
 from layerloom.gui.shelf import Shelf
 from layerloom.resource_paths import resource
 
@@ -79,6 +81,9 @@ class MainWindow(QMainWindow):
         self.resize(1400, 860)  # first run; a saved geometry replaces it below
         self.shelf.findings.block_chosen.connect(self.canvas.center_on)
         self.canvas.message.connect(self.say)
+        self.canvas.settings_wanted.connect(self._settings_wanted)
+        self.block_settings.finished.connect(self.canvas.setFocus)
+        self.depth_ledger.remember_choices(self.settings)
 
         self._build_status_bar()
         self._build_menus()
@@ -125,8 +130,10 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         self._action(file_menu, "Save", f.save, Key.Save)
         self._action(file_menu, "Save as…", f.save_as, Key.SaveAs)
+        self._action(file_menu, "Import…", lambda: interchange.import_into(self), name="import")
         export = file_menu.addMenu("Export")
         self._action(export, "PyTorch module…", self.export_module, name="export_module")
+        self._action(export, "ONNX file…", lambda: interchange.export_onnx_file(self), name="export_onnx")
         self._action(export, "Canvas as PNG…", lambda: self.export_picture("png"), name="export_png")
         self._action(export, "Canvas as SVG…", lambda: self.export_picture("svg"), name="export_svg")
         file_menu.addSeparator()
@@ -158,6 +165,11 @@ class MainWindow(QMainWindow):
         self._action(view, "Zoom in", c.zoom_in, Key.ZoomIn)
         self._action(view, "Zoom out", c.zoom_out, Key.ZoomOut)
         self._action(view, "Fit to view", c.fit_all, "Ctrl+0")
+        self._action(view, "Actual size (100 %)", c.actual_size, "Ctrl+1", name="actual_size")
+        self._action(view, "Zoom to selection", c.zoom_to_selection, "Ctrl+2", name="zoom_to_selection")
+        fold = self._action(view, "Fold norm and activation into cards", c.set_fold, name="fold")
+        fold.setCheckable(True)
+        fold.setChecked(c.canvas_scene.fold)
         self._action(view, "Tidy", c.tidy, "Ctrl+L")
         view.addSeparator()
         view.addAction(self.shelf_dock.toggleViewAction())
@@ -171,6 +183,9 @@ class MainWindow(QMainWindow):
                      name="baseline_from_file")
         self._action(design, "Clear baseline", self.depth_ledger.clear_baseline, name="clear_baseline")
         self._action(design, "Export ledger as CSV…", lambda: self.depth_ledger.export_csv(), name="export_csv")
+        design.addSeparator()
+        self._action(design, "Measure on this machine…", lambda: open_measure(self), name="measure")
+        self._action(design, "Fit to budget…", lambda: open_fit(self), name="fit_to_budget")
         self.shelf_dock.toggleViewAction().setText("Shelf (Parts, Findings)")
 
     def _fill_recent(self) -> None:
@@ -247,12 +262,24 @@ class MainWindow(QMainWindow):
         self.findings_button.setFlat(True)
         self.findings_button.setCursor(Qt.CursorShape.PointingHandCursor)
         self.findings_button.clicked.connect(self.show_findings)
+        self.zoom_label = QLabel()
+        self.zoom_label.setObjectName("zoom")
+        self.zoom_label.setMinimumWidth(self.zoom_label.fontMetrics().horizontalAdvance("4000 %"))
+        self.canvas.zoom_changed.connect(lambda z: self.zoom_label.setText(f"{z * 100:.0f} %"))
+        bar.addPermanentWidget(self.zoom_label)
         bar.addPermanentWidget(self.totals_label)
         bar.addPermanentWidget(self.findings_button)
 
     def _on_change(self, change) -> None:
         if change.reinfers:
             self._refresh_totals()
+        if "name" in change.fields:
+            self._refresh_title()
+
+    def _settings_wanted(self) -> None:
+        """Enter on a selected block: the keys go to its first setting in Block settings."""
+        self.settings_dock.show()
+        self.block_settings.focus_first()
 
     def _refresh_totals(self) -> None:
         design = self.document.design

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 from PySide6.QtGui import QColor, QFont
 
+from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH
+
 # ----- colours
 CANVAS = QColor("#f4f5f2")  # the canvas behind everything
 GRID_MINOR = QColor("#edeeea")
@@ -58,8 +60,6 @@ def badge_font() -> QFont:
 
 
 # ----- block card metrics (scene pixels)
-CARD_WIDTH = 158.0
-CARD_HEIGHT = 54.0
 CARD_RADIUS = 5.0
 NOTCH_DEPTH = 6.0  # how far a port notch cuts into the card
 NOTCH_HALF = 6.0  # half the notch's height along the edge
@@ -83,3 +83,5 @@ TEXT_MIN_DETAIL = 0.3  # below this zoom level text is not drawn
 SHAPE_MIN_DETAIL = 0.08  # below this, cards are plain rectangles and wires hairlines
 ZOOM_MIN, ZOOM_MAX = 0.04, 4.0
 READABLE_ZOOM = 0.6  # a design opens at no smaller zoom than this (Fit to view may go further)
+READABLE_PX = 9.6  # the least on-screen text size (pixels, em) a card keeps far out: below, it
+#                    draws only its name and output shape that large; the view adds stage summaries

@@ -67,6 +67,7 @@ class Multiply(Join):
     """Element-wise product; a C×1×1 input broadcasts over H×W (a squeeze-and-excite gate)."""
 
     name, title = "Multiply", "Multiply (gate)"
+    keeps = ("inputs",)
     stem = "gate"
     settings = ()
 
