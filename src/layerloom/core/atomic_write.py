@@ -9,14 +9,13 @@ new text. Beyond that it keeps what a user expects of "save":
 - the temporary file's name is short (``.ll-<key>-<pid>-<random>.tmp``), so a file whose own name
   is near the 255-byte limit can still be saved;
 - a temporary file left by a save that was killed (its process is gone) is removed by the next save
-  of the same file; ``<key>`` is a short hash of the target's name that ties the two.
+  of the same file; ``<key>`` is a checksum (CRC-32) of the target's name that ties the two.
 """
 from __future__ import annotations
 
-import hashlib
 import os
-import secrets
 import time
+import zlib
 from pathlib import Path
 
 PREFIX, SUFFIX = ".ll-", ".tmp"
@@ -31,7 +30,7 @@ def write_atomically(path: str | os.PathLike, data: bytes) -> None:
     mode = _mode_for(target)
     key = _key(target.name)
     _remove_stale(folder, key)
-    tmp = folder / f"{PREFIX}{key}-{os.getpid()}-{secrets.token_hex(3)}{SUFFIX}"
+    tmp = folder / f"{PREFIX}{key}-{os.getpid()}-{os.urandom(3).hex()}{SUFFIX}"
     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
     try:
         try:
@@ -63,7 +62,7 @@ def _mode_for(target: Path) -> int:
 
 
 def _key(name: str) -> str:
-    return hashlib.blake2s(os.fsencode(name), digest_size=4).hexdigest()
+    return f"{zlib.crc32(os.fsencode(name)):08x}"
 
 
 def _remove_stale(folder: Path, key: str) -> None:
