@@ -3,6 +3,7 @@ broken file, closing with unsaved changes, recent files, export, window layout k
 
 Questions to the user go through a scripted stand-in for :class:`layerloom.gui.files.Prompts`.
 """
+import os
 import shutil
 from pathlib import Path
 
@@ -270,4 +271,17 @@ def test_a_save_that_cannot_encode_the_text_says_so_and_keeps_the_design(qtbot, 
     assert copy.read_bytes() == saved_copy  # the earlier recovery copy survives
     window.document.design.notes = ""
     window.document.undo_stack.setClean()
+    window.close()
+
+
+def test_a_file_with_a_251_byte_name_saves_and_gets_a_recovery_copy(qtbot, tmp_path):
+    target = tmp_path / ("n" * 246 + ".loom")
+    shutil.copyfile(SAMPLES / "fastener_sorter.loom", target)
+    window, prompts = open_window(qtbot, tmp_path, [target])
+    add_conv(window)
+    copy = window.files.autosave()
+    assert copy is not None and copy.exists() and copy.parent == target.parent
+    assert len(os.fsencode(copy.name)) <= 255
+    assert window.files.save() and not copy.exists()  # a normal save removes the copy
+    assert len(fileformat.load(target).blocks) == len(window.document.design.blocks)
     window.close()

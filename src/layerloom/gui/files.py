@@ -12,6 +12,8 @@ Every question to the user goes through :class:`Prompts`, which tests replace.
 """
 from __future__ import annotations
 
+import os
+import zlib
 from pathlib import Path
 
 from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
@@ -24,6 +26,7 @@ from layerloom.gui.document import Document
 
 AUTOSAVE_MS = 60_000
 AUTOSAVE_SUFFIX = ".autosave"
+NAME_MAX = 255  # bytes in a file name on common file systems
 UNSAVED_NAME = "unsaved.loom"
 RECENT_KEY, RECENT_LIMIT = "files/recent", 8
 DESIGN_FILTER = "Layerloom designs (*.loom)"
@@ -104,10 +107,15 @@ class FileKeeper(QObject):
         return path.name if path is not None else f"{self.document.design.name} (not saved)"
 
     def autosave_path(self) -> Path:
+        """``NAME.loom.autosave`` beside the file; for a name near the 255-byte limit, its first
+        200 bytes and a checksum of the whole name instead of NAME.loom."""
         path = self.document.path
         if path is None:
             return self.scratch_dir / (UNSAVED_NAME + AUTOSAVE_SUFFIX)
-        return path.with_name(path.name + AUTOSAVE_SUFFIX)
+        name = os.fsencode(path.name)
+        if len(name) + len(AUTOSAVE_SUFFIX) > NAME_MAX:
+            name = name[:200] + f"~{zlib.crc32(name):08x}".encode()
+        return path.with_name(os.fsdecode(name) + AUTOSAVE_SUFFIX)
 
     # ----- autosave and recovery
     def autosave(self) -> Path | None:
