@@ -20,7 +20,7 @@ import re
 from layerloom.core import edits
 from layerloom.core.graph import Wire
 from layerloom.core.settings import SettingError
-from layerloom.core.values import POSITION_LIMIT, bad_value, label, quote
+from layerloom.core.values import POSITION_LIMIT, JsonReader, bad_value, label, quote
 
 FORMAT, VERSION = "layerloom-blocks", 1
 
@@ -46,14 +46,15 @@ def to_text(data: dict) -> str:
 def from_text(text: str) -> dict:
     """Parse clipboard text; raises :class:`ClipboardError` unless it holds copied blocks."""
     try:
-        data = json.loads(text)
+        reader = JsonReader()
+        data = reader.loads(text)
     except (json.JSONDecodeError, RecursionError) as e:
         raise ClipboardError(f"the clipboard does not hold Layerloom blocks (not JSON: {e})") from None
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ClipboardError("the clipboard does not hold Layerloom blocks")
     if data.get("version") != VERSION:
         raise ClipboardError(f"copied blocks of version {data.get('version')!r} cannot be pasted (this reads {VERSION})")
-    bad = bad_value(data, text)
+    bad = bad_value(data) if reader.suspect(text) else None
     if bad is not None:
         raise ClipboardError(f"copied blocks: {'.'.join(map(str, bad[0]))}: {bad[1]}")
     return data

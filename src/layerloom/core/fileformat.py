@@ -20,7 +20,7 @@ from layerloom.core.measurement import Measurement
 from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
-from layerloom.core.values import POSITION_LIMIT, bad_value, label, quote
+from layerloom.core.values import POSITION_LIMIT, JsonReader, bad_value, label, quote
 from layerloom.core.layout import tidy_positions
 
 FORMAT, VERSION = "layerloom-design", 1
@@ -37,14 +37,15 @@ def _reject_constant(name: str):
 def parse(text: str, source: str = "<text>") -> Design:
     """Build a :class:`Design` from the text of a ``.loom`` file."""
     try:
-        data = json.loads(text, parse_constant=_reject_constant)
+        reader = JsonReader()
+        data = reader.loads(text, parse_constant=_reject_constant)
     except json.JSONDecodeError as e:
         raise LoomFileError(f"{source}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
     except (ValueError, RecursionError) as e:
         raise LoomFileError(f"{source}: not a design file: {e}") from None
     if not isinstance(data, dict):
         raise LoomFileError(f"{source}: a design file holds a JSON object, not {type(data).__name__}")
-    bad = bad_value(data, text)
+    bad = bad_value(data) if reader.suspect(text) else None
     if bad is not None:
         raise LoomFileError(f"{source}: {_place(data, bad[0])}: {bad[1]}")
     if data.get("format") != FORMAT:
@@ -63,6 +64,8 @@ def parse(text: str, source: str = "<text>") -> Design:
         return _build(data)
     except (SettingError, edits.EditError, ValueError, KeyError) as e:
         raise LoomFileError(f"{source}: {e}") from None
+    except OverflowError:  # a whole number too large for a float where one is needed
+        raise LoomFileError(f"{source}: a number is too large to count with") from None
 
 
 def load(path: str | os.PathLike) -> Design:

@@ -2,28 +2,26 @@
 
 - Text must be valid Unicode: a lone surrogate (``"\\ud800"`` in JSON) cannot be printed or
   saved as UTF-8, so it is refused where it enters (:func:`check_text`, :func:`bad_value`).
-- Numbers in a file must be finite (``1e400`` reads as infinity, which a file cannot hold) and
-  small enough to print: integers of at most :data:`MAX_DIGITS` digits.
+- Numbers in a file must be finite (``1e400`` reads as infinity, which a file cannot hold);
+  positions lie within :data:`POSITION_LIMIT`. (Integers of over 4,300 digits Python's reader
+  refuses itself.)
 - :func:`quote` shows a value in a one-line message: quoted, control characters escaped, shortened
   to :data:`QUOTE_LIMIT` characters.
 """
 from __future__ import annotations
 
+import json
 import math
 import re
 from typing import Any
 
-MAX_DIGITS = 1000
-"""Most decimal digits of a whole number in a design file (far beyond any count a design makes)."""
 POSITION_LIMIT = 1e9
 """Farthest a block may lie from the canvas origin, in scene units."""
 QUOTE_LIMIT = 60
 """Most characters of a value quoted in a message."""
 
 _SURROGATE = re.compile("[\ud800-\udfff]")
-# text that may hold a lone surrogate escape, an overflowing float or a huge integer: only then
-# is the parsed data walked value by value
-_SUSPECT = re.compile(r"\\u[dD][89a-fA-F]|[eE][+]?\d{3}|\d{300}")
+_SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F]")  # how a lone surrogate is written in JSON
 
 
 def check_text(value: str, what: str) -> str:
@@ -35,11 +33,29 @@ def check_text(value: str, what: str) -> str:
     return value
 
 
-def bad_value(data: Any, text: str | None = None) -> tuple[list, str] | None:
-    """The first value of parsed JSON ``data`` a design file may not hold, as (path, reason), or
-    None. With ``text`` (the JSON source), a quick look at it skips the walk when nothing can be wrong."""
-    if text is not None and not _SUSPECT.search(text):
-        return None
+class JsonReader:
+    """``json.loads`` that notes whether any number read as infinity (``1e400``), so that the
+    walk of :func:`bad_value` runs only when the text may hold something to refuse."""
+
+    def __init__(self):
+        self.infinite = False
+
+    def _float(self, text: str) -> float:
+        value = float(text)
+        if value in (math.inf, -math.inf):
+            self.infinite = True
+        return value
+
+    def loads(self, text: str, **options):
+        return json.loads(text, parse_float=self._float, **options)
+
+    def suspect(self, text: str) -> bool:
+        """True when the text just read may hold an infinite number or a lone surrogate."""
+        return self.infinite or ("\\u" in text and _SURROGATE_ESCAPE.search(text) is not None)
+
+
+def bad_value(data: Any) -> tuple[list, str] | None:
+    """The first value of parsed JSON ``data`` a design file may not hold, as (path, reason), or None."""
     stack: list[tuple[list, Any]] = [([], data)]
     while stack:
         path, node = stack.pop()
@@ -53,11 +69,8 @@ def bad_value(data: Any, text: str | None = None) -> tuple[list, str] | None:
         elif isinstance(node, str):
             if _SURROGATE.search(node):
                 return path, f"{quote(node)} is not valid text (it holds a lone surrogate)"
-        elif isinstance(node, float):
-            if not math.isfinite(node):
-                return path, "the number is too large (it reads as infinity)"
-        elif isinstance(node, int) and not isinstance(node, bool) and node.bit_length() > MAX_DIGITS * 3.33:
-            return path, f"the number is too large (more than {MAX_DIGITS} digits)"
+        elif isinstance(node, float) and not math.isfinite(node):
+            return path, "the number is too large (it reads as infinity)"
     return None
 
 
