@@ -14,6 +14,7 @@ import numpy as np
 from layerloom.core import units
 from layerloom.core.units import ratio
 from layerloom.core.findings import NOTE, WARNING, Finding
+from layerloom.core.values import quote
 
 LIMITS = {
     "weights": "weights",
@@ -28,9 +29,9 @@ def check_budget(budget: dict) -> dict:
     clean = {}
     for key, value in budget.items():
         if key not in LIMITS:
-            raise ValueError(f"budget has no limit {key!r} (limits: {', '.join(LIMITS)})")
+            raise ValueError(f"budget has no limit {quote(key)} (limits: {', '.join(LIMITS)})")
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
-            raise ValueError(f"budget {key} must be a number above 0, not {value!r}")
+            raise ValueError(f"budget {key} must be a number above 0, not {quote(value)}")
         try:
             clean[key] = float(value) if key == "latency_ms" else int(value)
         except OverflowError:

@@ -53,7 +53,7 @@ def from_text(text: str) -> dict:
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ClipboardError("the clipboard does not hold Layerloom blocks")
     if data.get("version") != VERSION:
-        raise ClipboardError(f"copied blocks of version {data.get('version')!r} cannot be pasted (this reads {VERSION})")
+        raise ClipboardError(f"copied blocks of version {quote(data.get('version'))} cannot be pasted (this reads {VERSION})")
     bad = bad_value(data) if reader.suspect(text) else None
     if bad is not None:
         raise ClipboardError(f"copied blocks: {'.'.join(map(str, bad[0]))}: {bad[1]}")
@@ -87,7 +87,7 @@ def paste_edit(design, data: dict, offset=(40.0, 40.0), graph: str = "") -> tupl
             raise ClipboardError(f"{where} ({label(name)}): position {quote([x, y])} lies beyond "
                                  f"±{POSITION_LIMIT:g} on the canvas")
         if old_id in fresh:
-            raise ClipboardError(f"{where} ({name}): id {old_id!r} appears twice")
+            raise ClipboardError(f"{where} ({name}): id {quote(old_id)} appears twice")
         if not name or name in taken:
             name = g.fresh_name(_stem(name), taken)
         taken.add(name)
@@ -102,6 +102,6 @@ def paste_edit(design, data: dict, offset=(40.0, 40.0), graph: str = "") -> tupl
             src, sp, dst, dp = w
             ops.append(edits.AddWire(graph, Wire(fresh[str(src)], int(sp), fresh[str(dst)], int(dp))))
         except (KeyError, TypeError, ValueError):
-            raise ClipboardError(f"copied wire {i + 1} ({w!r}) does not join two copied blocks") from None
+            raise ClipboardError(f"copied wire {i + 1} ({quote(w)}) does not join two copied blocks") from None
     count = len(fresh)
     return edits.Edit(f"Paste {count} block{'s' if count != 1 else ''}", tuple(ops)), list(fresh.values())

@@ -163,7 +163,7 @@ def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
         if isinstance(value, dict):
             ref = value.get("param")
             if not graph or ref not in params or len(value) != 1:
-                where = f"motif {graph!r}" if graph else "the design (parameters exist only inside motifs)"
+                where = f"motif {quote(graph)}" if graph else "the design (parameters exist only inside motifs)"
                 raise SettingError(f"{quote(key)}: {quote(value)} refers to no parameter of {where}")
             refs[key] = value
             plain[key] = params[ref]
@@ -190,7 +190,7 @@ def add_block(design, kind: str, settings: dict | None = None, *, name: str | No
 def connect(g: Graph, wire: Wire) -> Edit:
     for bid in (wire.src, wire.dst):
         if bid not in g.blocks:
-            raise EditError(f"cannot wire: there is no block {bid!r}")
+            raise EditError(f"cannot wire: there is no block {quote(bid)}")
     if wire in g.wires:
         raise EditError(f"{g.blocks[wire.src].name} is already wired to {g.blocks[wire.dst].name}")
     return Edit("Wire", (AddWire(g.key, wire),))
@@ -321,7 +321,7 @@ def replace_wire(g: Graph, wire: Wire) -> Edit:
     """An edit that wires ``wire`` into its input port, taking away the wire that held the port."""
     for bid in (wire.src, wire.dst):
         if bid not in g.blocks:
-            raise EditError(f"cannot wire: there is no block {bid!r}")
+            raise EditError(f"cannot wire: there is no block {quote(bid)}")
     if wire in g.wires:
         raise EditError(f"{g.blocks[wire.src].name} is already wired to {g.blocks[wire.dst].name}")
     old = [w for w in g.in_wires[wire.dst] if w.dst_port == wire.dst_port]

@@ -9,6 +9,7 @@ from __future__ import annotations
 from typing import Any, NamedTuple
 
 from layerloom.core.kinds import KINDS
+from layerloom.core.values import quote
 
 
 class Wire(NamedTuple):
@@ -61,7 +62,7 @@ class Graph:
             for candidate in self.blocks.values():
                 if candidate.name == ref:
                     return candidate
-            raise KeyError(f"no block with id or name {ref!r}")
+            raise KeyError(f"no block with id or name {quote(ref)}")
         return b
 
     def of_kind(self, kind: str) -> list[Block]:
@@ -90,7 +91,7 @@ class Graph:
     # ----- primitive changes (called by edits only)
     def _insert_block(self, block: Block, index: int | None = None) -> None:
         if block.id in self.blocks:
-            raise ValueError(f"block id {block.id!r} is already used")
+            raise ValueError(f"block id {quote(block.id)} is already used")
         if index is None or index >= len(self.blocks):
             self.blocks[block.id] = block
         else:
@@ -105,7 +106,7 @@ class Graph:
 
     def _delete_block(self, block_id: str) -> Block:
         if self.in_wires[block_id] or self.out_wires[block_id]:
-            raise ValueError(f"block {block_id!r} still has wires")
+            raise ValueError(f"block {quote(block_id)} still has wires")
         del self.in_wires[block_id], self.out_wires[block_id]
         block = self.blocks.pop(block_id)
         self._name_removed(block.name)
@@ -146,7 +147,7 @@ class Graph:
     def _insert_wire(self, wire: Wire) -> None:
         if wire.src not in self.blocks or wire.dst not in self.blocks:
             missing = wire.src if wire.src not in self.blocks else wire.dst
-            raise ValueError(f"wire names block {missing!r}, which does not exist")
+            raise ValueError(f"wire names block {quote(missing)}, which does not exist")
         if wire in self.wires:
             raise ValueError(f"that wire already exists: {wire}")
         self.wires[wire] = None

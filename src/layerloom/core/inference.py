@@ -30,6 +30,7 @@ from layerloom.core.kinds import KINDS, Cost
 from layerloom.core.liveness import Plan, live_profile
 from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
+from layerloom.core.values import quote
 
 ONE = (1.0, 1.0)
 MAX_ELEMENTS = 1 << 64
@@ -357,11 +358,11 @@ class GraphInference:
         name = blk.settings["motif"]
         motif = self.analysis.design.motifs.get(name)
         if motif is None:
-            raise Stop("motif.missing", f"{blk.name} uses motif {name!r}, which this design does not define")
+            raise Stop("motif.missing", f"{blk.name} uses motif {quote(name)}, which this design does not define")
         if name in self.stack:
-            raise Stop("motif.recursive", f"motif {name!r} contains itself (through {' › '.join(self.stack)})")
+            raise Stop("motif.recursive", f"motif {quote(name)} contains itself (through {' › '.join(self.stack)})")
         if len(self.stack) >= MAX_NESTING:
-            raise Stop("motif.too_deep", f"{blk.name} uses motif {name!r} {len(self.stack) + 1} motifs deep; "
+            raise Stop("motif.too_deep", f"{blk.name} uses motif {quote(name)} {len(self.stack) + 1} motifs deep; "
                        f"motifs nest at most {MAX_NESTING} deep", numbers=(len(self.stack) + 1, MAX_NESTING))
         return motif
 
@@ -369,7 +370,7 @@ class GraphInference:
         params = {**motif.params, **{k: v for k, v in s.items() if k not in ("motif", "repeat")}}
         unknown = params.keys() - motif.params.keys()
         if unknown:
-            raise Stop("motif.param", f"{blk.name} sets {', '.join(sorted(unknown))}, which motif {motif.name!r} "
+            raise Stop("motif.param", f"{blk.name} sets {', '.join(sorted(unknown))}, which motif {quote(motif.name)} "
                        f"does not have (it has: {', '.join(motif.params) or 'no parameters'})")
         run = self.analysis.motif_run(motif, ins, params, self.stack)
         found += [f.inside(blk.id, blk.name) for f in run.findings]
@@ -379,7 +380,7 @@ class GraphInference:
         if repeat > 1 and (len(ins) != 1 or len(run.outs) != 1 or run.outs[0] != ins[0]):
             came = ins[0] if len(ins) == 1 else f"{len(ins)} inputs"
             shown = run.outs[0] if len(run.outs) == 1 else f"{len(run.outs)} outputs"
-            raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {motif.name!r} ×{repeat}, but one use turns "
+            raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {quote(motif.name)} ×{repeat}, but one use turns "
                        f"{came} into {shown}, so the copies cannot be stacked; use repeat 1 for the shape-changing use",
                        numbers=(str(shown), str(came)))
         for _ in range(repeat):

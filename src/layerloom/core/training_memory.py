@@ -25,6 +25,7 @@ import numpy as np
 from layerloom.core import units
 from layerloom.core.inference import GraphInference
 from layerloom.core.kinds import KINDS
+from layerloom.core.values import quote
 
 OPTIMIZERS = {"sgd": 0, "sgd_momentum": 1, "adam": 2}
 """Optimizer → copies of the weights it keeps as state (common practice: SGD with momentum keeps one
@@ -193,7 +194,7 @@ def training_curve(ledger, optimizer: str = "sgd_momentum", mixed: bool = False)
 
 def _weight_bytes(ledger, optimizer: str, mixed: bool) -> int:
     if optimizer not in OPTIMIZERS:
-        raise ValueError(f"optimizer {optimizer!r} is not one of {', '.join(OPTIMIZERS)}")
+        raise ValueError(f"optimizer {quote(optimizer)} is not one of {', '.join(OPTIMIZERS)}")
     return MASTER_BYTES if mixed else ledger.bytes_per_element
 
 

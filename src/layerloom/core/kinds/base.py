@@ -22,6 +22,7 @@ from typing import Any, NamedTuple
 from layerloom.core.findings import Stop
 from layerloom.core.settings import Setting, SettingError
 from layerloom.core.shapes import Shape
+from layerloom.core.values import quote
 
 
 class Cost(NamedTuple):
@@ -116,7 +117,7 @@ class Kind:
         for key, value in settings.items():
             spec = self.settings_by_key.get(key)
             if spec is None:
-                raise SettingError(f"{self.name} has no setting {key!r} (it has: {', '.join(self.settings_by_key) or 'none'})")
+                raise SettingError(f"{self.name} has no setting {quote(key)} (it has: {', '.join(self.settings_by_key) or 'none'})")
             out[key] = spec.check(value)
         return out
 
