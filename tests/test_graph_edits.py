@@ -111,3 +111,20 @@ def test_quick_add_offers_motifs_and_ranks_prefix_then_word_start_then_substring
     assert ranked == ["pool_2", "pooled", "global_pool", "maxpool_1"]  # prefix, word start, substring
     assert match_rank("zz", [("conv",)]) is None
     assert choices("qqqq") == []
+
+
+@pytest.mark.parametrize("dtype, torch_dtype", [("fp32", "float32"), ("fp16", "float16"), ("bf16", "bfloat16"),
+                                                ("int8", "int8")])
+def test_design_fields_are_checked_edits_and_each_element_type_has_its_size(dtype, torch_dtype):
+    import torch
+
+    size = torch.empty(0, dtype=getattr(torch, torch_dtype)).element_size()  # PyTorch as the outside reference
+    d, x, c, b, r, o = chain()
+    inverse = d.apply(d.field_edit("dtype", dtype))
+    d.apply(d.field_edit("batch", 4))
+    assert d.ledger().out_memory[0] == 3 * 32 * 32 * 4 * size  # the input: 3·32·32 elements × batch 4
+    d.apply(inverse)
+    assert d.dtype == "fp32"
+    for name, bad, why in (("dtype", "fp8", "not one of"), ("batch", 0, "whole number"), ("name", " ", "needs a name")):
+        with pytest.raises(edits.EditError, match=why):
+            d.field_edit(name, bad)

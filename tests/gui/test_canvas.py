@@ -116,6 +116,8 @@ def test_drop_a_pointwise_and_wire_it_notch_to_notch(qtbot):
     view = open_view(qtbot)
     doc = view.document
     (inp,) = doc.design.blocks
+    assert doc.selection == [inp]  # a new design starts with its Input selected …
+    doc.select([])  # … here cleared, so the drop lands unwired
     drop_kind(view, "Pointwise", at(view, (420, 27)))
     assert [b.kind for b in doc.design.blocks.values()] == ["Input", "Pointwise"]
     pw = next(b.id for b in doc.design.blocks.values() if b.kind == "Pointwise")

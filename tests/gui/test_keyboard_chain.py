@@ -13,6 +13,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication
 
 from layerloom.core.graph import Wire
+from test_flows import shoot
 from test_window_files import open_window
 
 WORDS = (
@@ -58,7 +59,7 @@ class Keyboard:
 
 
 @pytest.mark.parametrize("script, expected_presses", [(WORDS, 60), (SHORTEST, 30)], ids=["words", "shortest"])
-def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, script, expected_presses):
+def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, request, script, expected_presses):
     window, _ = open_window(qtbot, tmp_path)
     window.resize(1280, 800)
     with qtbot.waitActive(window):
@@ -66,7 +67,7 @@ def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, sc
     doc, canvas = window.document, window.canvas
     d = doc.design
     assert [d.blocks[b].kind for b in doc.selection] == ["Input"]  # a new design starts with its Input selected
-    canvas.setFocus()
+    assert QApplication.focusWidget() is canvas  # and the keys are on the canvas: no click needed
     keys = Keyboard(qtbot)
     for step in script:
         keys.type(step)
@@ -94,3 +95,4 @@ def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, sc
     # the count reported in the closing note (before: about 60 actions, many of them with the mouse)
     print(f"\nkey presses for the 12-block residual network: {keys.presses}")
     assert keys.presses == expected_presses
+    shoot(window, f"keyboard_chain_{request.node.callspec.id}")

@@ -319,11 +319,8 @@ def remove_bridging(design, block_ids, graph: str = "") -> Edit:
 
 def replace_wire(g: Graph, wire: Wire) -> Edit:
     """An edit that wires ``wire`` into its input port, taking away the wire that held the port."""
-    for bid in (wire.src, wire.dst):
-        if bid not in g.blocks:
-            raise EditError(f"cannot wire: there is no block {quote(bid)}")
-    if wire in g.wires:
-        raise EditError(f"{g.blocks[wire.src].name} is already wired to {g.blocks[wire.dst].name}")
+    add = connect(g, wire)
     old = [w for w in g.in_wires[wire.dst] if w.dst_port == wire.dst_port]
-    label = f"Rewire {g.blocks[wire.dst].name}" if old else "Wire"
-    return Edit(label, tuple(RemoveWire(g.key, w) for w in old) + (AddWire(g.key, wire),))
+    if not old:
+        return add
+    return Edit(f"Rewire {g.blocks[wire.dst].name}", tuple(RemoveWire(g.key, w) for w in old) + add.ops)

@@ -295,6 +295,7 @@ class BlockSettings(QWidget):
             self.fields[spec.key] = field
             field.widget.installEventFilter(self)
             self.form.addRow("" if spec.type == "bool" else spec.label, field.host)
+            field.host.show()  # at once, not on the next pass of the event loop: Enter may focus it now
 
     def _clear_fields(self) -> None:
         # deleteLater: a field may be rebuilt from inside its own signal (choosing another motif)
@@ -375,8 +376,8 @@ class BlockSettings(QWidget):
                 return
             doc.apply(edit)
         except (SettingError, edits.EditError) as e:
-            field.say(f"{e} — kept {_value_or_param(old)}")
             field.show_value(old)
+            field.say(f"{e} — kept {_value_or_param(old)}")
             return
         field.say("")
 
@@ -425,12 +426,11 @@ class BlockSettings(QWidget):
     def focus_first(self) -> None:
         """Put the keys in the first setting of the selection (its name when it has none), text selected."""
         first = next((f.widget for f in self.fields.values() if isinstance(f.widget, QLineEdit)), None)
-        target = first if first is not None and first.isVisible() else self.name_edit
+        target = first if first is not None else self.name_edit
         if self.design_settings.isVisible():
             target = self.design_settings.name_edit
-        if target.isVisible():
-            target.setFocus(Qt.FocusReason.TabFocusReason)
-            target.selectAll()
+        target.setFocus(Qt.FocusReason.TabFocusReason)
+        target.selectAll()
 
     def eventFilter(self, obj, event) -> bool:
         """Enter commits a field (its own editing-finished does that) and Escape shows the block's

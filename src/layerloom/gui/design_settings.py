@@ -8,10 +8,12 @@ and the field shows the design's value again. Fields are set from the model with
 """
 from __future__ import annotations
 
+from math import prod
+
 from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QPlainTextEdit, QWidget
 
-from layerloom.core import edits
+from layerloom.core import edits, units
 from layerloom.core.design import DTYPES
 from layerloom.gui.document import Document
 
@@ -86,9 +88,15 @@ class DesignSettings(QWidget):
         ins = d.of_kind("Input")
         if not ins:
             return "none: add an Input block"
-        analysis = d.analysis()
-        lines = [f"{b.name}: {analysis.shape(b.id) or '?'}" for b in ins]
-        return "\n".join(lines) + f"\n(× batch {d.batch}, {d.dtype})"
+        analysis, lines = d.analysis(), []
+        for b in ins:
+            shape = analysis.shape(b.id)
+            if shape is None:
+                lines.append(f"{b.name}: shape unknown")
+                continue
+            memory = units.size(prod(shape) * d.batch * DTYPES[d.dtype])
+            lines.append(f"{b.name}: {shape} ({memory} for batch {d.batch} at {d.dtype})")
+        return "\n".join(lines)
 
     def _commit(self, name: str, value) -> None:
         d = self.document.design

@@ -11,10 +11,12 @@ from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QIcon, QKeySequence
-from PySide6.QtWidgets import QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QToolTip, QVBoxLayout,
+                               QWidget)
 
 from layerloom.core import units
 from layerloom.core.ledger import Ledger
+from layerloom.gui import theme
 from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
@@ -48,6 +50,7 @@ class MainWindow(QMainWindow):
         self.setObjectName("main_window")
         self.setWindowIcon(QIcon(str(resource(APP_ICON))))
         self.setStyleSheet(resource(STYLE_SHEET).read_text(encoding="utf-8"))
+        QToolTip.setPalette(theme.tooltip_palette())  # hover texts are windows of their own: no style sheet
         self.settings = settings if settings is not None else house_settings()
         self.document = Document(parent=self)
         self.prompts = prompts if prompts is not None else Prompts(self)
@@ -100,6 +103,8 @@ class MainWindow(QMainWindow):
         self.files.start(list(files))
         self._refresh_title()
         self._refresh_totals()
+        self.shelf.parts.remember_folds(self.settings)
+        self.canvas.setFocus()  # typing starts Quick add at once
 
     def _dock(self, title: str, name: str, widget, area) -> QDockWidget:
         dock = QDockWidget(title, self)
@@ -149,11 +154,14 @@ class MainWindow(QMainWindow):
         self._action(edit, "Copy", c.copy, Key.Copy)
         self._action(edit, "Paste", c.paste, Key.Paste)
         self._action(edit, "Duplicate", c.duplicate, "Ctrl+D")
-        self._action(edit, "Delete", c.delete_selection, Key.Delete)
+        self._action(edit, "Delete", lambda: c.delete_selection(bridge=True), Key.Delete)
+        self._action(edit, "Delete without bridging", lambda: c.delete_selection(bridge=False), "Shift+Del",
+                     name="delete_unbridged")
         self._action(edit, "Select all", c.select_all, Key.SelectAll)
         self._action(edit, "Rename block", c.rename_selected, "F2", name="rename")
         edit.addSeparator()
         self._action(edit, "Quick add…", lambda: c.quick_add(), "Ctrl+K", name="quick_add")
+        self._action(edit, "Wire into selection from…", c.wire_into_selection, "Ctrl+I", name="wire_into")
 
         motif = bar.addMenu("&Motif")
         self._action(motif, "Make motif…", lambda: c.make_motif(), "Ctrl+G", name="make_motif")

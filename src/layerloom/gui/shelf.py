@@ -268,6 +268,14 @@ class PartsPanel(QWidget):
         self.motif_group.set_tiles(motif_tiles(self.document.design))
         self.apply_filter(self.filter.text())
 
+    def remember_folds(self, settings) -> None:
+        """Fold the families folded last time (kept in ``settings``) and keep each change."""
+        folded = set(settings.value("parts/folded", [], type=list) or [])
+        for group in (*self.groups, self.motif_group):
+            group.heading.setChecked(group.family not in folded)
+            group.heading.toggled.connect(lambda _on: settings.setValue(
+                "parts/folded", [g.family for g in (*self.groups, self.motif_group) if g.folded]))
+
     def apply_filter(self, text: str) -> None:
         shown = sum(g.show_matching(text) for g in (*self.groups, self.motif_group))
         self.empty.setVisible(shown == 0)

@@ -6,7 +6,7 @@ Sizes are scene pixels unless a name says otherwise.
 """
 from __future__ import annotations
 
-from PySide6.QtGui import QColor, QFont
+from PySide6.QtGui import QColor, QFont, QPalette
 
 from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH
 
@@ -31,6 +31,16 @@ NOTE = QColor("#8a9199")
 BADGE_TEXT = QColor("#ffffff")
 
 SEVERITY_COLOURS = {"error": ERROR, "warning": WARNING, "note": NOTE}
+
+
+def tooltip_palette() -> QPalette:
+    """Hover texts: dark text on a card-white ground with the card edge colour around it."""
+    p = QPalette()
+    p.setColor(QPalette.ColorRole.ToolTipBase, CARD)
+    p.setColor(QPalette.ColorRole.ToolTipText, TEXT)
+    p.setColor(QPalette.ColorRole.Window, CARD)
+    p.setColor(QPalette.ColorRole.WindowText, TEXT)
+    return p
 
 
 def _font(point_size: float, weight: QFont.Weight = QFont.Weight.Normal, family: str = "") -> QFont:

@@ -16,13 +16,18 @@ def _add(menu: QMenu, text: str, slot, name: str, enabled: bool = True):
 
 
 def block_menu(view, block_id: str) -> QMenu:
-    """Rename, duplicate, delete (bridging or not), insert before and after, the mends of the block's
-    findings, and the motif commands."""
+    """The mends of the block's findings first, then rename, duplicate, insert before and after,
+    delete (bridging or not), and the motif commands that apply."""
     doc = view.document
     block = doc.graph.blocks[block_id]
     menu = QMenu(view)
     menu.setObjectName("block_menu")
     single = doc.selection == [block_id]
+    mends = [m for f in doc.findings_by_block().get(block_id, []) for m in view.canvas_scene.mends(f)]
+    for i, mend in enumerate(mends):  # first: a red card's menu opens on its fix
+        _add(menu, "Mend: " + mend.label, lambda m=mend: view.canvas_scene.apply_mend(m), f"mend_{i}")
+    if mends:
+        menu.addSeparator()
     _add(menu, f"Rename {block.name}…", lambda: view.rename_selected(), "rename", single)
     _add(menu, "Duplicate", view.duplicate, "duplicate")
     menu.addSeparator()
@@ -31,13 +36,8 @@ def block_menu(view, block_id: str) -> QMenu:
     menu.addSeparator()
     _add(menu, "Delete", lambda: view.delete_selection(bridge=True), "delete")
     _add(menu, "Delete without bridging", lambda: view.delete_selection(bridge=False), "delete_unbridged")
-    mends = [m for f in doc.findings_by_block().get(block_id, []) for m in view.canvas_scene.mends(f)]
-    if mends:
-        menu.addSeparator()
-        for i, mend in enumerate(mends):
-            _add(menu, "Mend: " + mend.label, lambda m=mend: view.canvas_scene.apply_mend(m), f"mend_{i}")
     menu.addSeparator()
-    return view.motif_menu(menu)
+    return view.motif_menu(menu, applicable_only=True)
 
 
 def wire_menu(view, wire) -> QMenu:
@@ -59,5 +59,5 @@ def canvas_menu(view, at) -> QMenu:
     _add(menu, "Tidy", view.tidy, "tidy", bool(view.document.graph.blocks))
     _add(menu, "Fit to view", view.fit_all, "fit")
     if len(view.document.trail) > 1:
-        _add(menu, "Back", view.document.back, "back")
+        _add(menu, "Back", lambda: view.document.back(), "back")
     return menu

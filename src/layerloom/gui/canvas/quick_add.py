@@ -4,7 +4,8 @@ What it lists comes from a ``provider(text) → [(label, value), …]``, best fi
 kinds and motifs, see :mod:`layerloom.core.quick_add_words`, or block names when wiring). Enter (or a
 click) picks the highlighted line and emits ``chosen(value)``; Escape closes. The list is as tall
 as its lines (up to :data:`ROWS`) and as wide as its longest line, so no text is cut, and the popup
-stays inside the view: beside the selected block when there is one, else at the cursor. It is a
+stays inside the view: beside the selected block when there is one (never over it), else at the
+cursor. It is a
 plain child widget of the canvas view, never an item in the scene.
 """
 from __future__ import annotations
@@ -65,8 +66,8 @@ class QuickAdd(QFrame):
         self._open(QRect(x, y, 0, 0), text)
 
     def open_beside(self, rect: QRect, text: str = "") -> None:
-        """Show to the right of view rectangle ``rect`` (a selected card), or to its left when there
-        is no room on the right; always inside the view."""
+        """Show to the right of view rectangle ``rect`` (a selected card); with no room there, below
+        it, else to its left; always inside the view."""
         self._open(rect, text)
 
     def _open(self, anchor: QRect, text: str) -> None:
@@ -82,9 +83,12 @@ class QuickAdd(QFrame):
     def _place(self) -> None:
         view = self.parentWidget().rect()
         a, w, h = self._anchor, self.width(), self.height()
-        if a.width():
-            x = a.right() + GAP if a.right() + GAP + w <= view.right() else a.left() - GAP - w
-            y = a.top()
+        if a.width() and a.right() + GAP + w <= view.right():  # to the right, level with the card
+            x, y = a.right() + GAP, a.top()
+        elif a.width() and a.bottom() + GAP + h <= view.bottom():  # below it, off the row it ends
+            x, y = a.right() - w, a.bottom() + GAP
+        elif a.width():
+            x, y = a.left() - GAP - w, a.top()
         else:
             x, y = a.x(), a.y()
         self.move(max(0, min(x, view.width() - w)), max(0, min(y, view.height() - h)))
@@ -111,7 +115,7 @@ class QuickAdd(QFrame):
         scrolls = n > ROWS
         bar = self.list.verticalScrollBar().sizeHint().width() if scrolls else 0
         widest = max((self.list.fontMetrics().horizontalAdvance(label) for label, _ in lines), default=0)
-        inner = max(widest + 16 + bar + frame, self.empty.sizeHint().width(), MIN_WIDTH - 8)
+        inner = max(widest + 16 + bar + frame, self.empty.sizeHint().width() + 12, MIN_WIDTH - 8)
         limit = max(self.parentWidget().width() - 16, MIN_WIDTH)
         self.setFixedWidth(min(inner + 8, limit))
         self.list.setFixedHeight(min(n, ROWS) * row + frame)

@@ -1,5 +1,5 @@
-"""Hover texts of the canvas: a block's kind, settings, shapes, costs and receptive field; a wire's
-shape, element count and memory at the design's element type.
+"""Hover texts of the canvas: a block's kind, settings, shapes, costs, receptive field and findings;
+a wire's shape, element count and memory at the design's element type.
 
 Figures are those of the graph shown (inside a motif: of the use the canvas shows). MACs are for
 the whole batch, as in Block settings; a wire's memory is batch × elements × bytes per element.
@@ -35,18 +35,19 @@ def block_tip(document, block_id: str, total_macs: int) -> str:
     if wires:
         lines.append("in: " + ", ".join(str(wire_shape(results, w) or "?") for w in wires))
     r = results.get(block_id)
+    found = [f"{f.severity}: {f.message}" for f in document.findings_by_block().get(block_id, [])]
     if r is None:
-        lines.append("out: unknown (see Findings)")
-        return "\n".join(lines)
+        lines.append("out: unknown")
+        return "\n".join(lines + found)
     if r.outs:
         lines.append("out: " + ", ".join(str(s) for s in r.outs))
     share = f" ({r.cost.macs / total_macs:.0%} of the network)" if total_macs and r.cost.macs else ""
-    lines.append(f"weights: {units.count(r.cost.weights)}   MACs: {units.count(r.cost.macs * design.batch)}"
-                 f"{share}, batch {design.batch}")
+    lines.append(f"weights: {units.count(r.cost.weights)}")
+    lines.append(f"MACs: {units.count(r.cost.macs * design.batch)}{share}, batch {design.batch}")
     lines.append(f"receptive field: {_pair(r.rf)} px, jump {_pair(r.jump)}")
     if block.kind == "Motif":
         lines.append("double-click to open the motif")
-    return "\n".join(lines)
+    return "\n".join(lines + found)
 
 
 def wire_shape(results: dict, wire: Wire):

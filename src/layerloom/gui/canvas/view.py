@@ -25,6 +25,8 @@ from layerloom.gui.canvas import stage_summary
 from layerloom.gui.canvas.block_item import H, W, BlockItem, summary_zoom
 from layerloom.gui.canvas.block_item import font as block_font
 from layerloom.gui.canvas import context_menus, tooltips
+from layerloom.gui.canvas.arrow_keys import neighbour
+from layerloom.gui.canvas.chips import ChipItem
 from layerloom.gui.canvas.name_editor import NameEditor
 from layerloom.gui.canvas.quick_add import QuickAdd
 from layerloom.gui.canvas.scene import CanvasScene
@@ -36,6 +38,7 @@ KIND_MIME = "application/x-layerloom-kind"
 MOTIF_MIME = "application/x-layerloom-motif"
 """Drag-and-drop type of a motif from Parts; the data is ``library:<key>`` or ``design:<name>`` in UTF-8."""
 
+ARROWS = {Qt.Key.Key_Left: "left", Qt.Key.Key_Right: "right", Qt.Key.Key_Up: "up", Qt.Key.Key_Down: "down"}
 PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down and right
 ZOOM_STEP = 1.25
 
@@ -342,13 +345,23 @@ class CanvasView(QGraphicsView):
         """The menu for what is under ``view_pos`` (a block is selected first, unless it already is)."""
         item = self._block_at(view_pos)
         if item is not None:
-            if item.block_id not in self.document.selection:
-                self.document.select([item.block_id])
-            return context_menus.block_menu(self, item.block_id)
+            bid = self._chip_at(view_pos) or item.block_id
+            if bid not in self.document.selection:
+                self.document.select([bid])
+            return context_menus.block_menu(self, bid)
         wire = self._wire_at(view_pos)
         if wire is not None:
             return context_menus.wire_menu(self, wire)
         return context_menus.canvas_menu(self, view_pos)
+
+    def _card_item(self, block_id: str) -> BlockItem:
+        """The card showing ``block_id`` (its own, or the card it is a chip of)."""
+        return self.canvas_scene.blocks[self.canvas_scene.card_of(block_id)]
+
+    def _chip_at(self, view_pos: QPoint) -> str | None:
+        """The block id of a chip under ``view_pos`` (a folded norm or activation), if any."""
+        item = self.itemAt(view_pos)
+        return item.block_id if isinstance(item, ChipItem) else None
 
     def _wire_at(self, view_pos: QPoint) -> Wire | None:
         """The wire under ``view_pos`` when no block is above it."""
@@ -377,19 +390,25 @@ class CanvasView(QGraphicsView):
             return items[0].toolTip()
         item = self._block_at(view_pos)
         if item is not None:
-            return tooltips.block_tip(self.document, item.block_id, self.canvas_scene.total_macs())
+            bid = self._chip_at(view_pos) or item.block_id
+            return tooltips.block_tip(self.document, bid, self.canvas_scene.total_macs())
         wire = self._wire_at(view_pos)
         return tooltips.wire_tip(self.document, wire) if wire is not None else ""
 
-    def motif_menu(self, menu: QMenu | None = None) -> QMenu:
-        """Make motif, Open motif, Expand and Back, each enabled when it applies (added to ``menu``)."""
+    def motif_menu(self, menu: QMenu | None = None, applicable_only: bool = False) -> QMenu:
+        """Make motif, Open motif, Expand and Back, each enabled when it applies (added to ``menu``;
+        with ``applicable_only``, only those that apply)."""
         menu = menu if menu is not None else QMenu(self)
         instance = self._selected_instance()
         for text, slot, enabled in (("Make motif…", self.make_motif, bool(self.document.selection)),
                                     ("Open motif", self.open_motif, instance is not None),
                                     ("Expand motif", self.expand_motif, instance is not None),
-                                    ("Back", self.document.back, len(self.document.trail) > 1)):
-            menu.addAction(text, slot).setEnabled(enabled)
+                                    ("Back", lambda: self.document.back(), len(self.document.trail) > 1)):
+            if applicable_only and not enabled:
+                continue
+            action = menu.addAction(text, slot)
+            action.setEnabled(enabled)
+            action.setObjectName("menu_" + text.lower().rstrip("…").replace(" ", "_"))
         return menu
 
     def _commit_moves(self) -> None:
@@ -448,6 +467,8 @@ class CanvasView(QGraphicsView):
             self.settings_wanted.emit()
         elif key == Qt.Key.Key_I and mods & Qt.KeyboardModifier.ControlModifier:
             self.wire_into_selection()
+        elif key in ARROWS and not mods & ~Qt.KeyboardModifier.KeypadModifier and self.document.graph.blocks:
+            self.step_selection(ARROWS[key])
         elif key == Qt.Key.Key_F2:
             self.rename_selected()
         elif key == Qt.Key.Key_Space and not event.isAutoRepeat():
@@ -595,9 +616,8 @@ class CanvasView(QGraphicsView):
         if not self.canvas_scene.apply(edit):
             return None
         self.document.select([bid])
-        item = self.canvas_scene.blocks.get(bid)
-        if item is not None:
-            self.ensureVisible(item.sceneBoundingRect(), 60, 40)
+        if bid in self.canvas_scene.blocks:
+            self.ensureVisible(self._card_item(bid).sceneBoundingRect(), 60, 40)
         self._refocus()
         return bid
 
@@ -629,11 +649,12 @@ class CanvasView(QGraphicsView):
         picked = self.document.selection
         sel = picked if len(picked) == 1 and at is None and wire is None and source is None else None
         if wire is not None:
-            mid = self.canvas_scene.wires[wire]._path.pointAtPercent(0.5)
+            mid = self._wire_middle(wire)
             self._quick_spot = mid
             self._quick.open_at(self.mapFromScene(mid).x() + 12, self.mapFromScene(mid).y() + 12, text)
         elif sel is not None:
-            card = self.canvas_scene.blocks[sel[0]]
+            card = self._card_item(sel[0])
+            self.ensureVisible(card.sceneBoundingRect(), 60, 40)  # scrolled away: bring it back first
             self._quick_spot = card.pos() + QPointF(COLUMN + W / 2, H / 2)
             self._quick.open_beside(self.mapFromScene(card.sceneBoundingRect()).boundingRect(), text)
         else:
@@ -643,6 +664,14 @@ class CanvasView(QGraphicsView):
                     at = self.viewport().rect().center()
             self._quick_spot = self.mapToScene(at)
             self._quick.open_at(at.x(), at.y(), text)
+
+    def _wire_middle(self, wire: Wire) -> QPointF:
+        """The middle of a wire as drawn (a wire inside a folded card: between its two ends)."""
+        item = self.canvas_scene.wires.get(wire)
+        if item is not None:
+            return item._path.pointAtPercent(0.5)
+        a, b = self._card_item(wire.src), self._card_item(wire.dst)
+        return (a.sceneBoundingRect().center() + b.sceneBoundingRect().center()) / 2
 
     def _quick_chosen(self, choice) -> None:
         source, wire, into = self._quick_source, self._quick_wire, self._quick_into
@@ -660,7 +689,7 @@ class CanvasView(QGraphicsView):
         if wires:
             self.quick_add(wire=wires[0])
             return
-        card = self.canvas_scene.blocks[block_id]
+        card = self._card_item(block_id)
         spot = card.pos() + QPointF((-COLUMN if before else COLUMN) + W / 2, H / 2)
         self.quick_add(at=self.mapFromScene(card.pos()), source=None if before else (block_id, 0),
                        into=block_id if before else None)
@@ -668,10 +697,19 @@ class CanvasView(QGraphicsView):
 
     # ----- wiring from the keyboard
     def _source_lines(self, text: str) -> list:
-        """Blocks of the graph shown with an output, other than the selected one, best match first."""
+        """Blocks that can feed the selected one (an output, and not downstream of it: no loops),
+        best match first, each with the shape it gives."""
         graph, target = self.document.graph, self._wire_target()
-        blocks = [b for b in graph.blocks.values() if b.id != target and self.canvas_scene.blocks[b.id].state.n_out]
-        return [(b.name, b.id) for b in (rank(text, blocks, lambda b: ((b.name,),)) if text.strip() else blocks)]
+        downstream, todo = {target}, [target]
+        while todo:
+            for w in graph.out_wires.get(todo.pop(), ()):
+                if w.dst not in downstream:
+                    downstream.add(w.dst)
+                    todo.append(w.dst)
+        items = self.canvas_scene.blocks
+        blocks = [b for b in graph.blocks.values() if b.id not in downstream and items[b.id].state.n_out]
+        shown = rank(text, blocks, lambda b: ((b.name,),)) if text.strip() else blocks
+        return [(f"{b.name}   · {items[b.id].state.shape or items[b.id].state.detail}", b.id) for b in shown]
 
     def _wire_target(self) -> str | None:
         sel = self.document.selection
@@ -684,7 +722,7 @@ class CanvasView(QGraphicsView):
         if target is None or not self.canvas_scene.blocks[target].state.n_in:
             self.message.emit("select one block that takes an input, then Ctrl+I to wire into it")
             return
-        card = self.canvas_scene.blocks[target]
+        card = self._card_item(target)
         self._wire_pick.open_beside(self.mapFromScene(card.sceneBoundingRect()).boundingRect())
 
     def _wire_from(self, source: str) -> None:
@@ -703,6 +741,20 @@ class CanvasView(QGraphicsView):
         self._refocus()
 
     # ----- selection and edits
+    def step_selection(self, direction: str) -> None:
+        """Select the nearest block in ``direction`` (``left``, ``right``, ``up``, ``down``) from the one
+        selected, and bring it into view; with none selected, the first block."""
+        scene = self.canvas_scene
+        sel = [b for b in self.document.selection if b in scene.blocks]
+        if len(sel) != 1:
+            target = next(iter(self.document.graph.blocks))
+        else:  # from card to card; a chip moves as its card
+            centres = {bid: (i.pos().x(), i.pos().y()) for bid, i in scene.cards()}
+            target = neighbour(centres, scene.card_of(sel[0]), direction)
+        if target is not None:
+            self.document.select([target])
+            self.ensureVisible(self._card_item(target).sceneBoundingRect(), 60, 40)
+
     def select_all(self) -> None:
         self.document.select(list(self.document.graph.blocks))
 
@@ -710,7 +762,7 @@ class CanvasView(QGraphicsView):
         """Delete the selected blocks (with their wires) and the selected wires, as one edit. With
         ``bridge``, what fed a removed one-in, one-out block is wired on to what it fed."""
         design = self.document.graph
-        ids = [i.block_id for i in self.canvas_scene.selectedItems() if isinstance(i, BlockItem)]
+        ids = [b for b in self.document.selection if b in design.blocks]  # cards and chips
         gone = set(ids)
         wires = [i.wire for i in self.canvas_scene.selectedItems()
                  if isinstance(i, WireItem) and i.wire.src not in gone and i.wire.dst not in gone]
@@ -795,9 +847,11 @@ class CanvasView(QGraphicsView):
         if len(sel) == 1 and sel[0] in self.canvas_scene.blocks:
             self._start_rename(self.canvas_scene.blocks[sel[0]])
 
-    def _start_rename(self, item: BlockItem) -> None:
+    def _start_rename(self, item) -> None:
+        """Edit the name in place: over a card's title, or over a chip."""
         self.ensureVisible(item.sceneBoundingRect(), 20, 20)
-        rect = self.mapFromScene(item.mapToScene(item.title_rect())).boundingRect()
+        local = item.title_rect() if isinstance(item, BlockItem) else item.boundingRect()
+        rect = self.mapFromScene(item.mapToScene(local)).boundingRect()
         rect.setHeight(max(rect.height(), self._names.sizeHint().height()))
         rect.setWidth(max(rect.width(), 120))
         font = QFont(block_font("title"))
