@@ -12,8 +12,8 @@ import math
 import numpy as np
 
 from layerloom.core import units
-from layerloom.core.units import ratio
 from layerloom.core.findings import NOTE, WARNING, Finding
+from layerloom.core.units import ratio
 from layerloom.core.values import quote
 
 LIMITS = {
