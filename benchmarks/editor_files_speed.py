@@ -3,7 +3,8 @@
 Open: in a shown window, File ▸ Open of a tidied 2,000-block file (reading, checking and building
 the design, the full pass, the canvas, Block settings, Depth ledger and Findings) until the window
 has painted once. Save: File ▸ Save of the same design after one edit (writing and flushing the
-file included). Targets (PRODUCT.md, issue 13): open ≤ 0.5 s, save ≤ 50 ms. Also prints the
+file included). Wall time on a shared machine includes waiting for a core, so the process's CPU
+time is printed too. Targets (PRODUCT.md, issue 13): open ≤ 0.5 s, save ≤ 50 ms. Also prints the
 yardstick of benchmarks/core_speed.py, as figures on a shared machine are noisy.
 
 Run: QT_QPA_PLATFORM=offscreen PYTHONPATH=src:benchmarks python benchmarks/editor_files_speed.py
@@ -42,22 +43,24 @@ def main() -> None:
         window = MainWindow(settings=settings, scratch_dir=folder)
         window.show()
         app.processEvents()
-        opens, saves = [], []
+        opens, open_cpu, saves, save_cpu = [], [], [], []
         for _ in range(RUNS):
-            t = time.perf_counter()
+            t, c = time.perf_counter(), time.process_time()
             window.files.open_path(path, ask=False)
             app.processEvents()  # the first paint of what was opened
             opens.append(time.perf_counter() - t)
+            open_cpu.append(time.process_time() - c)
             conv = window.document.design.of_kind("Conv2d")[1]
             window.document.apply(edits.set_settings(window.document.design, conv.id, {"out_channels": 24}))
-            t = time.perf_counter()
+            t, c = time.perf_counter(), time.process_time()
             window.files.save()
             saves.append(time.perf_counter() - t)
+            save_cpu.append(time.process_time() - c)
         print(f"{len(window.document.design.blocks)} blocks, file {path.stat().st_size // 1024} KiB")
         print(f"  open to first paint: median {statistics.median(opens):.3f} s, best {min(opens):.3f} s "
-              f"(target ≤ 0.5 s)")
+              f"(target ≤ 0.5 s); CPU time median {statistics.median(open_cpu):.3f} s")
         print(f"  save: median {statistics.median(saves) * 1000:.1f} ms, best {min(saves) * 1000:.1f} ms "
-              f"(target ≤ 50 ms)")
+              f"(target ≤ 50 ms); CPU time median {statistics.median(save_cpu) * 1000:.1f} ms")
         window.document.undo_stack.setClean()
         window.close()
 

@@ -12,7 +12,6 @@ import sys
 
 from layerloom.core import units
 from layerloom.core.fileformat import save
-from layerloom.core.ledger import Ledger
 from layerloom.core.shapes import parse_shape
 
 ONNX_MISSING = "needs the onnx and onnxruntime packages: pip install 'layerloom[onnx]'"
@@ -32,6 +31,7 @@ def add_import_parser(sub) -> None:
 
 
 def run_import(args) -> int:
+    from layerloom.core.ledger import Ledger  # numpy: only for this command, not at the command line's start
     from layerloom.importing import ImportFailed, import_source, runs_code
 
     try:

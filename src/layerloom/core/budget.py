@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
 from layerloom.core import units
 from layerloom.core.findings import NOTE, WARNING, Finding
 from layerloom.core.units import ratio
@@ -62,17 +60,17 @@ def budget_findings(ledger, budget: dict) -> list[Finding]:
             found.append(Finding("budget.no_target", NOTE, "", "the latency budget needs a target to estimate "
                                  "latency on; choose one in the design's settings"))
             continue
-        over = np.flatnonzero(curve > limit)
-        if not len(over):
+        first = next((i for i, v in enumerate(curve) if v > limit), None)
+        if first is None:
             continue
-        at = ledger.order[int(over[0])]
+        at = ledger.order[first]
         worst = curve.max()
         what = LIMITS[key]
         so_far = "alive there" if key == "memory" else "so far"
         total = "the peak is" if key == "memory" else "the design totals"
         found.append(Finding(f"budget.{key}", WARNING, at,
                              f"{what}: the budget of {_text(key, limit)} is passed at {blocks[at].name} "
-                             f"({_text(key, curve[over[0]])} {so_far}); {total} {_text(key, worst)}, "
+                             f"({_text(key, curve[first])} {so_far}); {total} {_text(key, worst)}, "
                              f"{ratio(100 * worst, limit):.0f} % of the budget",
                              numbers=(_text(key, worst), _text(key, limit))))
     return found

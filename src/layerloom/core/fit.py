@@ -29,7 +29,6 @@ from typing import NamedTuple
 from layerloom.core import edits
 from layerloom.core.fileformat import copy
 from layerloom.core.findings import ERROR
-from layerloom.core.ledger import Ledger
 
 ALPHA, BETA, GAMMA = 1.2, 1.1, 1.15  # EfficientNet's depth, width and resolution bases (Tan & Le 2019, eq. 3)
 FAMILIES = ("width", "resolution", "depth", "compound")
@@ -167,6 +166,8 @@ class _Trial:
     def cost(self, family: str, s: float) -> Candidate:
         scaling = family_scaling(family, s)
         self.work.apply(scaled_edit(self.original, scaling, every=True))
+        from layerloom.core.ledger import Ledger  # numpy: not when the command line only sets up `fit`
+
         analysis = self.work.analysis()
         t = Ledger(analysis, self.target).totals
         errors = sum(f.severity == ERROR for f in analysis.all_findings())

@@ -149,9 +149,9 @@ class GraphInference:
 
     # ----- order, cycles, dead ends
     def reorder(self) -> None:
-        """Depth order and levels (Kahn's algorithm, levels bucketed in insertion order: graphlib's
-        sorter is several times slower at thousands of blocks), loops named with graphlib, and the
-        graph-level findings (loops, dead ends)."""
+        """Depth order and levels (Kahn's algorithm for the levels, then a stable sort by level:
+        graphlib's sorter is several times slower at thousands of blocks), loops named with
+        graphlib, and the graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks, out_wires = g.blocks, g.out_wires
         indeg = {b: len(ws) for b, ws in g.in_wires.items()}
@@ -167,16 +167,12 @@ class GraphInference:
                 if indeg[d] == 0:
                     queue.append(d)
         top = max(level.values(), default=-1) + 1
-        columns: list[list[str]] = [[] for _ in range(top + 1)]  # the last holds blocks on or after a loop
-        for b in blocks:  # insertion order within each level
-            columns[level[b] if indeg[b] == 0 else top].append(b)
-        found: list[Finding] = []
-        self.stuck = set(columns[top])
-        if columns[top]:
-            found += self._cycles(columns[top])
-            for b in columns[top]:
-                level[b] = top
-        order = [b for column in columns for b in column]
+        stuck = [b for b in blocks if indeg[b]]  # on a loop or after one: they go last
+        for b in stuck:
+            level[b] = top
+        self.stuck = set(stuck)
+        found: list[Finding] = self._cycles(stuck) if stuck else []
+        order = sorted(blocks, key=level.__getitem__)  # a stable sort: insertion order within a level
         self.order = order
         self.plan = None
         self.level = level

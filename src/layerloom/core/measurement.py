@@ -7,9 +7,10 @@ writing need no torch, so the editor shows the last measurement without importin
 """
 from __future__ import annotations
 
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
-import numpy as np
+if TYPE_CHECKING:
+    import numpy as np
 
 
 class Machine(NamedTuple):
@@ -47,8 +48,10 @@ class Measurement(NamedTuple):
                            data["date"], int(data["batch"]), int(data["repeat"]), float(data["total_s"]),
                            float(data["spread_s"]), {b: (float(t), float(s)) for b, (t, s) in data["blocks"].items()})
 
-    def along(self, order) -> np.ndarray:
+    def along(self, order) -> "np.ndarray":
         """Measured seconds per step of ``order`` (0 for blocks not timed)."""
+        import numpy as np  # here: reading a design file (which imports this module) needs no numpy
+
         return np.array([self.blocks.get(b, (0.0, 0.0))[0] for b in order], dtype=float)
 
     def missing(self, ledger) -> list[str]:

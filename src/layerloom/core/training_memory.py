@@ -18,9 +18,10 @@ once per use and multiplied by its repeat count.
 from __future__ import annotations
 
 from math import prod
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
-import numpy as np
+if TYPE_CHECKING:
+    import numpy as np
 
 from layerloom.core import units
 from layerloom.core.inference import GraphInference
@@ -72,9 +73,11 @@ class _Kept(NamedTuple):
     outs: list[tuple[int | None, bool]]
 
 
-def kept_for_backward(analysis) -> tuple[np.ndarray, np.ndarray]:
+def kept_for_backward(analysis) -> "tuple[np.ndarray, np.ndarray]":
     """Per step of the depth order: elements (per sample, at the activation type) and index bytes
     (per sample) kept for the backward pass, each at the step that produces the tensor."""
+    import numpy as np
+
     kept = _Walk(analysis.refresh().top, analysis, {}).result()
     # Python integers (dtype=object): exact at any size, as the ledger's counts
     return np.asarray(kept.elements, dtype=object), np.asarray(kept.fixed, dtype=object)
@@ -187,6 +190,8 @@ def training_memory(ledger, optimizer: str = "sgd_momentum", mixed: bool = False
 def training_curve(ledger, optimizer: str = "sgd_momentum", mixed: bool = False) -> np.ndarray:
     """Cumulative training memory (bytes) along the depth order: weights with their gradients,
     optimizer state and fp16 copy, plus the activations kept for backward, up to each step."""
+    import numpy as np  # here: the command line imports this module for its optimizer names
+
     weight_bytes = _weight_bytes(ledger, optimizer, mixed)
     per_weight = weight_bytes * (2 + OPTIMIZERS[optimizer]) + (HALF_BYTES if mixed else 0)
     return np.cumsum(ledger.costs[:, 0].astype(object) * per_weight + _activation_bytes(ledger, mixed))

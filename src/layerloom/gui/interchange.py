@@ -1,6 +1,7 @@
 """File ▸ Import… (a PyTorch module or an ONNX file as a new design) and File ▸ Export ▸ ONNX file….
 
-torch and onnx are imported only when one of these runs (never at start-up). The import dialog
+torch and onnx are imported only when one of these runs (never at start-up); an import runs in a
+worker thread, so the editor stays live while a large module is traced. The import dialog
 lists the ``nn.Module`` classes and functions a Python file defines by reading its text (nothing
 runs until Import is pressed) and says in one line that importing runs the file's code.
 """
@@ -11,9 +12,10 @@ import json
 from dataclasses import dataclass
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QObject, Qt, QThread, Signal
 from PySide6.QtWidgets import (QApplication, QComboBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout,
                                QHBoxLayout, QLabel, QLineEdit, QPushButton, QVBoxLayout)
+from shiboken6 import isValid
 
 SOURCE_FILTER = "PyTorch source or ONNX file (*.py *.onnx)"
 
@@ -128,10 +130,33 @@ def import_into(window) -> ImportDialog:
     return dialog
 
 
+class ImportWorker(QObject):
+    """Runs one import in a worker thread (the editor stays live); signals carry the result or why not."""
+
+    finished = Signal(object)  # Imported
+    failed = Signal(str)
+
+    def __init__(self, request: ImportRequest, shape, args: dict):
+        super().__init__()
+        self.request, self.shape, self.args = request, shape, args
+
+    def run(self) -> None:
+        from layerloom.importing import ImportFailed, import_source
+
+        try:
+            imported = import_source(self.request.source, self.shape, self.args)
+        except (ImportFailed, ModuleNotFoundError) as e:
+            self.failed.emit(str(e))
+        except Exception as e:  # noqa: BLE001 — never leave the editor waiting on a thread that died
+            self.failed.emit(f"{self.request.source}: import stopped on {type(e).__name__}: {e}")
+        else:
+            self.finished.emit(imported)
+
+
 def run_import(window, request: ImportRequest) -> bool:
-    """Import ``request`` into ``window``'s document; say why in a dialog when it cannot."""
+    """Start importing ``request`` into ``window``'s document in a worker thread; False when it did not
+    start (a bad input shape or arguments, said in a dialog, or unsaved changes kept)."""
     from layerloom.core.shapes import parse_shape
-    from layerloom.importing import ImportFailed, import_source
 
     try:
         shape = parse_shape(request.input) if request.input else None
@@ -143,21 +168,30 @@ def run_import(window, request: ImportRequest) -> bool:
         return False
     if not window.files.confirm_discard():
         return False
-    QApplication.setOverrideCursor(Qt.CursorShape.WaitCursor)
-    try:
-        imported = import_source(request.source, shape, args)
-    except (ImportFailed, ModuleNotFoundError) as e:
-        QApplication.restoreOverrideCursor()
-        window.prompts.error("Not imported", str(e))
-        return False
-    QApplication.restoreOverrideCursor()
+    app = QApplication.instance()
+    thread, worker = QThread(app), ImportWorker(request, shape, args)  # not the window's: it may close first
+    worker.moveToThread(thread)
+    thread.started.connect(worker.run)
+    worker.finished.connect(lambda imported: isValid(window) and _imported(window, request, imported))
+    worker.failed.connect(lambda message: isValid(window) and window.prompts.error("Not imported", message))
+    for signal in (worker.finished, worker.failed):
+        signal.connect(thread.quit)
+    thread.finished.connect(lambda: isValid(window) and setattr(window, "import_job", None))
+    thread.finished.connect(thread.deleteLater)
+    app.aboutToQuit.connect(thread.wait)  # never end the process under a running import
+    window.import_job = (thread, worker)  # kept alive until the thread ends
+    window.statusBar().showMessage(f"Importing {request.source}…")
+    thread.start()
+    return True
+
+
+def _imported(window, request: ImportRequest, imported) -> None:
     window.document.set_design(imported.design)
     window.document.undo_stack.resetClean()  # an imported design is unsaved work
     unmapped = imported.unmapped
     window.say(f"Imported {Path(request.source.rpartition(':')[0] or request.source).name}: "
                f"{len(imported.design.blocks)} blocks, {len(imported.design.motifs)} motifs"
                + (f", {len(unmapped)} unmapped (see Findings)" if unmapped else ""))
-    return True
 
 
 def export_onnx_file(window) -> None:

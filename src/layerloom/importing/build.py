@@ -11,7 +11,9 @@ from dataclasses import dataclass
 from layerloom.core import edits
 from layerloom.core.design import Design
 from layerloom.core.layout import tidy_positions
-from layerloom.importing.motifs import MotifPlan, find_motifs, local_name
+from layerloom.importing.motifs import MotifPlan, find_motifs, local_name, unique
+
+HOME = (0.0, 0.0)  # where blocks are added; Tidy places them all at the end
 
 
 @dataclass
@@ -49,14 +51,15 @@ def build_design(name: str, blocks, motifs: bool = True, notes=()) -> Imported:
                 if mp.name not in design.motifs:
                     _define(design, blocks, mp)
                 values = {p: unit.values[places[0]] for p, places in mp.params.items()}
-                uid = design.use(mp.name, *[placed[s] for s in unit.ins], repeat=unit.repeat,
-                                 name=_unique(unit.path.replace(".", "_") or mp.name, names), **values)
+                uid = design.use(mp.name, *[placed[s] for s in unit.ins], repeat=unit.repeat, position=HOME,
+                                 name=unique(unit.path.replace(".", "_") or mp.name, names), **values)
                 for j, out in enumerate(unit.last.outs):
                     placed[out] = (uid, j)
                 origins[uid] = ", ".join(u.path for u in (unit, *unit.copies))
                 skip_to = unit.last.stop
                 continue
-            bid = design.add(b.kind, *[placed[s] for s in b.inputs], name=_unique(b.name, names), **b.settings)
+            bid = design.add(b.kind, *[placed[s] for s in b.inputs], name=unique(b.name, names), position=HOME,
+                             **b.settings)
             placed[(i, 0)] = (bid, 0)
             origins[bid] = b.origin
         for g in (design, *design.motifs.values()):
@@ -78,15 +81,8 @@ def _define(design: Design, blocks, mp: MotifPlan) -> None:
         ins = [(local[src], port) if first.start <= src < first.stop else (ports[first.ins.index((src, port))], 0)
                for src, port in b.inputs]
         settings = {key: {"param": param_of[(k, key)]} if (k, key) in param_of else v for key, v in b.settings.items()}
-        local[i] = motif.add(b.kind, *ins, name=_unique(local_name(b.name, first.path), names), **settings)
+        local[i] = motif.add(b.kind, *ins, name=unique(local_name(b.name, first.path), names), position=HOME,
+                             **settings)
     for k, (i, port) in enumerate(first.outs):
         motif.add("Output", (local[i], port), name=f"y_{k + 1}" if len(first.outs) > 1 else "y")
 
-
-def _unique(name: str, taken: set[str]) -> str:
-    out, n = name, 1
-    while out in taken:
-        n += 1
-        out = f"{name}_{n}"
-    taken.add(out)
-    return out

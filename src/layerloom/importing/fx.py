@@ -15,11 +15,14 @@ import re
 
 from layerloom.core.shapes import Shape
 from layerloom.importing.build import Imported, build_design
-from layerloom.importing.mapping import confirm, conv_chain, representable
-from layerloom.importing.plan import ImportFailed, SourceOp, plan
+from layerloom.importing.mapping import confirm, conv_chain, representable, upsample_chain
+from layerloom.importing.plan import ImportFailed, SourceOp, one_line, plan
 
 
-def import_module(module, input_shape: Shape = Shape.chw(3, 224, 224), name: str | None = None,
+DEFAULT_INPUT = Shape.chw(3, 224, 224)
+
+
+def import_module(module, input_shape: Shape = DEFAULT_INPUT, name: str | None = None,
                   motifs: bool = True) -> Imported:
     """A design read from ``module`` (an ``nn.Module``) for inputs of ``input_shape`` (C×H×W).
 
@@ -30,11 +33,11 @@ def import_module(module, input_shape: Shape = Shape.chw(3, 224, 224), name: str
     _load_tables()
     cls = type(module).__name__
     try:
-        gm = torch.fx.symbolic_trace(module)
+        gm = torch.fx.symbolic_trace(module, concrete_args=_defaults(module))
     except Exception as e:  # noqa: BLE001 — any tracing failure is the user's module's, reported in one line
-        raise ImportFailed(f"{cls} does not trace with torch.fx ({type(e).__name__}: {_line(e)}); "
+        raise ImportFailed(f"{cls} does not trace with torch.fx ({type(e).__name__}: {one_line(e)}); "
                            "import needs a forward without data-dependent control flow") from None
-    placeholders = [n for n in gm.graph.nodes if n.op == "placeholder"]
+    placeholders = [n for n in gm.graph.nodes if n.op == "placeholder" and not n.args]  # args: a default
     if len(placeholders) != 1:
         raise ImportFailed(f"{cls}.forward takes {len(placeholders)} inputs; import reads networks with one image input")
     likely = {n.name for n in gm.graph.nodes if not _maybe_mapped(gm, n)}
@@ -50,9 +53,16 @@ def import_module(module, input_shape: Shape = Shape.chw(3, 224, 224), name: str
     return build_design(name or _snake(cls), blocks, motifs, reader.notes())
 
 
-def _line(e: BaseException) -> str:
-    text = str(e).strip().splitlines()
-    return text[0][:200] if text else type(e).__name__
+
+def _defaults(module) -> dict:
+    """Arguments of ``forward`` after the first that have defaults: traced with those values."""
+    import inspect
+
+    try:
+        params = list(inspect.signature(module.forward).parameters.values())[1:]
+    except (TypeError, ValueError):
+        return {}
+    return {p.name: p.default for p in params if p.default is not inspect.Parameter.empty}
 
 
 def _snake(text: str) -> str:
@@ -80,6 +90,9 @@ def _propagate(gm, input_shape, cls: str, measure: set[str]):
                 with FlopCounterMode(display=False) as counter:
                     r = super().run_node(n)
                 flops[n.name] = counter.get_total_flops()
+            elif (n.op == "call_module" and type(self.module.get_submodule(n.target)) in _SHAPE_KEEPING
+                  and getattr(self.env.get(n.args[0]), "is_meta", False)):
+                r = torch.empty_like(self.env[n.args[0]])  # a norm or activation: same shape, no work on meta
             else:
                 r = super().run_node(n)
             results[n.name] = r
@@ -107,7 +120,7 @@ def _propagate(gm, input_shape, cls: str, measure: set[str]):
             Measure(gm).run(torch.zeros(1, *input_shape))
     except Exception as e:  # noqa: BLE001 — the user's module failing on this input, in one line
         raise ImportFailed(f"{cls} fails on an input of shape 1×{'×'.join(map(str, input_shape))} "
-                           f"({type(e).__name__}: {_line(e)}); give the input it expects with --input") from None
+                           f"({type(e).__name__}: {one_line(e)}); give the input it expects with --input") from None
     return results, flops
 
 
@@ -130,10 +143,13 @@ class _Reader:
         for n in self.gm.graph.nodes:
             value = self.results.get(n.name)
             if n.op == "placeholder":
-                data.add(n.name)
+                if n.name in inputs:  # not an argument traced with its default
+                    data.add(n.name)
                 continue
             if n.op == "output":
                 outputs = [a.name for a in _nodes(n.args) if a.name in data]
+                if not outputs:
+                    raise ImportFailed(f"{type(self.gm).__name__}: forward returns no tensor computed from its input")
                 continue
             tensors = isinstance(value, torch.Tensor) or (
                 isinstance(value, (tuple, list)) and value and all(isinstance(v, torch.Tensor) for v in value))
@@ -163,7 +179,7 @@ class _Reader:
                 proposed = None
             chain = confirm(proposed, in_shapes, out, weights, buffers)
         return SourceOp(self._name(n, scope), self._label(n), ins, [n.name], chain, scope, params,
-                        self.flops.get(n.name, 0) // 2)
+                        self.flops.get(n.name, 0) // 2, n.name)
 
     def _params(self, n):
         """Weights and buffers the node owns (a module's, or those it reads with get_attr), by name."""
@@ -279,10 +295,7 @@ def _flatten(ins):
 def _upsample(mode, align_corners, ins, out):
     if mode not in ("nearest", "bilinear") or align_corners:
         return None
-    (c, h, w), (_, oh, ow) = ins[0], out
-    if oh % h or ow % w or oh // h != ow // w:
-        return None
-    return [("Upsample", {"scale": oh // h, "mode": mode})]
+    return upsample_chain(*ins[0][1:], *out[1:], mode)
 
 
 def _activation(n, ins, out):
@@ -391,10 +404,12 @@ def _tables():
     module_types = {nn.Conv2d, nn.ConvTranspose2d, nn.BatchNorm2d, nn.LeakyReLU, nn.Softmax, nn.MaxPool2d,
                     nn.AvgPool2d, nn.AdaptiveAvgPool2d, nn.Upsample, nn.Linear, nn.Flatten, nn.Dropout, nn.Identity,
                     *modules}
+    _SHAPE_KEEPING.update({nn.BatchNorm2d, nn.LeakyReLU, nn.Dropout, nn.Identity, *modules})
     return module_types, modules, functions, rules
 
 
 _MODULE_TYPES: set = set()
+_SHAPE_KEEPING: set = set()  # module types whose output has the input's shape (propagated without running)
 _ACTIVATION_MODULES: dict = {}
 _ACTIVATION_FUNCTIONS: dict = {}
 _FUNCTION_RULES: list = []

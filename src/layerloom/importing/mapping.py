@@ -31,6 +31,13 @@ def conv_chain(in_channels: int, out: int, kernel, stride, padding, dilation, gr
                         "padding": _pair(padding), "dilation": _pair(dilation), "groups": groups, "bias": bias})]
 
 
+def upsample_chain(h: int, w: int, oh, ow, mode: str) -> Chain | None:
+    """Upsample by a whole factor, the same on both axes, from sizes h×w to oh×ow; else None."""
+    if oh % h or ow % w or oh // h != ow // w:
+        return None
+    return [("Upsample", {"scale": int(oh // h), "mode": mode})]
+
+
 def _pair(value):
     """``(3, 3)`` → ``3``; ``(3, 1)`` → ``[3, 1]``; an int (or ``"same"``) stays."""
     if isinstance(value, (int, str)):
@@ -39,28 +46,44 @@ def _pair(value):
     return h if h == w else [h, w]
 
 
+def _run(chain: Chain, ins: tuple[Shape, ...]):
+    """Checked settings, output shape, weights and buffers of ``chain`` on ``ins``; raises when it
+    does not fit."""
+    checked, shapes, weights, buffers = [], ins, 0, 0
+    for kind_name, settings in chain:
+        kind = KINDS[kind_name]
+        s = kind.check_settings(settings)
+        if len(shapes) != kind.input_count(s):
+            raise ValueError(f"{kind_name} takes {kind.input_count(s)} inputs, not {len(shapes)}")
+        y = kind.shape(s, shapes, Report("", kind_name))
+        cost = kind.cost(s, shapes, y)
+        weights, buffers = weights + cost.weights, buffers + cost.buffers
+        checked.append((kind_name, s))
+        shapes = (y,)
+    return checked, shapes[0], weights, buffers
+
+
+FAILS = (Stop, SettingError, KeyError, TypeError, ValueError, IndexError)
+
+
+def chain_shape(chain: Chain | None, ins: tuple[Shape, ...]) -> Shape | None:
+    """The output shape our rules give ``chain`` on ``ins``, or None (no chain, or it does not fit)."""
+    try:
+        return _run(chain, ins)[1] if chain else None
+    except FAILS:
+        return None
+
+
 def confirm(chain: Chain | None, ins: tuple[Shape, ...], out: Shape, weights: int = 0, buffers: int = 0) -> Chain | None:
     """``chain`` with checked settings when our rules reproduce ``out``, ``weights`` and ``buffers``
     from the input shapes ``ins``; ``None`` when they do not (or there is no chain)."""
     if not chain:
         return None
-    checked, shapes, w_sum, b_sum = [], ins, 0, 0
     try:
-        for kind_name, settings in chain:
-            kind = KINDS[kind_name]
-            s = kind.check_settings(settings)
-            if len(shapes) != kind.input_count(s):
-                return None
-            y = kind.shape(s, shapes, Report("", kind_name))
-            cost = kind.cost(s, shapes, y)
-            w_sum, b_sum = w_sum + cost.weights, b_sum + cost.buffers
-            checked.append((kind_name, s))
-            shapes = (y,)
-    except (Stop, SettingError, KeyError, TypeError, ValueError):
+        checked, y, w, b = _run(chain, ins)
+    except FAILS:
         return None
-    if shapes[0] != out or w_sum != weights or b_sum != buffers:
-        return None
-    return checked
+    return checked if (y, w, b) == (out, weights, buffers) else None
 
 
 def representable(dims) -> Shape | None:

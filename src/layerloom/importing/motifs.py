@@ -58,7 +58,7 @@ def find_motifs(blocks) -> list[MotifPlan]:
     candidates, seen = [], set()
     for path, (cls, idx) in spans.items():
         span = (idx[0], idx[-1] + 1)
-        if len(idx) < 2 or idx[-1] - idx[0] + 1 != len(idx) or span in seen or _container(blocks, idx, path):
+        if len(idx) < 2 or idx[-1] - idx[0] + 1 != len(idx) or span in seen or _container(blocks, idx, path, cls):
             continue
         if any(blocks[i].kind in ("Input", "Output") for i in idx):
             continue
@@ -89,9 +89,15 @@ def find_motifs(blocks) -> list[MotifPlan]:
     return motifs
 
 
-def _container(blocks, idx, path: str) -> bool:
-    """True when every block of a unit lies in one of two or more submodules (a stage holding units,
-    such as an ``nn.Sequential`` of bottlenecks): its children, not it, are the repeated structure."""
+CONTAINERS = ("Sequential", "ModuleList", "ModuleDict")
+
+
+def _container(blocks, idx, path: str, cls: str | None) -> bool:
+    """True for a stage holding units (such as an ``nn.Sequential`` of bottlenecks), whose children,
+    not it, are the repeated structure: a container class, or, when classes are unknown (ONNX),
+    a unit whose blocks all lie in two or more submodules."""
+    if cls is not None:
+        return cls in CONTAINERS
     children = set()
     for i in idx:
         paths = [p for p, _ in blocks[i].scope]
@@ -175,11 +181,14 @@ def _motif_name(cls: str | None, taken: set[str]) -> str:
 
 def _identifier(text: str, taken: set[str]) -> str:
     stem = re.sub(r"\W+", "_", text).strip("_") or "p"
-    if stem[0].isdigit():
-        stem = "p_" + stem
-    name, n = stem, 1
-    while name in taken:
+    return unique(stem if not stem[0].isdigit() else "p_" + stem, taken)
+
+
+def unique(name: str, taken: set[str]) -> str:
+    """``name``, or ``name_2``, ``name_3``, … the first not in ``taken``; added to ``taken``."""
+    out, n = name, 1
+    while out in taken:
         n += 1
-        name = f"{stem}_{n}"
-    taken.add(name)
-    return name
+        out = f"{name}_{n}"
+    taken.add(out)
+    return out

@@ -16,12 +16,13 @@ from __future__ import annotations
 
 import math
 import re
+from pathlib import Path
 from typing import NamedTuple
 
 from layerloom.core.shapes import Shape
 from layerloom.importing.build import Imported, build_design
-from layerloom.importing.mapping import confirm, conv_chain, representable
-from layerloom.importing.plan import ImportFailed, SourceOp, plan
+from layerloom.importing.mapping import chain_shape, confirm, conv_chain, representable, upsample_chain
+from layerloom.importing.plan import ImportFailed, SourceOp, one_line, plan
 
 FLOAT_TYPES = {1, 10, 11, 16}  # FLOAT, FLOAT16, DOUBLE, BFLOAT16
 
@@ -41,7 +42,7 @@ def import_onnx(path: str, input_shape: Shape | None = None, motifs: bool = True
     try:
         onnx.checker.check_model(model)
     except Exception as e:  # noqa: BLE001 — onnx raises several kinds; all mean the same to the user
-        raise ImportFailed(f"{path} is not a valid ONNX model: {_line(e)}") from None
+        raise ImportFailed(f"{path} is not a valid ONNX model: {one_line(e)}") from None
     inputs = [i for i in graph.input if i.name not in initializers]
     if len(inputs) != 1:
         raise ImportFailed(f"{path} has {len(inputs)} graph inputs; import reads networks with one image input")
@@ -56,7 +57,7 @@ def import_onnx(path: str, input_shape: Shape | None = None, motifs: bool = True
     try:
         model = onnx.shape_inference.infer_shapes(model, strict_mode=True, data_prop=True)
     except Exception as e:  # noqa: BLE001
-        raise ImportFailed(f"{path}: shape inference fails ({_line(e)})") from None
+        raise ImportFailed(f"{path}: shape inference fails ({one_line(e)})") from None
     reader = _Reader(model.graph, initializers)
     x = inputs[0].name
     if reader.shapes.get(x) is None or len(reader.shapes[x]) != 3:
@@ -69,8 +70,9 @@ def import_onnx(path: str, input_shape: Shape | None = None, motifs: bool = True
     if unmapped:
         notes.append(f"{len(unmapped)} ONNX operation{'s' if len(unmapped) != 1 else ''} could not be mapped; "
                      "their MACs are not counted")
-    name = re.sub(r"[^\w-]+", "-", (graph.name or "").strip()).strip("-") or "imported"
-    return build_design(name if name not in ("main_graph", "torch_jit") else "imported", blocks, motifs, notes)
+    named = (graph.name or "").strip() not in ("", "main_graph", "torch_jit")
+    name = re.sub(r"[^\w-]+", "-", graph.name if named else Path(path).stem).strip("-").lower() or "imported"
+    return build_design(name, blocks, motifs, notes)
 
 
 def _load(path: str):
@@ -81,7 +83,7 @@ def _load(path: str):
     except FileNotFoundError:
         raise ImportFailed(f"{path}: no such file") from None
     except Exception as e:  # noqa: BLE001 — a truncated or foreign file fails in the protobuf decoder
-        raise ImportFailed(f"{path} is not a readable ONNX file, perhaps truncated ({_line(e)})") from None
+        raise ImportFailed(f"{path} is not a readable ONNX file, perhaps truncated ({one_line(e)})") from None
     if not model.graph.node:
         raise ImportFailed(f"{path} holds no ONNX graph (no nodes)")
     return model
@@ -118,10 +120,6 @@ def _lighten(graph) -> dict[str, Tensor]:
     graph.input.extend(big)
     return described
 
-
-def _line(e: BaseException) -> str:
-    text = str(e).strip().splitlines()
-    return text[0][:200] if text else type(e).__name__
 
 
 def _safe(text: str) -> str:
@@ -160,16 +158,25 @@ class _Reader:
                 self.producer[v] = n
 
     def const(self, name: str):
-        """The value of a small initializer or a Constant output, as a numpy array, or None."""
+        """The value of a small initializer, a Constant, or a Concat, Unsqueeze, Cast or Identity of
+        such values (sizes the exporter computes without folding), as a numpy array; else None."""
+        import numpy as np
+
         if name in self.initializers:
             proto = self.initializers[name].proto
             return self.numpy(proto) if proto is not None else None
-        node = self.constants.get(name)
-        if node is not None:
-            for a in node.attribute:
-                if a.name == "value":
-                    return self.numpy(a.t)
-        return None
+        node = self.constants.get(name) or self.producer.get(name)
+        if node is None:
+            return None
+        if node.op_type == "Constant":
+            value = next((a.t for a in node.attribute if a.name == "value"), None)
+            return self.numpy(value) if value is not None else None
+        parts = [self.const(v) for v in node.input[:1 if node.op_type != "Concat" else None]]
+        if node.op_type not in ("Concat", "Unsqueeze", "Cast", "Identity") or any(p is None for p in parts):
+            return None
+        if node.op_type == "Concat":
+            return np.concatenate([np.atleast_1d(p) for p in parts])
+        return np.atleast_1d(parts[0]) if node.op_type == "Unsqueeze" else parts[0]
 
     def read(self, x: str):
         """Operations in graph order and the values the graph returns."""
@@ -178,9 +185,7 @@ class _Reader:
         for n in self.graph.node:
             if not any(v in data for v in n.input):
                 continue
-            outs = [v for v in n.output if v in self.floats]
-            if not outs:
-                continue
+            outs = [v for v in n.output if v in self.floats or (v and v not in self.dims)]  # unknown: a custom op's
             data.update(outs)
         for n in self.graph.node:
             pattern = self._gated(n, data) if self._is_op(n, data) else None
@@ -195,18 +200,22 @@ class _Reader:
             outs = [v for v in n.output if v in data]
             name, scope = scopes[id(n)]
             weights_read = {v: self.initializers[v] for v in n.input if v in self.initializers}
-            params = {v: (math.prod(t.dims), False) for v, t in weights_read.items() if t.data_type in FLOAT_TYPES}
+            params = {v: (math.prod(t.dims), False) for v, t in weights_read.items()
+                      if t.data_type in FLOAT_TYPES and t.dims}  # a scalar (a Clip bound) is no weight
             chain = None
             if id(n) in fused:
                 chain, ins = fused[id(n)]
             out = self.shapes.get(outs[0]) if len(outs) == 1 else None
             in_shapes = tuple(self.shapes.get(v) for v in ins)
-            if out is not None and all(s is not None for s in in_shapes):
+            if len(outs) == 1 and all(s is not None for s in in_shapes):
                 if chain is None:
                     try:
                         chain = self._map(n, in_shapes, out)
                     except (TypeError, ValueError, KeyError, IndexError):
                         chain = None
+                if out is None:  # shape inference could not tell (sizes computed in the graph): our rule does
+                    out = self.shapes[outs[0]] = chain_shape(chain, in_shapes)
+            if out is not None and all(s is not None for s in in_shapes):
                 weights = sum(k for k, _ in params.values())
                 buffers = 0
                 if n.op_type == "BatchNormalization":
@@ -215,8 +224,10 @@ class _Reader:
                 chain = confirm(chain, in_shapes, out, weights, buffers)
             else:
                 chain = None
-            ops.append(SourceOp(name, n.op_type, ins, outs, chain, scope, params, 0))
+            ops.append(SourceOp(name, n.op_type, ins, outs, chain, scope, params, 0, n.name or outs[0]))
         outputs = [o.name for o in self.graph.output if o.name in data]
+        if not outputs:
+            raise ImportFailed("no output of the graph is computed from its input")
         return ops, outputs
 
     def _is_op(self, n, data) -> bool:
@@ -428,13 +439,27 @@ def _resize(r, n, a, ins, out):
         kind = "nearest"
     else:
         return None
-    (c, h, w), (_, oh, ow) = ins[0], out
-    if oh % h or ow % w or oh // h != ow // w:
-        return None
-    return [("Upsample", {"scale": oh // h, "mode": kind})]
+    h, w = ins[0][1:]
+    if out is None:
+        scales = r.const(n.input[2]) if len(n.input) > 2 and n.input[2] else None
+        sizes = r.const(n.input[3]) if len(n.input) > 3 and n.input[3] else None
+        if scales is not None and len(scales) == 4:
+            oh, ow = h * float(scales[2]), w * float(scales[3])
+        elif sizes is not None and len(sizes) == 4:
+            oh, ow = int(sizes[2]), int(sizes[3])
+        else:
+            return None
+    else:
+        oh, ow = out[1:]
+    return upsample_chain(h, w, oh, ow, kind)
 
 
 def _reshape(r, n, a, ins, out):
+    if out is None:
+        target = r.const(n.input[1])
+        if target is None or len(target) != 2 or len(ins[0]) != 3:
+            return None
+        return [("Flatten", {})]
     if out == ins[0]:
         return [("Identity", {})]
     return [("Flatten", {})] if len(ins[0]) == 3 and len(out) == 1 else None

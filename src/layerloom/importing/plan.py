@@ -24,6 +24,12 @@ class ImportFailed(Exception):
     """A source that cannot be imported; the message is one line naming the place and the reason."""
 
 
+def one_line(e: BaseException) -> str:
+    """The first line of an exception's message (at most 200 characters), to quote in ImportFailed."""
+    text = str(e).strip().splitlines()
+    return text[0][:200] if text else type(e).__name__
+
+
 @dataclass
 class SourceOp:
     """One operation of the source network.
@@ -42,6 +48,7 @@ class SourceOp:
     scope: tuple = ()
     params: dict = field(default_factory=dict)
     macs: int = 0
+    origin: str = ""  # the source's own name of the operation (a traced node, an ONNX node)
 
 
 @dataclass
@@ -84,7 +91,7 @@ def plan(ops: list[SourceOp], shapes: dict[str, Shape | None], inputs: list[tupl
             at = [source[v] for v in op.ins]
             for k, (kind, settings) in enumerate(op.chain):
                 name = op.name if k == 0 else f"{op.name}_{kind.lower()}"
-                blocks.append(PlannedBlock(name, kind, settings, at, op.scope, op.name))
+                blocks.append(PlannedBlock(name, kind, settings, at, op.scope, op.origin or op.name))
                 at = [(len(blocks) - 1, 0)]
             if op.outs:
                 source[op.outs[0]] = at[0]
@@ -150,7 +157,7 @@ def _add_group(blocks, source, members, shapes, readers, ops, returned) -> None:
                     "macs": macs if k == 0 else 0}
         name = members[0].name if k == 0 else names[value]
         blocks.append(PlannedBlock(name, "Unmapped", settings, at, _common(op.scope for op in members),
-                                   ", ".join(op.name for op in members), shapes[value]))
+                                   ", ".join(op.origin or op.name for op in members), shapes[value]))
         source[value] = (len(blocks) - 1, 0)
 
 

@@ -12,7 +12,7 @@ from pathlib import Path
 
 from layerloom.core.shapes import Shape
 from layerloom.importing.build import Imported
-from layerloom.importing.plan import ImportFailed
+from layerloom.importing.plan import ImportFailed, one_line
 
 PICKLES = (".pt", ".pth", ".pkl", ".ckpt", ".bin")
 _serial = itertools.count(1)
@@ -63,14 +63,14 @@ def _load(where: str):
             sys.modules.pop(spec.name, None)
             if isinstance(e, KeyboardInterrupt):
                 raise
-            raise ImportFailed(f"{where} raised {type(e).__name__} while it ran: {_line(e)}") from None
+            raise ImportFailed(f"{where} raised {type(e).__name__} while it ran: {one_line(e)}") from None
         return module
     try:
         return importlib.import_module(where)
     except ModuleNotFoundError as e:
-        raise ImportFailed(f"{where}: no module of that name ({_line(e)})") from None
+        raise ImportFailed(f"{where}: no module of that name ({one_line(e)})") from None
     except Exception as e:  # noqa: BLE001
-        raise ImportFailed(f"{where} raised {type(e).__name__} while it ran: {_line(e)}") from None
+        raise ImportFailed(f"{where} raised {type(e).__name__} while it ran: {one_line(e)}") from None
 
 
 def _construct(module, where: str, name: str, args: dict):
@@ -87,12 +87,8 @@ def _construct(module, where: str, name: str, args: dict):
         made = factory(**args)
     except Exception as e:  # noqa: BLE001
         given = ", ".join(f"{k}={v!r}" for k, v in args.items())
-        raise ImportFailed(f"{name}({given}) raised {type(e).__name__}: {_line(e)}") from None
+        raise ImportFailed(f"{name}({given}) raised {type(e).__name__}: {one_line(e)}") from None
     if not isinstance(made, nn.Module):
         raise ImportFailed(f"{name}() returned a {type(made).__name__}, not an nn.Module")
     return made
 
-
-def _line(e: BaseException) -> str:
-    text = str(e).strip().splitlines()
-    return text[0][:200] if text else type(e).__name__

@@ -6,9 +6,7 @@ import csv
 import io
 import json
 
-from layerloom.core.calibrate import calibrate, mape, samples, split_halves
 from layerloom.core.fileformat import load, save
-from layerloom.core.ledger import Ledger
 from layerloom.core.measurement import compare
 from layerloom.core.targets import CAUTION, PRESETS
 
@@ -37,6 +35,8 @@ def add_parser(sub) -> None:
 
 def run(args) -> int:
     from layerloom.cli import UsageError, _open
+    from layerloom.core.calibrate import calibrate, mape, samples, split_halves  # numpy: only when measuring
+    from layerloom.core.ledger import Ledger
 
     if args.repeat < 1 or (args.threads is not None and args.threads < 1):
         raise UsageError(f"--repeat and --threads must be at least 1, not {args.repeat} and {args.threads}")
@@ -84,6 +84,7 @@ def run(args) -> int:
 
 def _measure(design, args):
     from layerloom.cli import UsageError
+    from layerloom.core.ledger import Ledger
     from layerloom.export import ExportRefused
     from layerloom.measure.timing import measure
 
