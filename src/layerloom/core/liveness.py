@@ -23,7 +23,8 @@ VIEWS = frozenset(name for name, kind in KINDS.items() if kind.view)
 
 class Plan:
     """For each step of an order: whether it allocates, the step after which its tensor is freed
-    (``len(order)`` for never), and whether it is the last reader of every input it has."""
+    (``len(order)`` for never), and whether it is the last reader of every input it has (worked
+    out for motif uses only, the one kind with memory of its own to free: True elsewhere)."""
 
     __slots__ = ("allocates", "death", "last_reader")
 
@@ -34,9 +35,12 @@ class Plan:
         allocates = [False] * n
         death = [n] * n  # nothing reads it: it stays to the end
         read = [False] * n
+        uses = []
         for i, bid in enumerate(order):  # in order, so a source's owner is known before it is read
             kind = blocks[bid].kind
             ins = in_wires[bid]
+            if kind == "Motif":
+                uses.append(i)
             if inputs_outside and kind == "Input":
                 owner[bid] = None
             elif kind in VIEWS and ins:
@@ -53,8 +57,8 @@ class Plan:
                 elif not read[o] or death[o] < i:
                     death[o], read[o] = i, True
         last = [True] * n
-        for i, bid in enumerate(order):
-            for w in in_wires[bid]:
+        for i in uses:
+            for w in in_wires[order[i]]:
                 o = owner.get(w.src)
                 if o is None or death[o] != i:
                     last[i] = False
