@@ -30,6 +30,7 @@ def test_check_lists_the_clash_with_its_mend_and_exits_1():
     assert r.returncode == 1
     assert "join.channels" in r.stdout and "64 channels to 128 channels" in r.stdout
     assert "mend: Insert a 1×1 projection to 128 channels and stride 2" in r.stdout
+    assert r.stdout.splitlines()[-1].endswith("not well formed — 1 error, 0 warnings, 0 notes")
 
 
 def test_check_json():

@@ -89,7 +89,8 @@ def _check(args) -> int:
                 print(f"        mend: {one_line(m.label)}")
         counts = {s: sum(f.severity == s for f in findings) for s in ("error", "warning", "note")}
         verdict = "well formed" if not errors else "not well formed"
-        print(f"{args.file}: {verdict} — {counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes")
+        tally = ", ".join(f"{n} {s}{'' if n == 1 else 's'}" for s, n in counts.items())
+        print(f"{args.file}: {verdict} — {tally}")
     return 1 if errors else 0
 
 
