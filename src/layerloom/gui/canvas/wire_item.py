@@ -2,9 +2,10 @@
 when cards stand in the way, a route around them (corner points from :mod:`layerloom.core.wire_route`)
 drawn with rounded corners.
 
-The path, its padded bounding rect and the label's place are computed in
-:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``), the stroked hit shape on the
-first hit test after it; all are cached, and ``paint`` only draws them.
+:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``) keeps the wire's ends or corner
+points, its straight lines, padded bounding rect and label place, all computed without building a
+path; the QPainterPath is built on the first close-up paint or hit test after it (far out, only the
+lines are drawn), the stroked hit shape on the first hit test; both are then kept.
 """
 from __future__ import annotations
 
@@ -30,10 +31,15 @@ def stroke_width(channels: int | None) -> float:
     return min(w, theme.WIRE_MAX_WIDTH)
 
 
+def curve_reach(a: QPointF, b: QPointF) -> float:
+    """How far a curve's control points stand out from its ends, horizontally."""
+    return max(abs(b.x() - a.x()) * 0.5, 40.0)
+
+
 def curve(a: QPointF, b: QPointF) -> QPainterPath:
     """A smooth curve leaving ``a`` and entering ``b`` horizontally."""
     p = QPainterPath(a)
-    reach = max(abs(b.x() - a.x()) * 0.5, 40.0)
+    reach = curve_reach(a, b)
     p.cubicTo(QPointF(a.x() + reach, a.y()), QPointF(b.x() - reach, b.y()), b)
     return p
 
@@ -64,7 +70,9 @@ class WireItem(QGraphicsItem):
         self.label = ""
         self.width = theme.WIRE_MIN_WIDTH
         self.known = False
-        self._path = QPainterPath()
+        self._path: QPainterPath | None = QPainterPath()
+        self._ends: tuple = ()  # (a, b) of a curve, or the corner points of a route
+        self._routed = False
         self._lines: list[QLineF] = []
         self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
@@ -81,24 +89,37 @@ class WireItem(QGraphicsItem):
         self.known = shape is not None
         self.label = str(shape) if shape is not None and labelled else ""
         self.width = stroke_width(shape[0] if shape is not None else None)
+        self._routed = bool(points)
         if points:
-            self._path = routed(points)
+            self._ends = points
             self._lines = [QLineF(*p, *q) for p, q in zip(points, points[1:])]
+            xs, ys = [p[0] for p in points], [p[1] for p in points]
+            box = QRectF(min(xs), min(ys), max(xs) - min(xs), max(ys) - min(ys))  # rounded corners stay inside
+            mid = self._lines[2].center()  # a routed wire: the middle of its lane
         else:
-            self._path = curve(a, b)
+            self._ends = (a, b)
             self._lines = [QLineF(a, b)]
+            reach = curve_reach(a, b)  # the curve stays within its control points' box
+            xs = (a.x(), b.x(), a.x() + reach, b.x() - reach)
+            box = QRectF(min(xs), min(a.y(), b.y()), max(xs) - min(xs), abs(b.y() - a.y()))
+            mid = (a + b) / 2  # the curve is symmetric about the middle of its ends
+        self._path = None  # built on first use (a close-up paint or a hit test)
         self._hit = None  # stroked on first use (hit tests), then kept until the path changes
-        bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
+        bounds = box.adjusted(-self.width, -self.width, self.width, self.width)
         if self.label:
             fm = metrics("figure")
-            mid = (QLineF(*points[2], *points[3]).center() if points  # a routed wire: the middle of its lane
-                   else self._path.pointAtPercent(0.5))
             w, h = advance("figure", self.label) + 6.0, fm.height() + 1.0
             self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
             bounds = bounds.united(self._label_rect)
         else:
             self._label_rect = QRectF()
         self._bounds = bounds
+
+    def path(self) -> QPainterPath:
+        """The wire's drawn path (built from its ends or corner points on first use)."""
+        if self._path is None:
+            self._path = routed(self._ends) if self._routed else curve(*self._ends)
+        return self._path
 
     @property
     def lines(self) -> list[QLineF]:
@@ -112,7 +133,7 @@ class WireItem(QGraphicsItem):
         if self._hit is None:
             stroker = QPainterPathStroker()
             stroker.setWidth(max(self.width, HIT_WIDTH))
-            self._hit = stroker.createStroke(self._path)
+            self._hit = stroker.createStroke(self.path())
         return self._hit
 
     def paint(self, painter, option, widget=None) -> None:
@@ -127,7 +148,7 @@ class WireItem(QGraphicsItem):
                    Qt.PenCapStyle.FlatCap)
         painter.setPen(pen)
         painter.setBrush(Qt.BrushStyle.NoBrush)
-        painter.drawPath(self._path)
+        painter.drawPath(self.path())
         if not self.label or lod < theme.TEXT_MIN_DETAIL:
             return
         painter.setPen(Qt.PenStyle.NoPen)
