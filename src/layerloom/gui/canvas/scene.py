@@ -476,18 +476,20 @@ class CanvasScene(QGraphicsScene):
                 src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
                 a = blocks[src].output_pos(w.src_port if src == w.src else 0)
                 b = blocks[dst].input_pos(w.dst_port)
-                before = item.lines
-                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
-                                  self._labelled(w, chosen))
+                if not item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
+                                         self._labelled(w, chosen)):
+                    continue
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
-                if src not in self.moving and dst not in self.moving and item.lines != before:
+                if src not in self.moving and dst not in self.moving:
                     self.overview_revision += 1  # a still wire took another way
         self._dirty_wires.clear()
 
     def _labelled(self, w, chosen: dict) -> bool:
         """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the
         nearest card does (they all carry the same tensor); ``chosen`` remembers the pick per output."""
+        if len(self.graph.out_wires.get(w.src, ())) < 2:  # the only wire leaving its block
+            return True
         key = (w.src, w.src_port)
         if key not in chosen:
             siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]

@@ -73,6 +73,7 @@ class WireItem(QGraphicsItem):
         self._path: QPainterPath | None = QPainterPath()
         self._ends: tuple = ()  # (a, b) of a curve, or the corner points of a route
         self._routed = False
+        self._key: tuple = ()  # what the geometry was last made from
         self._lines: list[QLineF] = []
         self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
@@ -80,11 +81,16 @@ class WireItem(QGraphicsItem):
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
-    def set_geometry(self, a: QPointF, b: QPointF, points=None, labelled: bool = True) -> None:
+    def set_geometry(self, a: QPointF, b: QPointF, points=None, labelled: bool = True) -> bool:
         """Draw the wire from ``a`` to ``b`` as a curve, or through corner ``points`` when given;
         width and label follow :attr:`carried` (no label when not ``labelled``: another wire from
-        the same output already says the shape)."""
+        the same output already says the shape). Returns whether anything changed (nothing is
+        redone for a wire whose ends, route, shape and label stay as they were)."""
         shape = self.carried
+        key = (points or (a.x(), a.y(), b.x(), b.y()), shape, labelled)
+        if key == self._key:
+            return False
+        self._key = key
         self.prepareGeometryChange()
         self.known = shape is not None
         self.label = str(shape) if shape is not None and labelled else ""
@@ -114,6 +120,7 @@ class WireItem(QGraphicsItem):
         else:
             self._label_rect = QRectF()
         self._bounds = bounds
+        return True
 
     def path(self) -> QPainterPath:
         """The wire's drawn path (built from its ends or corner points on first use)."""
