@@ -188,7 +188,7 @@ class CanvasScene(QGraphicsScene):
             self.obstacles = Obstacles({b: _rect(i) for b, i in self.cards()})
             self._ov_valid = False
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
-            self._stages = None
+            self._forget_places()
             if many:  # every route may change
                 self._dirty_wires.update(self.wires)
             for bid in () if many else change.moved[key]:
@@ -422,8 +422,15 @@ class CanvasScene(QGraphicsScene):
         shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
         return stage_groups(self.graph, shapes, self.folds)
 
+    def _forget_places(self) -> None:
+        """Drop what :meth:`stage_cache` keeps that depends on where cards are (the stages
+        themselves depend only on the graph, its shapes and the folds)."""
+        if self._stages is not None:
+            self._stages = {k: v for k, v in self._stages.items() if k == "stages"}
+
     def stage_cache(self, key: str, make):
-        """What ``make()`` returns, kept until the graph shown, its results or a position changes."""
+        """What ``make()`` returns, kept until the graph shown or its results change, or (but for
+        the stages) a position changes."""
         if self._stages is None:
             self._stages = {}
         if key not in self._stages:
