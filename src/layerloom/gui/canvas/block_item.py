@@ -140,6 +140,9 @@ def chip_width(label: str) -> float:
     return advance("detail", label) + 6.0
 
 
+SCENE_MOVED = QGraphicsItem.GraphicsItemChange.ItemScenePositionHasChanged
+
+
 class BlockItem(QGraphicsItem):
     """One block's card. Its position is the card's top-left corner, as stored in the design."""
 
@@ -272,9 +275,9 @@ class BlockItem(QGraphicsItem):
 
     # ----- moves
     def itemChange(self, change, value):
-        if change == QGraphicsItem.GraphicsItemChange.ItemScenePositionHasChanged:
+        if change == SCENE_MOVED:
             self._on_moved(self.block_id)
-        return super().itemChange(change, value)
+        return value  # what QGraphicsItem.itemChange returns (no second crossing into Qt)
 
     # ----- drawing
     def paint(self, painter, option, widget=None) -> None:
