@@ -481,10 +481,9 @@ class CanvasScene(QGraphicsScene):
             item = self.wires.get(w)
             if item is not None:
                 src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
-                a = blocks[src].output_pos(w.src_port if src == w.src else 0)
-                b = blocks[dst].input_pos(w.dst_port)
-                if not item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
-                                         self._labelled(w, chosen)):
+                a = blocks[src].output_point(w.src_port if src == w.src else 0)
+                b = blocks[dst].input_point(w.dst_port)
+                if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), self._labelled(w, chosen)):
                     continue
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines

@@ -9,6 +9,7 @@ lines are drawn), the stroked hit shape on the first hit test; both are then kep
 """
 from __future__ import annotations
 
+from functools import lru_cache
 from math import log2
 
 from PySide6.QtCore import QLineF, QPointF, QRectF, Qt
@@ -31,15 +32,28 @@ def stroke_width(channels: int | None) -> float:
     return min(w, theme.WIRE_MAX_WIDTH)
 
 
-def curve_reach(a: QPointF, b: QPointF) -> float:
-    """How far a curve's control points stand out from its ends, horizontally."""
-    return max(abs(b.x() - a.x()) * 0.5, 40.0)
+def curve_reach(ax: float, bx: float) -> float:
+    """How far a curve's control points stand out from its ends (at ``ax`` and ``bx``), horizontally."""
+    return max(abs(bx - ax) * 0.5, 40.0)
+
+
+NO_LABEL = ("", 0.0, 0.0)
+
+
+@lru_cache(maxsize=1024)
+def shape_label(shape) -> tuple[str, float, float]:
+    """A wire's label for the tensor ``shape`` it carries (None: none), with the label box's width
+    and height."""
+    if shape is None:
+        return NO_LABEL
+    text = str(shape)
+    return text, advance("figure", text) + 6.0, metrics("figure").height() + 1.0
 
 
 def curve(a: QPointF, b: QPointF) -> QPainterPath:
     """A smooth curve leaving ``a`` and entering ``b`` horizontally."""
     p = QPainterPath(a)
-    reach = curve_reach(a, b)
+    reach = curve_reach(a.x(), b.x())
     p.cubicTo(QPointF(a.x() + reach, a.y()), QPointF(b.x() - reach, b.y()), b)
     return p
 
@@ -81,41 +95,40 @@ class WireItem(QGraphicsItem):
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
-    def set_geometry(self, a: QPointF, b: QPointF, points=None, labelled: bool = True) -> bool:
-        """Draw the wire from ``a`` to ``b`` as a curve, or through corner ``points`` when given;
-        width and label follow :attr:`carried` (no label when not ``labelled``: another wire from
-        the same output already says the shape). Returns whether anything changed (nothing is
-        redone for a wire whose ends, route, shape and label stay as they were)."""
+    def set_geometry(self, a: tuple, b: tuple, points=None, labelled: bool = True) -> bool:
+        """Draw the wire from scene point ``a`` to ``b`` (``(x, y)``) as a curve, or through corner
+        ``points`` when given; width and label follow :attr:`carried` (no label when not
+        ``labelled``: another wire from the same output already says the shape). Returns whether
+        anything changed (nothing is redone for a wire whose ends, route, shape and label stay)."""
         shape = self.carried
-        key = (points or (a.x(), a.y(), b.x(), b.y()), shape, labelled)
+        key = (points or (a, b), shape, labelled)
         if key == self._key:
             return False
         self._key = key
         self.prepareGeometryChange()
         self.known = shape is not None
-        self.label = str(shape) if shape is not None and labelled else ""
-        self.width = stroke_width(shape[0] if shape is not None else None)
+        self.width = width = stroke_width(shape[0] if shape is not None else None)
         self._routed = bool(points)
         if points:
             self._ends = points
             self._lines = [QLineF(*p, *q) for p, q in zip(points, points[1:])]
             xs, ys = [p[0] for p in points], [p[1] for p in points]
-            box = QRectF(min(xs), min(ys), max(xs) - min(xs), max(ys) - min(ys))  # rounded corners stay inside
-            mid = self._lines[2].center()  # a routed wire: the middle of its lane
+            left, top, right, bottom = min(xs), min(ys), max(xs), max(ys)  # rounded corners stay inside
+            (mx, my), (nx, ny) = points[2], points[3]  # a routed wire: the middle of its lane
         else:
             self._ends = (a, b)
-            self._lines = [QLineF(a, b)]
-            reach = curve_reach(a, b)  # the curve stays within its control points' box
-            xs = (a.x(), b.x(), a.x() + reach, b.x() - reach)
-            box = QRectF(min(xs), min(a.y(), b.y()), max(xs) - min(xs), abs(b.y() - a.y()))
-            mid = (a + b) / 2  # the curve is symmetric about the middle of its ends
+            self._lines = [QLineF(*a, *b)]
+            (mx, my), (nx, ny) = a, b  # the curve is symmetric about the middle of its ends
+            reach = curve_reach(a[0], b[0])  # and stays within its control points' box
+            left, right = min(a[0], b[0], b[0] - reach), max(a[0], b[0], a[0] + reach)
+            top, bottom = min(a[1], b[1]), max(a[1], b[1])
         self._path = None  # built on first use (a close-up paint or a hit test)
         self._hit = None  # stroked on first use (hit tests), then kept until the path changes
-        bounds = box.adjusted(-self.width, -self.width, self.width, self.width)
+        bounds = QRectF(left - width, top - width, right - left + 2 * width, bottom - top + 2 * width)
+        self.label, w, h = shape_label(shape) if labelled else NO_LABEL
         if self.label:
-            fm = metrics("figure")
-            w, h = advance("figure", self.label) + 6.0, fm.height() + 1.0
-            self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
+            x, y = (mx + nx) / 2, (my + ny) / 2
+            self._label_rect = QRectF(x - w / 2, y - width / 2 - h - 1.0, w, h)
             bounds = bounds.united(self._label_rect)
         else:
             self._label_rect = QRectF()
@@ -125,7 +138,7 @@ class WireItem(QGraphicsItem):
     def path(self) -> QPainterPath:
         """The wire's drawn path (built from its ends or corner points on first use)."""
         if self._path is None:
-            self._path = routed(self._ends) if self._routed else curve(*self._ends)
+            self._path = routed(self._ends) if self._routed else curve(*(QPointF(*p) for p in self._ends))
         return self._path
 
     @property
