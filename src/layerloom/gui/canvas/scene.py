@@ -365,10 +365,15 @@ class CanvasScene(QGraphicsScene):
         if not self._ov_valid:
             self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
+            by_status: dict = {}  # a card's status → (colour rgba, its group's rectangles)
             for bid, item in self.cards():
-                colour = _overview_colour(item)
-                self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
-                self._ov_where[bid] = colour.rgba()
+                group = by_status.get(item.state.status)
+                if group is None:
+                    colour = _overview_colour(item)
+                    group = by_status[item.state.status] = (
+                        colour.rgba(), self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1])
+                group[1][bid] = CARD_RECT.translated(item.pos())
+                self._ov_where[bid] = group[0]
             self._ov_valid = True
         chosen = [] if moving is False else [
             (theme.ACCENT, [CARD_RECT.translated(i.pos()) for i in self.selectedItems() if isinstance(i, BlockItem)])]
