@@ -97,3 +97,92 @@ def test_ledger_compares_with_another_design():
     macs = next(x for x in json.loads(r.stdout)["baseline"]["totals"] if x["metric"] == "macs")
     assert (macs["current"], macs["baseline"]) == (this["macs"], other["macs"])
     assert macs["delta"] == this["macs"] - other["macs"]
+
+
+def _one_line_error(r, code=2):
+    assert r.returncode == code, (r.returncode, r.stderr)
+    assert "Traceback" not in r.stderr and r.stderr.count("\n") == 1, r.stderr
+    return r.stderr
+
+
+@pytest.mark.parametrize("shape, words", [("3x99999999x99999999", "Height 99999999 is above the maximum 65536"),
+                                          ("", "must be three numbers")])
+def test_an_input_shape_out_of_range_or_empty_is_one_line_and_exit_2(shape, words):
+    err = _one_line_error(run("ledger", "samples/fastener_sorter.loom", "--input", shape))
+    assert "--input" in err and words in err
+
+
+def test_a_batch_beyond_the_file_format_range_is_refused():
+    err = _one_line_error(run("ledger", "samples/fastener_sorter.loom", "--batch", "70000"))
+    assert "at most 65,536" in err
+
+
+def test_a_mistyped_command_is_an_error_with_a_suggestion_not_the_editor():
+    err = _one_line_error(run("chek", "samples/fastener_sorter.loom"))
+    assert "did you mean 'check'" in err
+
+
+def test_without_a_display_the_editor_says_so_in_one_line():
+    r = subprocess.run([sys.executable, "-m", "layerloom", "samples/fastener_sorter.loom"], capture_output=True,
+                       text=True, cwd=ROOT, env={"PYTHONPATH": str(ROOT / "src"), "PATH": "/usr/bin:/bin"})
+    err = _one_line_error(r)
+    assert "no display" in err and "layerloom check FILE" in err
+
+
+def test_the_display_check_lets_other_platforms_through():
+    from layerloom.app import missing_display
+
+    assert missing_display({}, "linux")
+    assert missing_display({"QT_QPA_PLATFORM": "xcb"}, "linux")
+    assert missing_display({"DISPLAY": ":0"}, "linux") is None
+    assert missing_display({"WAYLAND_DISPLAY": "wayland-0"}, "linux") is None
+    assert missing_display({"QT_QPA_PLATFORM": "offscreen"}, "linux") is None
+    assert missing_display({}, "darwin") is None and missing_display({}, "win32") is None
+
+
+CLASH = "samples/shelf_gap_counter_clash.loom"
+
+
+def test_ledger_json_of_a_design_with_errors_is_marked_incomplete_and_exits_1():
+    r = run("ledger", CLASH, "--json")
+    assert r.returncode == 1
+    data = json.loads(r.stdout)
+    assert data["complete"] is False
+    assert [f["code"] for f in data["findings"]] == ["join.channels"]
+    assert data["findings"][0]["numbers"] == [64, 128]
+    clean = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json").stdout)
+    assert clean["complete"] is True and clean["findings"] == []
+    assert run("ledger", CLASH).returncode == 1 and run("ledger", CLASH, "--csv").returncode == 1
+
+
+def test_ledger_warns_when_the_baseline_has_errors():
+    r = run("ledger", "samples/fastener_sorter.loom", "--baseline", CLASH)
+    assert r.returncode == 0
+    assert f"the baseline {CLASH} has 1 error finding(s), so its totals are partial" in r.stdout
+    data = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json", "--baseline", CLASH).stdout)
+    assert data["baseline"]["complete"] is False
+    assert "partial" not in run("ledger", "samples/fastener_sorter.loom", "--baseline",
+                                "samples/leaf_blight_grader.loom").stdout
+
+
+def test_check_json_carries_the_two_numbers_behind_a_badge():
+    (f,) = json.loads(run("check", CLASH, "--json").stdout)["findings"]
+    assert f["numbers"] == [64, 128]  # the badge reads "64 ≠ 128"
+
+
+def test_ledger_help_lists_every_target_with_its_assumptions():
+    from layerloom.core.targets import PRESETS
+
+    text = " ".join(run("ledger", "--help").stdout.split())
+    for t in PRESETS:
+        assert t.name in text and " ".join(t.assumptions.split()) in text
+
+
+def test_a_name_with_a_line_break_stays_on_one_line_in_errors(tmp_path):
+    data = json.loads((ROOT / "samples/fastener_sorter.loom").read_text())
+    data["blocks"][1]["name"] = "stem\nsecond line"
+    data["blocks"][1]["settings"]["stride"] = 0
+    bad = tmp_path / "bad.loom"
+    bad.write_text(json.dumps(data))
+    err = _one_line_error(run("check", str(bad)))
+    assert "'stem\\nsecond line'" in err

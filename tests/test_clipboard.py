@@ -73,3 +73,16 @@ def test_bad_copied_blocks_name_the_place_and_value():
     data["blocks"][0]["kind"] = "Teleporter"
     with pytest.raises(ClipboardError, match="unknown block kind 'Teleporter'"):
         paste_edit(d, data)
+
+
+def test_pasted_text_with_an_infinite_position_or_invalid_text_is_refused():
+    d, _ = bottleneck()
+    block = {"id": "q", "kind": "ReLU", "name": "r", "settings": {}, "position": [0, 0]}
+    text = to_text({"format": "layerloom-blocks", "version": 1, "blocks": [block], "wires": []})
+    with pytest.raises(ClipboardError, match="blocks.0.position.0: the number is too large"):
+        from_text(text.replace('"position": [0, 0]', '"position": [1e400, 0]'))
+    with pytest.raises(ClipboardError, match="blocks.0.name: .* not valid text"):
+        from_text(text.replace('"name": "r"', '"name": "r\\ud800"'))
+    block["position"] = [3e9, 0]
+    with pytest.raises(ClipboardError, match=r"copied block 1 \(r\): position .* beyond"):
+        paste_edit(d, {"format": "layerloom-blocks", "version": 1, "blocks": [block], "wires": []})

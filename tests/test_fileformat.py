@@ -7,7 +7,8 @@ import os
 import pytest
 
 from layerloom import Design, LoomFileError, load, save
-from layerloom.core import fileformat
+from layerloom.core import atomic_write, fileformat
+from layerloom.core.fileformat import parse
 
 NOTES = "Für die Türkamera — 夜間モード\nzweite Zeile\r\n\ttab, \"quotes\" and \\ backslash 🙂\n"
 
@@ -60,7 +61,7 @@ def test_interrupted_save_keeps_the_old_file(tmp_path, monkeypatch, fail_at):
     def fail(*args, **kwargs):
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(fileformat.os, fail_at.split(".")[1], fail)
+    monkeypatch.setattr(atomic_write.os, fail_at.split(".")[1], fail)
     with pytest.raises(OSError):
         save(changed, path)
     monkeypatch.undo()
@@ -176,3 +177,103 @@ def test_saving_leaves_no_stray_files_in_the_folder(tmp_path):
     save(_design(), tmp_path / "a.loom")
     save(_design(), tmp_path / "b.loom")
     assert sorted(os.listdir(tmp_path)) == ["a.loom", "b.loom"]
+
+
+# ----- values a file may not hold, and how messages show values
+
+
+def _sample_data():
+    from layerloom.core.fileformat import to_data
+    from layerloom.core.design import Design
+
+    d = Design("values")
+    x = d.input(3, 32, 32, name="camera")
+    d.add("Output", d.add("ReLU", x, name="act"))
+    return to_data(d)
+
+
+@pytest.mark.parametrize("where, set_value", [
+    ("blocks[0] (camera) position[0]", lambda data: data["blocks"][0].__setitem__("position", ["1e400", 0])),
+    ("budget.latency_ms", lambda data: data.__setitem__("budget", {"latency_ms": "1e400"})),
+    ("target.gmacs_per_second", lambda data: data.__setitem__(
+        "target", {"name": "t", "gmacs_per_second": "1e400", "gbytes_per_second": 1})),
+    ("baseline.totals.macs", lambda data: data.__setitem__(
+        "baseline", {"name": "b", "totals": {"macs": "-1e400"}, "blocks": {}})),
+])
+def test_a_number_that_reads_as_infinity_is_refused_naming_its_place(where, set_value):
+    data = _sample_data()
+    set_value(data)
+    text = json.dumps(data).replace('"1e400"', "1e400").replace('"-1e400"', "-1e400")
+    with pytest.raises(LoomFileError) as e:
+        parse(text, "inf.loom")
+    assert f"inf.loom: {where}: the number is too large" in str(e.value)
+
+
+def test_a_position_too_far_out_or_a_budget_integer_too_large_is_refused():
+    data = _sample_data()
+    data["blocks"][1]["position"] = [1e300, 0]
+    with pytest.raises(LoomFileError, match=r"blocks\[1\] \(act\): position .* beyond"):
+        parse(json.dumps(data))
+    data = _sample_data()
+    data["budget"] = {"latency_ms": 10 ** 400}
+    with pytest.raises(LoomFileError, match="budget latency_ms is too large"):
+        parse(json.dumps(data))
+
+
+@pytest.mark.parametrize("place", ["name", "block", "motif", "notes"])
+def test_a_lone_surrogate_in_any_text_is_refused_on_load(place):
+    data = _sample_data()
+    if place == "name":
+        data["name"] = "cam\ud800"
+    elif place == "block":
+        data["blocks"][1]["name"] = "act\udfff"
+    elif place == "motif":
+        data["motifs"] = [{"name": "m\ud83d", "blocks": [], "wires": []}]
+    else:
+        data["notes"] = "\udc80"
+    text = json.dumps(data)  # writes the lone surrogate as a \uXXXX escape, as a hostile file would
+    with pytest.raises(LoomFileError, match="not valid text"):
+        parse(text, "s.loom")
+
+
+def test_a_joined_surrogate_pair_is_valid_text():
+    data = _sample_data()
+    data["blocks"][1]["name"] = "act 😀"
+    assert parse(json.dumps(data)).blocks[data["blocks"][1]["id"]].name == "act 😀"
+
+
+def test_rename_and_set_field_refuse_a_lone_surrogate():
+    from layerloom.core import edits
+    from layerloom.core.design import Design
+
+    d = Design()
+    x = d.input(3, 8, 8)
+    with pytest.raises(edits.EditError, match="input_1: block name 'a\\\\ud800' is not valid text"):
+        edits.rename(d, x, "a\ud800")
+    with pytest.raises(edits.EditError, match="not valid text"):
+        d.set_field("name", "\ud800")
+    with pytest.raises(edits.EditError, match="not valid text"):
+        d.add("ReLU", x, name="r\udc00")
+    assert d.name == "untitled" and len(d.blocks) == 1
+
+
+def test_messages_quote_and_shorten_values():
+    data = _sample_data()
+    data["blocks"][1]["settings"] = {"p": "x" * 50_000_000}
+    data["blocks"][1]["kind"] = "Dropout"
+    with pytest.raises(LoomFileError) as e:
+        parse(json.dumps(data), "big.loom")
+    message = str(e.value)
+    assert len(message) < 300 and "(50,000,000 characters)" in message
+    data = _sample_data()
+    data["batch"] = "y" * 10_000_000
+    with pytest.raises(LoomFileError) as e:
+        parse(json.dumps(data), "big.loom")
+    assert len(str(e.value)) < 300 and "batch" in str(e.value)
+    data = _sample_data()
+    data["blocks"][1]["name"] = "two\nlines"
+    data["blocks"][1]["settings"] = {"negative_slope": 2}
+    data["blocks"][1]["kind"] = "LeakyReLU"
+    with pytest.raises(LoomFileError) as e:
+        parse(json.dumps(data), "n.loom")
+    assert "\n" not in str(e.value) and "'two\\nlines'" in str(e.value)

@@ -1,14 +1,17 @@
 """The ``layerloom`` command: ``check`` and ``ledger`` a design file; with a file name only (or
 nothing) it opens the editor.
 
-Exit codes: 0 fine; 1 the design has error findings (``check``); 2 the file or an option could not
-be used (the message says where and why).
+Exit codes: 0 fine; 1 the design has error findings (``check``; ``ledger``, whose totals are then
+partial); 2 the file, an option or the command could not be used (one line says where and why).
 """
 from __future__ import annotations
 
 import argparse
 import json
+import math
+import os
 import sys
+import textwrap
 
 from layerloom import fit_command
 from layerloom.core import units
@@ -18,6 +21,7 @@ from layerloom.core.findings import ERROR
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
 from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
+from layerloom.core.values import one_line, quote
 from layerloom.measure import command as measure_command
 from layerloom.interchange import add_import_parser
 from layerloom import picture
@@ -26,6 +30,7 @@ from layerloom import picture
 # a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
 
 COMMANDS = ("check", "ledger", "export", "import", "measure", "fit", "picture")
+MAX_BATCH = 65_536  # as the file format's schema
 
 
 class UsageError(Exception):
@@ -34,15 +39,15 @@ class UsageError(Exception):
 
 def _open(args) -> Design:
     design = load(args.file)
-    if getattr(args, "input", None):
+    if getattr(args, "input", None) is not None:
         inputs = design.of_kind("Input")
         if len(inputs) != 1:
             raise UsageError(f"--input needs a design with exactly one Input block; {args.file} has {len(inputs)}")
         try:
             c, h, w = parse_shape(args.input)
-        except ValueError as e:
-            raise UsageError(f"--input: {e}") from None
-        design.set(inputs[0].id, channels=c, height=h, width=w)
+            design.set(inputs[0].id, channels=c, height=h, width=w)
+        except ValueError as e:  # SettingError names the size and its range
+            raise UsageError(f"--input {quote(args.input)}: {e}") from None
     if getattr(args, "dtype", None):
         design.set_field("dtype", args.dtype)
     if getattr(args, "target", None):
@@ -51,18 +56,20 @@ def _open(args) -> Design:
         except KeyError as e:
             raise UsageError(f"--target: {e.args[0]}") from None
     if getattr(args, "batch", None) is not None:
-        if args.batch < 1:
-            raise UsageError(f"--batch must be at least 1, not {args.batch}")
+        if not 1 <= args.batch <= MAX_BATCH:
+            raise UsageError(f"--batch must be at least 1 and at most {MAX_BATCH:,}, not {args.batch}")
         design.set_field("batch", args.batch)
     return design
 
 
 def _finding_dict(design, f) -> dict:
+    """A finding as JSON; ``numbers`` are the two clashing values a badge shows (``256 ≠ 128``)."""
     from layerloom.core.mends import mends_for
 
     return {"code": f.code, "severity": f.severity, "block": f.block,
             "block_name": design.blocks[f.block].name if f.block in design.blocks else None,
             "path": list(f.path), "port": f.port, "message": f.message,
+            "numbers": list(f.numbers) if f.numbers else None,
             "mends": [m.label for m in mends_for(design, f)]}
 
 
@@ -77,9 +84,9 @@ def _check(args) -> int:
                          indent=1, ensure_ascii=False))
     else:
         for f in findings:
-            print(f"{f.severity:<7} {f.code:<20} {f.message}")
+            print(f"{f.severity:<7} {f.code:<20} {one_line(f.message)}")
             for m in mends_for(design, f):
-                print(f"        mend: {m.label}")
+                print(f"        mend: {one_line(m.label)}")
         counts = {s: sum(f.severity == s for f in findings) for s in ("error", "warning", "note")}
         verdict = "well formed" if not errors else "not well formed"
         print(f"{args.file}: {verdict} — {counts['error']} errors, {counts['warning']} warnings, {counts['note']} notes")
@@ -97,37 +104,41 @@ def _ledger(args) -> int:
 
     design = _open(args)
     ledger = Ledger(design.analysis())
-    baseline = _baseline(args, design)
+    base_errors: list = []
+    baseline = _baseline(args, design, base_errors)
+    errors = [f for f in design.findings() if f.severity == ERROR]
     rows, t = ledger.rows, ledger.totals
     peak_name = design.blocks[t.peak_block].name if t.peak_block else "—"
     if args.json:
         print(json.dumps({
-            "file": args.file, "batch": ledger.batch, "dtype": ledger.dtype,
+            "file": args.file, "complete": not errors, "batch": ledger.batch, "dtype": ledger.dtype,
             "blocks": [{"block": r.block, "name": r.name, "kind": r.kind, "depth": r.depth,
                         "shape": list(r.shape) if r.shape else None, "weights": r.weights, "buffers": r.buffers,
                         "macs": r.macs, "other_ops": r.other, "out_memory_bytes": r.memory,
-                        "receptive_field": list(r.rf) if r.rf else None, "jump": list(r.jump) if r.jump else None,
+                        "receptive_field": _pixels(r.rf), "jump": _pixels(r.jump),
                         "bytes_moved": r.moved, "intensity_macs_per_byte": round(r.intensity, 3),
-                        "latency_s": r.latency, "bound": r.bound or None} for r in rows],
+                        "latency_s": _finite(r.latency), "bound": r.bound or None} for r in rows],
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
                        "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
-                       "latency_s": t.latency},
+                       "latency_s": _finite(t.latency)},
             "training": training_memory(ledger, args.optimizer, args.mixed_precision)._asdict(),
             "target": ledger.target.to_data() if ledger.target else None,
             "budget": design.budget,
+            "findings": [_finding_dict(design, f) for f in errors],
             "baseline": None if baseline is None else {
-                "name": baseline["name"],
+                "name": baseline["name"], "complete": not base_errors,
                 "totals": [{"metric": d.metric, "current": d.current, "baseline": d.baseline, "delta": d.delta,
                             "percent": d.percent} for d in compare(ledger, baseline)]}},
             indent=1, ensure_ascii=False))
-        return 0
+        return 1 if errors else 0
     if args.csv:
         sys.stdout.write(ledger_csv(ledger))
-        return 0
+        _warn_partial(args, errors, base_errors, sys.stderr)
+        return 1 if errors else 0
     timed = ledger.latency is not None
     table = [LEDGER_COLUMNS + (TARGET_COLUMNS if timed else ())]
     for i, r in enumerate(rows, 1):
-        cells = (str(i), r.name, r.kind, str(r.depth), str(r.shape or "?"),
+        cells = (str(i), one_line(r.name, 60), r.kind, str(r.depth), str(r.shape or "?"),
                  units.count(r.weights) if r.weights else "·", units.count(r.macs) if r.macs else "·",
                  units.size(r.memory) if r.memory else "·", rf_text(r.rf))
         if timed:
@@ -158,10 +169,29 @@ def _ledger(args) -> int:
             fmt = (lambda v: f"{v * 1e3:.3g} ms") if d.metric == "latency" else (
                 units.size if d.metric == "peak_memory" else units.count)
             print(f"  {d.label:<24} {fmt(d.current):>10}  was {fmt(d.baseline):>10}  change {fmt(d.delta):>10}{pct}")
-    errors = [f for f in design.findings() if f.severity == ERROR]
+    _warn_partial(args, errors, base_errors, sys.stdout)
+    return 1 if errors else 0
+
+
+def _warn_partial(args, errors: list, base_errors: list, out) -> None:
+    """Say that totals are partial: of the design, and of the baseline from ``--baseline``."""
     if errors:
-        print(f"{len(errors)} error finding(s): blocks after them are not counted; see `layerloom check {args.file}`")
-    return 0
+        print(f"{len(errors)} error finding(s): blocks after them are not counted; see `layerloom check {args.file}`",
+              file=out)
+    if base_errors:
+        print(f"warning: the baseline {args.baseline} has {len(base_errors)} error finding(s), so its totals are "
+              f"partial; see `layerloom check {args.baseline}`", file=out)
+
+
+def _pixels(pair) -> list | None:
+    from layerloom.core.ledger_csv import pixels
+
+    return [pixels(v) for v in pair] if pair else None
+
+
+def _finite(v: float | None) -> float | None:
+    """JSON has no infinity: a latency beyond a float's range is written as null."""
+    return v if v is not None and math.isfinite(v) else None
 
 
 def _export(args) -> int:
@@ -188,7 +218,7 @@ def _export(args) -> int:
     try:
         made = export(design, args.class_name)
     except ExportRefused as e:
-        print(f"layerloom: {args.file}: {e}", file=sys.stderr)
+        print(f"layerloom: {one_line(f'{args.file}: {e}')}", file=sys.stderr)
         return 1
     except ValueError as e:
         raise UsageError(f"--class-name: {e}") from None
@@ -204,17 +234,28 @@ def _export(args) -> int:
         report = verify(design, target)
     except ImportError as e:
         raise UsageError(f"--verify needs PyTorch ({e}); install it with: pip install torch") from None
+    except ValueError as e:
+        raise UsageError(f"--verify: {e}") from None
     print(report.table())
     return 0 if report.ok else 1
 
 
-def _baseline(args, design) -> dict | None:
-    """The baseline to compare with: ``--baseline FILE`` (its current ledger), else the design's pinned one."""
+def _baseline(args, design, errors: list) -> dict | None:
+    """The baseline to compare with: ``--baseline FILE`` (its current ledger; its error findings
+    go to ``errors``), else the design's pinned one."""
     from layerloom.core.baseline import snapshot_of_file
 
     if not getattr(args, "baseline", None):
         return design.baseline
-    return snapshot_of_file(args.baseline, design.target)
+    return snapshot_of_file(args.baseline, design.target, errors=errors)
+
+
+def _targets_text() -> str:
+    """The target presets with their assumptions, for ``ledger --help``."""
+    lines = ["target presets for --target (first-order roofline estimates):"]
+    for t in PRESETS:
+        lines += [f"  {t.name}", *textwrap.wrap(t.assumptions, 96, initial_indent="      ", subsequent_indent="      ")]
+    return "\n".join(lines + [textwrap.fill(CAUTION, 100)])
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -226,7 +267,8 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("--json", action="store_true", help="print findings as JSON")
     c.add_argument("--input", metavar="CxHxW", help="override the input shape, e.g. 3x224x224")
     c.set_defaults(run=_check)
-    led = sub.add_parser("ledger", help="per-block cost table: shapes, weights, MACs, activation memory")
+    led = sub.add_parser("ledger", help="per-block cost table: shapes, weights, MACs, activation memory",
+                         formatter_class=argparse.RawDescriptionHelpFormatter, epilog=_targets_text())
     led.add_argument("file", help="a .loom design")
     fmt = led.add_mutually_exclusive_group()
     fmt.add_argument("--csv", action="store_true", help="print the table as CSV")
@@ -263,6 +305,13 @@ def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     parser = _parser()
     if not argv or (argv[0] not in COMMANDS and not argv[0].startswith("-")):
+        from difflib import get_close_matches
+
+        near = get_close_matches(argv[0], COMMANDS, n=1, cutoff=0.6) if argv else []
+        if near and not os.path.exists(argv[0]):
+            print(f"layerloom: {quote(argv[0])} is not a command (and no such file); did you mean "
+                  f"'{near[0]}'? Commands: {', '.join(COMMANDS)}", file=sys.stderr)
+            return 2
         from layerloom.app import run_editor
 
         return run_editor(argv[:1])
@@ -273,7 +322,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return args.run(args)
     except (LoomFileError, UsageError, picture.PictureError) as e:
-        print(f"layerloom: {e}", file=sys.stderr)
+        print(f"layerloom: {one_line(str(e))}", file=sys.stderr)
         return 2
     except BrokenPipeError:
         return 0

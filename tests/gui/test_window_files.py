@@ -3,8 +3,11 @@ broken file, closing with unsaved changes, recent files, export, window layout k
 
 Questions to the user go through a scripted stand-in for :class:`layerloom.gui.files.Prompts`.
 """
+import os
 import shutil
 from pathlib import Path
+
+import pytest
 
 from PySide6.QtCore import QSettings, Qt
 from PySide6.QtGui import QAction
@@ -215,3 +218,70 @@ def test_export_canvas_pictures(qtbot, tmp_path):
     assert (tmp_path / "sorter.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # the PNG signature (PNG spec)
     svg = (tmp_path / "sorter.svg").read_text(encoding="utf-8")
     assert svg.count("<path") >= len(window.document.design.blocks)  # at least one outline per card
+
+
+def _failing_save(monkeypatch, error):
+    """Make every write of a design file fail with ``error`` (a full disk, a refused permission)."""
+    from layerloom.core import atomic_write
+
+    real = atomic_write.write_atomically
+
+    def write(path, data):
+        if str(path).endswith(".autosave") and not isinstance(error, UnicodeError):
+            return real(path, data)  # the recovery copy lands elsewhere on a real disk; here it works
+        raise error
+
+    monkeypatch.setattr(fileformat, "write_atomically", write)
+
+
+@pytest.mark.parametrize("error", [OSError(28, "No space left on device"), PermissionError(13, "Permission denied")],
+                         ids=["disk full", "permission"])
+def test_a_failed_save_says_why_and_keeps_the_design_and_a_recovery_copy(qtbot, tmp_path, monkeypatch, error):
+    target = sample_copy(tmp_path, "fastener_sorter.loom")
+    window, prompts = open_window(qtbot, tmp_path, [target])
+    before = target.read_bytes()
+    add_conv(window)
+    _failing_save(monkeypatch, error)
+    assert window.files.save() is False
+    title, text = prompts.asked[-1]
+    assert title == "Cannot save design" and error.strerror in text and "still open and unsaved" in text
+    assert "recovery copy is kept" in text
+    assert window.document.modified and len(window.document.design.blocks) > 0
+    copy = target.with_name(target.name + ".autosave")
+    assert copy.exists() and len(fileformat.load(copy).blocks) == len(window.document.design.blocks)
+    assert target.read_bytes() == before
+    monkeypatch.undo()
+    window.document.undo_stack.setClean()  # close without questions
+    window.close()
+
+
+def test_a_save_that_cannot_encode_the_text_says_so_and_keeps_the_design(qtbot, tmp_path, monkeypatch):
+    target = sample_copy(tmp_path, "fastener_sorter.loom")
+    window, prompts = open_window(qtbot, tmp_path, [target])
+    add_conv(window)
+    window.files.autosave()  # an earlier recovery copy
+    copy = target.with_name(target.name + ".autosave")
+    saved_copy = copy.read_bytes()
+    window.document.design.notes = "\udc80"  # invalid text that slipped past every check
+    assert window.files.save() is False
+    title, text = prompts.asked[-1]
+    assert "cannot be written as UTF-8" in text and "'\\udc80'" in text
+    assert window.files.autosave() is None  # the timer's autosave fails quietly into the status bar
+    assert "Autosave" in window.statusBar().currentMessage()
+    assert copy.read_bytes() == saved_copy  # the earlier recovery copy survives
+    window.document.design.notes = ""
+    window.document.undo_stack.setClean()
+    window.close()
+
+
+def test_a_file_with_a_251_byte_name_saves_and_gets_a_recovery_copy(qtbot, tmp_path):
+    target = tmp_path / ("n" * 246 + ".loom")
+    shutil.copyfile(SAMPLES / "fastener_sorter.loom", target)
+    window, prompts = open_window(qtbot, tmp_path, [target])
+    add_conv(window)
+    copy = window.files.autosave()
+    assert copy is not None and copy.exists() and copy.parent == target.parent
+    assert len(os.fsencode(copy.name)) <= 255
+    assert window.files.save() and not copy.exists()  # a normal save removes the copy
+    assert len(fileformat.load(target).blocks) == len(window.document.design.blocks)
+    window.close()

@@ -8,7 +8,10 @@ ledger can overlay the old curves on the new whatever is grouped into motifs.
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from typing import NamedTuple
+
+from layerloom.core.units import ratio
 
 METRICS = (("weights", "weights"), ("macs", "MACs"), ("peak_memory", "peak live activations"),
            ("latency", "estimated latency"))
@@ -19,7 +22,7 @@ class Difference(NamedTuple):
 
     metric: str
     label: str
-    current: float
+    current: float  # counts and bytes as exact integers, latency in seconds
     baseline: float
 
     @property
@@ -28,7 +31,7 @@ class Difference(NamedTuple):
 
     @property
     def percent(self) -> float | None:
-        return 100.0 * self.delta / self.baseline if self.baseline else None
+        return ratio(100 * self.delta, self.baseline) if self.baseline else None
 
 
 def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
@@ -48,23 +51,28 @@ def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
             "live": [int(v) for v in ledger.live],
         },
     }
-    if ledger.latency is not None:
+    if ledger.latency is not None and math.isfinite(t.latency):  # a file holds no infinity
         data["totals"]["latency"] = t.latency
         data["blocks"]["latency"] = [float(v) for v in ledger.cumulative_latency]
         data["target"] = ledger.target.name
     return data
 
 
-def snapshot_of_file(path, target=None, name: str | None = None) -> dict:
+def snapshot_of_file(path, target=None, name: str | None = None, errors: list | None = None) -> dict:
     """A baseline from another design file (named ``name``, else the design's own name). Without a
-    target of its own, the other design is estimated on ``target`` so latencies compare. Raises
-    :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
+    target of its own, the other design is estimated on ``target`` so latencies compare. The other
+    design's error findings, whose blocks onward are not counted, are appended to ``errors`` when
+    given. Raises :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
     from layerloom.core.fileformat import load
     from layerloom.core.ledger import Ledger
 
     other = load(path)
     if other.target is None and target is not None:
         other.set_field("target", target)
+    if errors is not None:
+        from layerloom.core.findings import ERROR
+
+        errors += [f for f in other.findings() if f.severity == ERROR]
     return snapshot(Ledger(other.analysis()), name or other.name)
 
 
@@ -75,5 +83,5 @@ def compare(ledger, baseline: dict) -> list[Difference]:
     for key, label in METRICS:
         if now.get(key) is None or key not in baseline["totals"]:
             continue
-        out.append(Difference(key, label, float(now[key]), float(baseline["totals"][key])))
+        out.append(Difference(key, label, now[key], baseline["totals"][key]))
     return out

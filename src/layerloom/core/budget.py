@@ -7,10 +7,12 @@ goes over the limit, with the overrun in its message.
 """
 from __future__ import annotations
 
-import numpy as np
+import math
 
 from layerloom.core import units
 from layerloom.core.findings import NOTE, WARNING, Finding
+from layerloom.core.units import ratio
+from layerloom.core.values import quote
 
 LIMITS = {
     "weights": "weights",
@@ -25,10 +27,15 @@ def check_budget(budget: dict) -> dict:
     clean = {}
     for key, value in budget.items():
         if key not in LIMITS:
-            raise ValueError(f"budget has no limit {key!r} (limits: {', '.join(LIMITS)})")
+            raise ValueError(f"budget has no limit {quote(key)} (limits: {', '.join(LIMITS)})")
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
-            raise ValueError(f"budget {key} must be a number above 0, not {value!r}")
-        clean[key] = float(value) if key == "latency_ms" else int(value)
+            raise ValueError(f"budget {key} must be a number above 0, not {quote(value)}")
+        try:
+            clean[key] = float(value) if key == "latency_ms" else int(value)
+        except OverflowError:
+            raise ValueError(f"budget {key} is too large") from None
+        if clean[key] == math.inf:
+            raise ValueError(f"budget {key} is too large")
     return clean
 
 
@@ -53,17 +60,17 @@ def budget_findings(ledger, budget: dict) -> list[Finding]:
             found.append(Finding("budget.no_target", NOTE, "", "the latency budget needs a target to estimate "
                                  "latency on; choose one in the design's settings"))
             continue
-        over = np.flatnonzero(curve > limit)
-        if not len(over):
+        first = next((i for i, v in enumerate(curve) if v > limit), None)
+        if first is None:
             continue
-        at = ledger.order[int(over[0])]
-        worst = float(curve.max())
+        at = ledger.order[first]
+        worst = curve.max()
         what = LIMITS[key]
         so_far = "alive there" if key == "memory" else "so far"
         total = "the peak is" if key == "memory" else "the design totals"
         found.append(Finding(f"budget.{key}", WARNING, at,
                              f"{what}: the budget of {_text(key, limit)} is passed at {blocks[at].name} "
-                             f"({_text(key, float(curve[over[0]]))} {so_far}); {total} {_text(key, worst)}, "
-                             f"{100 * worst / limit:.0f} % of the budget",
+                             f"({_text(key, curve[first])} {so_far}); {total} {_text(key, worst)}, "
+                             f"{ratio(100 * worst, limit):.0f} % of the budget",
                              numbers=(_text(key, worst), _text(key, limit))))
     return found

@@ -20,6 +20,7 @@ import re
 from layerloom.core import edits
 from layerloom.core.graph import Wire
 from layerloom.core.settings import SettingError
+from layerloom.core.values import POSITION_LIMIT, JsonReader, bad_value, label, quote
 
 FORMAT, VERSION = "layerloom-blocks", 1
 
@@ -45,13 +46,17 @@ def to_text(data: dict) -> str:
 def from_text(text: str) -> dict:
     """Parse clipboard text; raises :class:`ClipboardError` unless it holds copied blocks."""
     try:
-        data = json.loads(text)
+        reader = JsonReader()
+        data = reader.loads(text)
     except (json.JSONDecodeError, RecursionError) as e:
         raise ClipboardError(f"the clipboard does not hold Layerloom blocks (not JSON: {e})") from None
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ClipboardError("the clipboard does not hold Layerloom blocks")
     if data.get("version") != VERSION:
-        raise ClipboardError(f"copied blocks of version {data.get('version')!r} cannot be pasted (this reads {VERSION})")
+        raise ClipboardError(f"copied blocks of version {quote(data.get('version'))} cannot be pasted (this reads {VERSION})")
+    bad = bad_value(data) if reader.suspect(text) else None
+    if bad is not None:
+        raise ClipboardError(f"copied blocks: {'.'.join(map(str, bad[0]))}: {bad[1]}")
     return data
 
 
@@ -76,10 +81,13 @@ def paste_edit(design, data: dict, offset=(40.0, 40.0), graph: str = "") -> tupl
             old_id, kind, name = str(item["id"]), item["kind"], str(item["name"])
             x, y = (float(v) for v in item["position"])
             settings = item.get("settings", {})
-        except (KeyError, TypeError, ValueError) as e:
+        except (KeyError, TypeError, ValueError, OverflowError) as e:
             raise ClipboardError(f"{where}: missing or malformed field ({e})") from None
+        if not (abs(x) <= POSITION_LIMIT and abs(y) <= POSITION_LIMIT):  # also refuses infinity and NaN
+            raise ClipboardError(f"{where} ({label(name)}): position {quote([x, y])} lies beyond "
+                                 f"±{POSITION_LIMIT:g} on the canvas")
         if old_id in fresh:
-            raise ClipboardError(f"{where} ({name}): id {old_id!r} appears twice")
+            raise ClipboardError(f"{where} ({name}): id {quote(old_id)} appears twice")
         if not name or name in taken:
             name = g.fresh_name(_stem(name), taken)
         taken.add(name)
@@ -94,6 +102,6 @@ def paste_edit(design, data: dict, offset=(40.0, 40.0), graph: str = "") -> tupl
             src, sp, dst, dp = w
             ops.append(edits.AddWire(graph, Wire(fresh[str(src)], int(sp), fresh[str(dst)], int(dp))))
         except (KeyError, TypeError, ValueError):
-            raise ClipboardError(f"copied wire {i + 1} ({w!r}) does not join two copied blocks") from None
+            raise ClipboardError(f"copied wire {i + 1} ({quote(w)}) does not join two copied blocks") from None
     count = len(fresh)
     return edits.Edit(f"Paste {count} block{'s' if count != 1 else ''}", tuple(ops)), list(fresh.values())

@@ -22,6 +22,7 @@ from typing import Any, Callable
 
 from layerloom.core import edits
 from layerloom.core.graph import Graph
+from layerloom.core.values import quote
 
 DTYPES = {"fp32": 4, "fp16": 2, "bf16": 2, "int8": 1}
 """Element types for memory figures, with bytes per element."""
@@ -104,7 +105,7 @@ class Design(Graph):
     def __init__(self, name: str = "untitled", batch: int = 1, dtype: str = "fp32", notes: str = ""):
         super().__init__()
         if dtype not in DTYPES:
-            raise ValueError(f"element type {dtype!r} is not one of {', '.join(DTYPES)}")
+            raise ValueError(f"element type {quote(dtype)} is not one of {', '.join(DTYPES)}")
         self.name, self.batch, self.dtype, self.notes = name, batch, dtype, notes
         self.motifs: dict[str, Motif] = {}
         self.budget: dict = {}  # limits, see layerloom.core.budget
@@ -126,16 +127,16 @@ class Design(Graph):
         try:
             return self.motifs[key]
         except KeyError:
-            raise KeyError(f"no motif named {key!r}") from None
+            raise KeyError(f"no motif named {quote(key)}") from None
 
     def _insert_motif(self, name: str, params: dict) -> None:
         if not name or name in self.motifs:
-            raise ValueError(f"motif name {name!r} is empty or already used")
+            raise ValueError(f"motif name {quote(name)} is empty or already used")
         self.motifs[name] = Motif(name, params, self)
 
     def _delete_motif(self, name: str) -> Motif:
         if self.motifs[name].blocks:
-            raise ValueError(f"motif {name!r} still has blocks")
+            raise ValueError(f"motif {quote(name)} still has blocks")
         return self.motifs.pop(name)
 
     # ----- builder API
@@ -167,11 +168,11 @@ class Design(Graph):
             except ValueError as e:
                 raise edits.EditError(str(e)) from None
         if name not in ("name", "batch", "dtype", "notes", "budget", "target", "baseline", "measurement"):
-            raise edits.EditError(f"a design has no field {name!r}")
+            raise edits.EditError(f"a design has no field {quote(name)}")
         if name == "dtype" and value not in DTYPES:
-            raise edits.EditError(f"element type {value!r} is not one of {', '.join(DTYPES)}")
+            raise edits.EditError(f"element type {quote(value)} is not one of {', '.join(DTYPES)}")
         if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or value < 1):
-            raise edits.EditError(f"batch size must be a whole number ≥ 1, not {value!r}")
+            raise edits.EditError(f"batch size must be a whole number ≥ 1, not {quote(value)}")
         if name == "name" and (not isinstance(value, str) or not value.strip()):
             raise edits.EditError("a design needs a name")
         return edits.Edit(f"Set {name}", (edits.SetField(name, value),))

@@ -13,6 +13,7 @@ from typing import Any, NamedTuple
 from layerloom.core.graph import Block, Graph, Wire, kind_stem
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import SettingError
+from layerloom.core.values import check_text, quote
 
 
 class EditError(ValueError):
@@ -31,6 +32,7 @@ class AddBlock(NamedTuple):
     index: int | None = None
 
     def apply(self, design) -> "RemoveBlock":
+        check_text(self.name, "block name")
         block = Block(self.id, self.kind, self.name, dict(self.settings), self.position)
         design.graph(self.graph)._insert_block(block, self.index)
         return RemoveBlock(*self[:6])
@@ -78,9 +80,10 @@ class SetBlock(NamedTuple):
     value: Any
 
     def apply(self, design) -> "SetBlock":
-        b = design.graph(self.graph).blocks[self.id]
-        old = getattr(b, self.attribute)
-        setattr(b, self.attribute, dict(self.value) if self.attribute == "settings" else self.value)
+        if self.attribute == "name":
+            check_text(self.value, "block name")
+        value = dict(self.value) if self.attribute == "settings" else self.value
+        old = design.graph(self.graph)._set_block(self.id, self.attribute, value)
         return SetBlock(self.graph, self.id, self.attribute, old)
 
 
@@ -91,6 +94,8 @@ class SetField(NamedTuple):
     value: Any
 
     def apply(self, design) -> "SetField":
+        if isinstance(self.value, str):
+            check_text(self.value, f"design {self.name}")
         old = getattr(design, self.name)
         setattr(design, self.name, self.value)
         return SetField(self.name, old)
@@ -103,6 +108,8 @@ class AddMotif(NamedTuple):
     params: dict
 
     def apply(self, design) -> "RemoveMotif":
+        for text in (self.name, *self.params):
+            check_text(text, "motif name" if text is self.name else "motif parameter")
         design._insert_motif(self.name, dict(self.params))
         return RemoveMotif(self.name, self.params)
 
@@ -148,7 +155,7 @@ def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
     """Complete and check settings for a block of ``kind``. In a motif, a value ``{"param": name}``
     refers to a motif parameter; it is checked with the parameter's default."""
     if kind not in KINDS:
-        raise EditError(f"unknown block kind {kind!r}; known kinds: {', '.join(KINDS)}")
+        raise EditError(f"unknown block kind {quote(kind)}; known kinds: {', '.join(KINDS)}")
     spec = KINDS[kind]
     params = design.motifs[graph].params if graph else {}
     plain, refs = {}, {}
@@ -156,8 +163,8 @@ def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
         if isinstance(value, dict):
             ref = value.get("param")
             if not graph or ref not in params or len(value) != 1:
-                where = f"motif {graph!r}" if graph else "the design (parameters exist only inside motifs)"
-                raise SettingError(f"{key}: {value!r} refers to no parameter of {where}")
+                where = f"motif {quote(graph)}" if graph else "the design (parameters exist only inside motifs)"
+                raise SettingError(f"{quote(key)}: {quote(value)} refers to no parameter of {where}")
             refs[key] = value
             plain[key] = params[ref]
         else:
@@ -183,7 +190,7 @@ def add_block(design, kind: str, settings: dict | None = None, *, name: str | No
 def connect(g: Graph, wire: Wire) -> Edit:
     for bid in (wire.src, wire.dst):
         if bid not in g.blocks:
-            raise EditError(f"cannot wire: there is no block {bid!r}")
+            raise EditError(f"cannot wire: there is no block {quote(bid)}")
     if wire in g.wires:
         raise EditError(f"{g.blocks[wire.src].name} is already wired to {g.blocks[wire.dst].name}")
     return Edit("Wire", (AddWire(g.key, wire),))
@@ -208,6 +215,11 @@ def set_settings(design, block_id: str, changes: dict, graph: str = "") -> Edit:
 
 
 def rename(g: Graph, block_id: str, name: str) -> Edit:
+    """Rename a block; EditError when ``name`` is not valid text (a lone surrogate)."""
+    try:
+        check_text(name, "block name")
+    except ValueError as e:
+        raise EditError(f"{g.blocks[block_id].name}: {e}") from None
     return Edit(f"Rename {g.blocks[block_id].name}", (SetBlock(g.key, block_id, "name", name),))
 
 

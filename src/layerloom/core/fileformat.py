@@ -2,23 +2,25 @@
 
 Reading never evaluates anything; a broken file raises :class:`LoomFileError` whose message names
 the file, the place inside it (``blocks[3] (conv_2) settings.stride``) and the offending value.
-Writing is atomic: a temporary file beside the target is written, flushed and renamed over it.
+Writing is atomic (:mod:`layerloom.core.atomic_write`).
 """
 from __future__ import annotations
 
 import json
 import os
-import tempfile
 from pathlib import Path
 from typing import Any
 
 from layerloom.core import edits
+from layerloom.core.atomic_write import write_atomically
+from layerloom.core.budget import check_budget
 from layerloom.core.design import Design
 from layerloom.core.graph import Block, Wire
 from layerloom.core.measurement import Measurement
 from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
 from layerloom.core.targets import Target
+from layerloom.core.values import POSITION_LIMIT, JsonReader, bad_value, label, quote
 from layerloom.core.layout import tidy_positions
 
 FORMAT, VERSION = "layerloom-design", 1
@@ -35,28 +37,35 @@ def _reject_constant(name: str):
 def parse(text: str, source: str = "<text>") -> Design:
     """Build a :class:`Design` from the text of a ``.loom`` file."""
     try:
-        data = json.loads(text, parse_constant=_reject_constant)
+        reader = JsonReader()
+        data = reader.loads(text, parse_constant=_reject_constant)
     except json.JSONDecodeError as e:
         raise LoomFileError(f"{source}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
     except (ValueError, RecursionError) as e:
         raise LoomFileError(f"{source}: not a design file: {e}") from None
     if not isinstance(data, dict):
         raise LoomFileError(f"{source}: a design file holds a JSON object, not {type(data).__name__}")
+    bad = bad_value(data) if reader.suspect(text) else None
+    if bad is not None:
+        raise LoomFileError(f"{source}: {_place(data, bad[0])}: {bad[1]}")
     if data.get("format") != FORMAT:
-        raise LoomFileError(f"{source}: not a Layerloom design (format is {data.get('format')!r}, expected {FORMAT!r})")
+        raise LoomFileError(f"{source}: not a Layerloom design (format is {quote(data.get('format'))}, "
+                            f"expected {FORMAT!r})")
     if data.get("version") != VERSION:
-        raise LoomFileError(f"{source}: design format version {data.get('version')!r} is not supported "
+        raise LoomFileError(f"{source}: design format version {quote(data.get('version'))} is not supported "
                             f"(this Layerloom reads version {VERSION})")
     try:
         error = first_error(data)
     except RecursionError:
         raise LoomFileError(f"{source}: nested too deeply to be a design file") from None
     if error is not None:
-        raise LoomFileError(f"{source}: {_place(data, error[0])}: {error[1]}")
+        raise LoomFileError(f"{source}: {_place(data, error[0])}: {_shorten(error[1], _at(data, error[0]))}")
     try:
         return _build(data)
     except (SettingError, edits.EditError, ValueError, KeyError) as e:
         raise LoomFileError(f"{source}: {e}") from None
+    except OverflowError:  # a whole number too large for a float where one is needed
+        raise LoomFileError(f"{source}: a number is too large to count with") from None
 
 
 def load(path: str | os.PathLike) -> Design:
@@ -71,6 +80,21 @@ def load(path: str | os.PathLike) -> Design:
     return parse(text, str(path))
 
 
+def _shorten(message: str, instance: Any) -> str:
+    """The validator's message, with the offending value quoted short (it may be megabytes long)."""
+    if len(message) > 200:
+        whole = repr(instance)
+        message = message.replace(whole, quote(instance)) if whole in message else quote(message, 200)
+    return message
+
+
+def _at(data: Any, path: list) -> Any:
+    """The value at ``path`` inside ``data``."""
+    for step in path:
+        data = data[step]
+    return data
+
+
 def _place(data: Any, path: list) -> str:
     """``['blocks', 3, 'settings', 'stride']`` → ``blocks[3] (conv_2) settings.stride``."""
     out, node = "", data
@@ -79,7 +103,7 @@ def _place(data: Any, path: list) -> str:
             out += f"[{step}]"
             node = node[step] if isinstance(node, list) and step < len(node) else None
             if isinstance(node, dict) and isinstance(node.get("name"), str):
-                out += f" ({node['name']})"
+                out += f" ({label(node['name'])})"
         else:
             out += ("." if out and not out.endswith(")") else (" " if out else "")) + str(step)
             node = node.get(step) if isinstance(node, dict) else None
@@ -90,7 +114,7 @@ def _build(data: dict) -> Design:
     # JSON Schema counts 2.0 as an integer; whole numbers are stored as int from here on
     design = Design(data.get("name", "untitled"), int(data.get("batch", 1)), data.get("dtype", "fp32"),
                     data.get("notes", ""))
-    design.budget = dict(data.get("budget", {}))
+    design.budget = check_budget(data.get("budget", {}))
     if "target" in data:
         try:
             design.target = Target.from_data(data["target"])
@@ -107,13 +131,13 @@ def _build(data: dict) -> Design:
     seen = set()
     for i, m in enumerate(motifs):
         if m["name"] in seen:
-            raise LoomFileError(f"motifs[{i}]: motif name {m['name']!r} is used twice")
+            raise LoomFileError(f"motifs[{i}]: motif name {quote(m['name'])} is used twice")
         seen.add(m["name"])
         ops.append(edits.AddMotif(m["name"], {k: int(v) for k, v in m.get("params", {}).items()}))
     design.apply(edits.Edit("Load", tuple(ops)))
     with design.bulk():
         for i, m in enumerate(motifs):
-            _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({m['name']}) ")
+            _fill(design, m["name"], m["blocks"], m["wires"], f"motifs[{i}] ({label(m['name'])}) ")
         _fill(design, "", data["blocks"], data["wires"], "")
     for m in motifs:
         _place_unplaced(design, design.motifs[m["name"]], m["blocks"])
@@ -128,16 +152,16 @@ def _place_unplaced(design: Design, graph, blocks: list) -> None:
 
 
 def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> None:
-    def label(i: int) -> str:
+    def place(i: int) -> str:
         name = blocks[i].get("name")
-        return f"{where}blocks[{i}]" + (f" ({name})" if name else "")
+        return f"{where}blocks[{i}]" + (f" ({label(name)})" if name else "")
 
     made: dict[str, Block] = {}
     checked: dict[tuple, dict] = {}  # (kind, settings as written) → checked settings: most repeat
     for i, b in enumerate(blocks):
         bid, kind, written = b["id"], b["kind"], b.get("settings", {})
         if bid in made:
-            raise LoomFileError(f"{label(i)}: block id {bid!r} is used twice")
+            raise LoomFileError(f"{place(i)}: block id {quote(bid)} is used twice")
         try:
             key = (kind, tuple(written.items()))
             settings = checked.get(key)
@@ -147,16 +171,19 @@ def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> 
             try:
                 settings = edits.check_settings(design, kind, written, graph)
             except (SettingError, edits.EditError) as e:
-                raise LoomFileError(f"{label(i)}: {e}") from None
+                raise LoomFileError(f"{place(i)}: {e}") from None
             if key is not None:
                 checked[key] = settings
-        made[bid] = Block(bid, kind, b.get("name", bid), dict(settings), tuple(b.get("position", (0.0, 0.0))))
+        position = b.get("position", (0.0, 0.0))
+        if not all(abs(v) <= POSITION_LIMIT for v in position):
+            raise LoomFileError(f"{place(i)}: position {quote(position)} lies beyond ±{POSITION_LIMIT:g} on the canvas")
+        made[bid] = Block(bid, kind, b.get("name", bid), dict(settings), tuple(position))
     seen: dict[Wire, None] = {}
     for i, w in enumerate(wires):
         (src, sp), (dst, dp) = w["from"], w["to"]
         for end, bid in (("from", src), ("to", dst)):
             if bid not in made:
-                raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {bid!r}")
+                raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {quote(bid)}")
         wire = Wire(src, int(sp), dst, int(dp))
         if wire in seen:
             raise LoomFileError(f"{where}wires[{i}]: the same wire appears twice")
@@ -222,19 +249,7 @@ def _lines(obj: dict, pad: str) -> str:
 
 
 def save(design: Design, path: str | os.PathLike) -> None:
-    """Write ``design`` to ``path`` atomically (an interrupted save leaves the old file intact)."""
-    path = Path(path)
-    text = dumps(design)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text)
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    """Write ``design`` to ``path`` atomically (:mod:`layerloom.core.atomic_write`: an interrupted
+    save leaves the old file intact; mode and symbolic links are kept). Raises OSError, or
+    UnicodeEncodeError for text that is not valid (before anything is written)."""
+    write_atomically(path, dumps(design).encode("utf-8"))

@@ -9,6 +9,7 @@ from __future__ import annotations
 from typing import Any, NamedTuple
 
 from layerloom.core.kinds import KINDS
+from layerloom.core.values import quote
 
 
 class Wire(NamedTuple):
@@ -34,7 +35,12 @@ Port = "str | tuple[str, int]"
 
 
 class Graph:
-    """Blocks (in insertion order) and wires, with wire indexes by block."""
+    """Blocks (in insertion order) and wires, with wire indexes by block.
+
+    Indexes kept as blocks come and go, so that adding a block costs the same at any size: how
+    many blocks bear each name (:meth:`fresh_name`), where to look for the next free ``stem_n``, and
+    the rightmost block's x (:meth:`layout_position`).
+    """
 
     key = ""  # "" for the design, the motif's name for a motif
 
@@ -44,6 +50,9 @@ class Graph:
         self.in_wires: dict[str, list[Wire]] = {}
         self.out_wires: dict[str, list[Wire]] = {}
         self._serial = 0
+        self._names: dict[str, int] = {}  # name → number of blocks bearing it
+        self._next: dict[str, int] = {}  # stem → no stem_n below this n is free
+        self._right: float | None = None  # rightmost x, None when it must be looked for again
 
     # ----- queries
     def block(self, ref: str) -> Block:
@@ -53,7 +62,7 @@ class Graph:
             for candidate in self.blocks.values():
                 if candidate.name == ref:
                     return candidate
-            raise KeyError(f"no block with id or name {ref!r}")
+            raise KeyError(f"no block with id or name {quote(ref)}")
         return b
 
     def of_kind(self, kind: str) -> list[Block]:
@@ -67,17 +76,22 @@ class Graph:
                 return candidate
 
     def fresh_name(self, stem: str, taken: set[str] | None = None) -> str:
-        """``stem_n`` with the smallest n not used by a block (nor in ``taken``)."""
-        taken = taken if taken is not None else {b.name for b in self.blocks.values()}
-        n = 1
-        while f"{stem}_{n}" in taken:
+        """``stem_n`` with the smallest n not used by a block, or not in ``taken`` when given."""
+        if taken is not None:
+            n = 1
+            while f"{stem}_{n}" in taken:
+                n += 1
+            return f"{stem}_{n}"
+        n = self._next.get(stem, 1)
+        while f"{stem}_{n}" in self._names:
             n += 1
+        self._next[stem] = n
         return f"{stem}_{n}"
 
     # ----- primitive changes (called by edits only)
     def _insert_block(self, block: Block, index: int | None = None) -> None:
         if block.id in self.blocks:
-            raise ValueError(f"block id {block.id!r} is already used")
+            raise ValueError(f"block id {quote(block.id)} is already used")
         if index is None or index >= len(self.blocks):
             self.blocks[block.id] = block
         else:
@@ -86,17 +100,54 @@ class Graph:
             self.blocks = dict(items)
         self.in_wires[block.id] = []
         self.out_wires[block.id] = []
+        self._name_added(block.name)
+        if self._right is not None:
+            self._right = max(self._right, block.position[0])
 
     def _delete_block(self, block_id: str) -> Block:
         if self.in_wires[block_id] or self.out_wires[block_id]:
-            raise ValueError(f"block {block_id!r} still has wires")
+            raise ValueError(f"block {quote(block_id)} still has wires")
         del self.in_wires[block_id], self.out_wires[block_id]
-        return self.blocks.pop(block_id)
+        block = self.blocks.pop(block_id)
+        self._name_removed(block.name)
+        self._moved_from(block.position)
+        return block
+
+    def _set_block(self, block_id: str, attribute: str, value: Any) -> Any:
+        """Replace a block's ``settings``, ``name`` or ``position``; returns the old value."""
+        b = self.blocks[block_id]
+        old = getattr(b, attribute)
+        setattr(b, attribute, value)
+        if attribute == "name":
+            self._name_removed(old)
+            self._name_added(value)
+        elif attribute == "position":
+            self._moved_from(old)
+            if self._right is not None:
+                self._right = max(self._right, value[0])
+        return old
+
+    def _name_added(self, name: str) -> None:
+        self._names[name] = self._names.get(name, 0) + 1
+
+    def _name_removed(self, name: str) -> None:
+        left = self._names[name] - 1
+        if left:
+            self._names[name] = left
+            return
+        del self._names[name]
+        stem, _, n = name.rpartition("_")
+        if n.isdigit() and self._next.get(stem, 1) > int(n) >= 1:
+            self._next[stem] = int(n)  # a lower stem_n is free again
+
+    def _moved_from(self, position) -> None:
+        if self._right is not None and position[0] >= self._right:
+            self._right = None  # the rightmost block left: look again when asked
 
     def _insert_wire(self, wire: Wire) -> None:
         if wire.src not in self.blocks or wire.dst not in self.blocks:
             missing = wire.src if wire.src not in self.blocks else wire.dst
-            raise ValueError(f"wire names block {missing!r}, which does not exist")
+            raise ValueError(f"wire names block {quote(missing)}, which does not exist")
         if wire in self.wires:
             raise ValueError(f"that wire already exists: {wire}")
         self.wires[wire] = None
@@ -148,8 +199,9 @@ class Graph:
         """A free spot to the right of the rightmost block (scripts rarely care; Tidy rearranges)."""
         if not self.blocks:
             return (0.0, 0.0)
-        x = max(b.position[0] for b in self.blocks.values())
-        return (x + 220.0, 0.0)
+        if self._right is None:
+            self._right = max(b.position[0] for b in self.blocks.values())
+        return (self._right + 220.0, 0.0)
 
 
 def _port(p: Port) -> tuple[str, int]:

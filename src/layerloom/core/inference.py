@@ -10,7 +10,13 @@ shapes), so their answers for finding-free blocks are remembered and reused.
 Receptive field and effective stride (jump) are in input pixels per axis: a window of extent k and
 stride s gives rf' = rf + (k − 1)·jump and jump' = jump·s. Where branches join, the receptive
 field is the larger and the jump the smaller (a broadcast gate does not coarsen the map).
-Transposed convolution and upsampling divide the jump (a first-order convention).
+Transposed convolution and upsampling divide the jump (a first-order convention). Both are
+floats, which saturate to infinity in designs far beyond any real network instead of growing into
+integers of millions of digits; shapes and costs stay exact integers.
+
+Limits that keep every count printable: a block whose output holds more than :data:`MAX_ELEMENTS`
+elements per sample stops with ``shape.too_large``, and motifs nest at most :data:`MAX_NESTING`
+deep (``motif.too_deep``).
 """
 from __future__ import annotations
 
@@ -24,8 +30,13 @@ from layerloom.core.kinds import KINDS, Cost
 from layerloom.core.liveness import Plan, live_profile
 from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
+from layerloom.core.values import quote
 
-ONE = (1, 1)
+ONE = (1.0, 1.0)
+MAX_ELEMENTS = 1 << 64
+"""Most elements per sample a block's output may hold (far beyond any memory)."""
+MAX_NESTING = 64
+"""Deepest nesting of motifs inside motifs."""
 _new = tuple.__new__  # builds a Result without NamedTuple's keyword handling (the hot path)
 MEMO_LIMIT = 100_000
 
@@ -69,6 +80,17 @@ class MotifRun(NamedTuple):
     extra_freed: int  # inner peak beyond inputs and outputs, inputs freed inside after their last use
     findings: tuple[Finding, ...]
     executed: Executed
+
+
+def _widen(rf: float, extent: float, jump: float) -> float:
+    """Receptive field after a window of ``extent`` (an extent of 1 adds nothing, even at an
+    infinite jump)."""
+    return rf if extent == 1 else rf + (extent - 1) * jump
+
+
+def _short(shape: Shape) -> str:
+    """A shape for a message, sizes beyond 10⁹ in powers of ten."""
+    return "×".join(str(d) if d < 10 ** 9 else f"{d:.3g}" for d in shape)
 
 
 def _add_costs(costs) -> Cost:
@@ -237,6 +259,10 @@ class GraphInference:
                 if known is None:
                     report = Report(bid, blk.name)
                     out = kind.shape(s, ins, report)
+                    if out.elements > MAX_ELEMENTS:
+                        raise Stop("shape.too_large", f"{blk.name} would output {_short(out)} = "
+                                   f"{out.elements:.3g} elements per sample, beyond the {MAX_ELEMENTS:.3g} "
+                                   "Layerloom counts")
                     known = ((out,), kind.cost(s, ins, out), kind.window(s, ins))
                     if report.found:
                         found += report.found
@@ -245,7 +271,7 @@ class GraphInference:
                 outs, cost, window = known
                 if window is not None:
                     kh, kw, sh, sw = window
-                    rf = (rf[0] + (kh - 1) * jump[0], rf[1] + (kw - 1) * jump[1])
+                    rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
                     jump = (jump[0] * sh, jump[1] * sw)
                 result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None))
         except Stop as e:
@@ -269,7 +295,7 @@ class GraphInference:
                 found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input"
                                      f"{'s' if n_in != 1 else ''} but a wire goes to input {w.dst_port + 1}",
                                      w.dst_port, (w.dst_port + 1, n_in)))
-        ins, rf, jump, known = [], [1, 1], [float("inf")] * 2, True
+        ins, rf, jump, known = [], list(ONE), [float("inf")] * 2, True
         for port, ws in enumerate(by_port):
             if not ws:
                 found.append(Finding("port.unwired", ERROR, blk.id,
@@ -328,16 +354,19 @@ class GraphInference:
         name = blk.settings["motif"]
         motif = self.analysis.design.motifs.get(name)
         if motif is None:
-            raise Stop("motif.missing", f"{blk.name} uses motif {name!r}, which this design does not define")
+            raise Stop("motif.missing", f"{blk.name} uses motif {quote(name)}, which this design does not define")
         if name in self.stack:
-            raise Stop("motif.recursive", f"motif {name!r} contains itself (through {' › '.join(self.stack)})")
+            raise Stop("motif.recursive", f"motif {quote(name)} contains itself (through {' › '.join(self.stack)})")
+        if len(self.stack) >= MAX_NESTING:
+            raise Stop("motif.too_deep", f"{blk.name} uses motif {quote(name)} {len(self.stack) + 1} motifs deep; "
+                       f"motifs nest at most {MAX_NESTING} deep", numbers=(len(self.stack) + 1, MAX_NESTING))
         return motif
 
     def _use(self, blk, s, motif, ins, rf, jump, found) -> Result | None:
         params = {**motif.params, **{k: v for k, v in s.items() if k not in ("motif", "repeat")}}
         unknown = params.keys() - motif.params.keys()
         if unknown:
-            raise Stop("motif.param", f"{blk.name} sets {', '.join(sorted(unknown))}, which motif {motif.name!r} "
+            raise Stop("motif.param", f"{blk.name} sets {', '.join(sorted(unknown))}, which motif {quote(motif.name)} "
                        f"does not have (it has: {', '.join(motif.params) or 'no parameters'})")
         run = self.analysis.motif_run(motif, ins, params, self.stack)
         found += [f.inside(blk.id, blk.name) for f in run.findings]
@@ -347,11 +376,11 @@ class GraphInference:
         if repeat > 1 and (len(ins) != 1 or len(run.outs) != 1 or run.outs[0] != ins[0]):
             came = ins[0] if len(ins) == 1 else f"{len(ins)} inputs"
             shown = run.outs[0] if len(run.outs) == 1 else f"{len(run.outs)} outputs"
-            raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {motif.name!r} ×{repeat}, but one use turns "
+            raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {quote(motif.name)} ×{repeat}, but one use turns "
                        f"{came} into {shown}, so the copies cannot be stacked; use repeat 1 for the shape-changing use",
                        numbers=(str(shown), str(came)))
         for _ in range(repeat):
-            rf = (rf[0] + (run.rf[0] - 1) * jump[0], rf[1] + (run.rf[1] - 1) * jump[1])
+            rf = (_widen(rf[0], run.rf[0], jump[0]), _widen(rf[1], run.rf[1], jump[1]))
             jump = (jump[0] * run.jump[0], jump[1] * run.jump[1])
         cost = Cost(*(v * repeat for v in run.cost)) if repeat > 1 else run.cost
         executed = run.executed.times(repeat) if repeat > 1 else run.executed
@@ -403,7 +432,7 @@ class Analysis:
         self._dirty: set[str] = set()
         self._topology = True
         self._stale = True
-        self._profile = None  # live elements per step (numpy), made on demand
+        self._profile = None  # live elements per step, made on demand
         self._budget: tuple = (None, [])
         self.revision = 0  # counts refreshes that may have changed results
         design.subscribe(self._on_change)
@@ -442,8 +471,8 @@ class Analysis:
             in_ids, out_ids = motif.ports()
             outs = tuple(inner.results[b].outs[0] if inner.results.get(b) else None for b in out_ids)
             done = [inner.results[b] for b in out_ids if inner.results.get(b)]
-            rf = (max((r.rf[0] for r in done), default=1), max((r.rf[1] for r in done), default=1))
-            jump = (max((r.jump[0] for r in done), default=1), max((r.jump[1] for r in done), default=1))
+            rf = (max((r.rf[0] for r in done), default=1.0), max((r.rf[1] for r in done), default=1.0))
+            jump = (max((r.jump[0] for r in done), default=1.0), max((r.jump[1] for r in done), default=1.0))
             kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
             freed = max(live_profile(motif, inner.order, inner.results), default=0)
             ends = sum(o.elements for o in outs if o is not None)

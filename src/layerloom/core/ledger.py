@@ -10,7 +10,8 @@ them for users):
   and linear layers, for the whole batch (batch size × per-sample count). PyTorch's
   ``FlopCounterMode`` reports 2 FLOPs per MAC for the same operations. Bias additions, norms,
   activations, pooling, resizing and joins are not MACs; they are counted roughly as **other
-  operations** (one per element per step).
+  operations** (one per element per step; an addition one per output element per extra input, a
+  product one per output element; a concatenation only copies and counts none).
 - **output memory**: bytes of the tensor a block allocates (batch × elements × bytes of the
   design's element type); views (Flatten, Identity, Dropout, Output) allocate none.
 - **peak live memory**: the largest total of activations alive at once during a forward pass
@@ -40,6 +41,10 @@ them for users):
 - **depth order**: topological order by longest-path level from the inputs, ties broken by the
   order blocks were added; **depth** is that level. **steps** count blocks as executed (a motif
   use counts the blocks it executes): the Depth ledger's x axis.
+
+Counts and bytes are exact at any size: numpy arrays of them are int64 when every sum fits, else
+Python integers (``dtype=object``); only latency (seconds), intensity and steps drawn as floats are
+floats, which saturate to infinity rather than fail.
 """
 from __future__ import annotations
 
@@ -53,6 +58,7 @@ from layerloom.core.design import DTYPES
 from layerloom.core.kinds import KINDS
 from layerloom.core.shapes import Shape
 from layerloom.core.targets import Target
+from layerloom.core.units import ratio
 
 
 class Row(NamedTuple):
@@ -87,6 +93,30 @@ class Totals(NamedTuple):
     latency: float | None  # seconds on the target, None without one
 
 
+def exact_array(values: list, scale: int = 1, headroom: int = 1) -> np.ndarray:
+    """``values`` × ``scale`` as int64 when any sum of them, times ``headroom``, fits in it; else as
+    Python integers."""
+    try:
+        a = np.array(values, dtype=np.int64)
+    except OverflowError:
+        a = None
+    if a is not None and (not a.size or int(np.abs(a).max()) * scale * headroom * len(a) < 1 << 62):
+        return a * scale
+    return np.array(values, dtype=object) * scale
+
+
+def per_second(values: np.ndarray, rate: float) -> np.ndarray:
+    """``values / rate`` as floats (infinity where beyond a float's range)."""
+    if values.dtype != object:
+        return values / rate
+    return np.array([ratio(v, rate) for v in values], dtype=float)
+
+
+def floats(values) -> np.ndarray:
+    """Exact counts as floats for drawing: infinity where one is beyond a float's range."""
+    return np.array([ratio(v, 1.0) for v in values], dtype=float)
+
+
 class Ledger:
     """Costs of a design as it is now; see the module docstring for what is counted.
 
@@ -105,11 +135,11 @@ class Ledger:
         results = analysis.top.results
         self._results = [results.get(b) for b in self.order]
         free = (0, 0, 0, 0)
-        costs = np.fromiter(chain.from_iterable(r.cost if r is not None else free for r in self._results),
-                            np.int64, 4 * len(self.order)).reshape(-1, 4)  # 4× faster than np.array of tuples
+        costs = exact_array(list(chain.from_iterable(r.cost if r is not None else free for r in self._results)),
+                            headroom=self.batch).reshape(-1, 4)
         costs[:, 2:] *= self.batch
         self.costs = costs
-        self.live = np.asarray(analysis.live_profile(), dtype=np.int64) * (self.batch * self.bytes_per_element)
+        self.live = exact_array(analysis.live_profile(), self.batch * self.bytes_per_element)
         peak_at = int(self.live.argmax()) if len(self.live) else None
         t = costs.sum(axis=0)
         self.latency = self._latency() if self.target is not None else None
@@ -123,8 +153,8 @@ class Ledger:
         """Estimated seconds per block on the target (zeros for blocks that do no work; a motif use
         the sum over the blocks it executes)."""
         t = self.target
-        compute = self.costs[:, 2] / t.macs_per_second
-        memory = self.moved / t.bytes_per_second
+        compute = per_second(self.costs[:, 2], t.macs_per_second)
+        memory = per_second(self.moved, t.bytes_per_second)
         latency = np.where(self.working, np.maximum(compute, memory) + t.overhead, 0.0)
         for i, r in enumerate(self._results):
             if r is not None and r.executed is not None:
@@ -136,7 +166,7 @@ class Ledger:
         t, n, size = self.target, self.batch, self.bytes_per_element
         total = compute_part = 0.0
         for (w, m, e), count in executed.work:
-            compute, memory = m * n / t.macs_per_second, (w + e * n) * size / t.bytes_per_second
+            compute, memory = ratio(m * n, t.macs_per_second), ratio((w + e * n) * size, t.bytes_per_second)
             total += count * (max(compute, memory) + t.overhead)
             compute_part += count * compute
         return total, compute_part
@@ -158,13 +188,13 @@ class Ledger:
         n = self.batch
         elems = [(r.executed.elements if r.executed is not None else sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n
                  if r is not None else 0 for r in self._results]
-        return (self.costs[:, 0] + np.asarray(elems, dtype=np.int64)) * self.bytes_per_element
+        return exact_array([w + e for w, e in zip(self.costs[:, 0].tolist(), elems)], self.bytes_per_element)
 
     @property
     def out_memory(self) -> np.ndarray:
         """Bytes of the tensors each block allocates (0 for views and blocks without a shape)."""
-        return np.asarray([self._allocated(b, r) for b, r in zip(self.order, self._results)],
-                          dtype=np.int64) * (self.batch * self.bytes_per_element)
+        return exact_array([self._allocated(b, r) for b, r in zip(self.order, self._results)],
+                           self.batch * self.bytes_per_element)
 
     def _allocated(self, block_id: str, r) -> int:
         if r is None or not self._allocates(block_id):
@@ -174,8 +204,8 @@ class Ledger:
     @property
     def steps(self) -> np.ndarray:
         """Blocks executed up to and including each block (a motif use counts the blocks it executes)."""
-        return np.cumsum([r.executed.steps if r is not None and r.executed is not None else 1
-                          for r in self._results], dtype=np.int64)
+        return np.cumsum(exact_array([r.executed.steps if r is not None and r.executed is not None else 1
+                                      for r in self._results]))
 
     def _allocates(self, block_id: str) -> bool:
         return not KINDS[self.analysis.design.blocks[block_id].kind].view
@@ -221,7 +251,7 @@ class Ledger:
                 if r.executed is not None:  # compute-bound when most of its blocks' time is
                     bound = "compute" if 2 * self._roofline(r.executed)[1] >= latency else "memory"
                 else:
-                    compute = m / self.target.macs_per_second
-                    bound = "compute" if compute >= moved / self.target.bytes_per_second else "memory"
+                    compute = ratio(m, self.target.macs_per_second)
+                    bound = "compute" if compute >= ratio(moved, self.target.bytes_per_second) else "memory"
         return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), r.outs[0] if r.outs else None, w, b, m, o,
-                   out_bytes, r.rf, r.jump, moved, m / moved if moved else 0.0, latency, bound)
+                   out_bytes, r.rf, r.jump, moved, ratio(m, moved) if moved else 0.0, latency, bound)

@@ -29,6 +29,7 @@ from collections import Counter
 from layerloom.core import edits
 from layerloom.core.findings import ERROR
 from layerloom.core.settings import SettingError
+from layerloom.core.values import quote
 
 
 def _chain(design, finding) -> list[tuple[str, str, str]]:
@@ -65,12 +66,12 @@ def for_this_use(design, finding, found: list) -> list:
             edit, names = routed
             out.append(Mend(f"{m.label} (for {inst_names} only, as parameter {', '.join(names)})", edit))
         elif shared:
-            out.append(Mend(f"{m.label} (in an own copy of motif {chain[-1][2]!r} for {inst_names})",
+            out.append(Mend(f"{m.label} (in an own copy of motif {quote(chain[-1][2])} for {inst_names})",
                             _own_copy(design, chain, m.edit)))
         else:
             out.append(m)
         if shared and _no_new_errors(design, m.edit):
-            out.append(Mend(f"{m.label} (changes motif {chain[-1][2]!r} for all its {uses[chain[-1][2]]} uses)",
+            out.append(Mend(f"{m.label} (changes motif {quote(chain[-1][2])} for all its {uses[chain[-1][2]]} uses)",
                             m.edit))
     return out
 

@@ -15,6 +15,7 @@ from __future__ import annotations
 from layerloom.core import edits
 from layerloom.core.edits import AddBlock, AddMotif, AddWire, Edit, EditError, SetBlock, SetMotifParams
 from layerloom.core.graph import Wire
+from layerloom.core.values import quote
 
 PORT_KINDS = ("Input", "Output")
 
@@ -40,7 +41,7 @@ def make_motif(design, block_ids, name: str | None = None, graph: str = "") -> t
     inside = set(chosen)
     name = name or _fresh_motif_name(design, "motif")
     if name in design.motifs:
-        raise EditError(f"there is already a motif named {name!r}")
+        raise EditError(f"there is already a motif named {quote(name)}")
     wires_in = [w for w in g.wires if w.dst in inside and w.src not in inside]
     wires_out = [w for w in g.wires if w.src in inside and w.dst not in inside]
     wires_within = [w for w in g.wires if w.src in inside and w.dst in inside]
@@ -53,7 +54,7 @@ def make_motif(design, block_ids, name: str | None = None, graph: str = "") -> t
     used = _params_used(g.blocks[b] for b in chosen) if graph else []  # the new motif takes them over
     missing = [p for p in used if p not in g.params]
     if missing:
-        raise EditError(f"the selection refers to {', '.join(map(repr, missing))}, which motif {graph!r} does not have")
+        raise EditError(f"the selection refers to {', '.join(map(repr, missing))}, which motif {quote(graph)} does not have")
     ops: list = [AddMotif(name, {p: g.params[p] for p in used})]
     taken = {b for b in chosen}
     port_ids = []
@@ -99,15 +100,15 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
     g = design.graph(graph)
     inst = g.blocks.get(instance_id)
     if inst is None or inst.kind != "Motif":
-        raise EditError(f"{instance_id!r} is not a motif instance")
+        raise EditError(f"{quote(instance_id)} is not a motif instance")
     motif = design.motifs.get(inst.settings["motif"])
     if motif is None:
-        raise EditError(f"{inst.name} uses motif {inst.settings['motif']!r}, which this design does not define")
+        raise EditError(f"{inst.name} uses motif {quote(inst.settings['motif'])}, which this design does not define")
     params = {**motif.params, **{k: v for k, v in inst.settings.items() if k not in ("motif", "repeat")}}
     in_ids, out_ids = motif.ports()
     repeat = inst.settings["repeat"]
     if repeat > 1 and len(in_ids) != len(out_ids):
-        raise EditError(f"{inst.name} repeats motif {motif.name!r} ×{repeat} but the motif has {len(in_ids)} input "
+        raise EditError(f"{inst.name} repeats motif {quote(motif.name)} ×{repeat} but the motif has {len(in_ids)} input "
                         f"and {len(out_ids)} output ports, so its copies cannot be chained; set repeat to 1 first")
     feeds = {w.dst_port: (w.src, w.src_port) for w in g.in_wires[instance_id]}
     current = [feeds.get(k) for k in range(len(in_ids))]
@@ -132,7 +133,7 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
             if src in in_ids:
                 return current[in_ids.index(src)]
             if src not in ids:
-                raise EditError(f"cannot expand {inst.name}: inside motif {motif.name!r}, {motif.blocks[dst].name} "
+                raise EditError(f"cannot expand {inst.name}: inside motif {quote(motif.name)}, {motif.blocks[dst].name} "
                                 f"is wired from the output port {motif.blocks[src].name}; remove that wire first")
             return ids[src], port
 
@@ -156,9 +157,9 @@ def _written(design, motif, block, params: dict, graph: str) -> dict:
         settings = {k: params[v["param"]] if isinstance(v, dict) else v for k, v in block.settings.items()}
         return edits.check_settings(design, block.kind, settings, graph)
     except KeyError as e:
-        raise EditError(f"{block.name} in motif {motif.name!r} refers to parameter {e}, which the motif does not have") from None
+        raise EditError(f"{block.name} in motif {quote(motif.name)} refers to parameter {e}, which the motif does not have") from None
     except ValueError as e:
-        raise EditError(f"{block.name} in motif {motif.name!r}: {e}") from None
+        raise EditError(f"{block.name} in motif {quote(motif.name)}: {e}") from None
 
 
 def expose(design, motif_name: str, block_id: str, key: str, param: str) -> Edit:
@@ -167,13 +168,13 @@ def expose(design, motif_name: str, block_id: str, key: str, param: str) -> Edit
     blk = motif.blocks[block_id]
     value = blk.settings.get(key)
     if isinstance(value, dict):
-        raise EditError(f"{blk.name}'s {key} is already the parameter {value['param']!r}")
+        raise EditError(f"{blk.name}'s {key} is already the parameter {quote(value['param'])}")
     if not isinstance(value, int) or isinstance(value, bool):
-        raise EditError(f"only whole-number settings can be motif parameters; {blk.name}'s {key} is {value!r}")
+        raise EditError(f"only whole-number settings can be motif parameters; {blk.name}'s {key} is {quote(value)}")
     if not param.isidentifier():
-        raise EditError(f"a parameter name is a word of letters, digits and _, not {param!r}")
+        raise EditError(f"a parameter name is a word of letters, digits and _, not {quote(param)}")
     if param in motif.params and motif.params[param] != value:
-        raise EditError(f"parameter {param!r} already exists with default {motif.params[param]}, not {value}")
+        raise EditError(f"parameter {quote(param)} already exists with default {motif.params[param]}, not {value}")
     settings = {**blk.settings, key: {"param": param}}
     return Edit(f"Expose {blk.name}'s {key} as {param}",
                 (SetMotifParams(motif_name, {**motif.params, param: value}),

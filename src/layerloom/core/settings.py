@@ -9,6 +9,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+from layerloom.core.values import check_text, quote
+
 
 class SettingError(ValueError):
     """A value that a setting refuses; the message names the setting, the value and the range."""
@@ -38,28 +40,31 @@ class Setting:
         if t == "bool":
             if isinstance(value, bool):
                 return value
-            raise SettingError(f"{self.label} must be true or false, not {value!r}")
+            raise SettingError(f"{self.label} must be true or false, not {quote(value)}")
         if t == "choice":
             if value in self.choices:
                 return value
-            raise SettingError(f"{self.label} must be one of {', '.join(self.choices)}, not {value!r}")
+            raise SettingError(f"{self.label} must be one of {', '.join(self.choices)}, not {quote(value)}")
         if t == "float":
             if isinstance(value, bool) or not isinstance(value, (int, float)):
-                raise SettingError(f"{self.label} must be a number, not {value!r}")
+                raise SettingError(f"{self.label} must be a number, not {quote(value)}")
             self._range(float(value))
             return float(value)
         if t == "int":
             return self._int(value)
         if t == "text":
             if isinstance(value, str) and value.strip():
-                return value
-            raise SettingError(f"{self.label} must be a non-empty text, not {value!r}")
+                try:
+                    return check_text(value, self.label)
+                except ValueError as e:
+                    raise SettingError(str(e)) from None
+            raise SettingError(f"{self.label} must be a non-empty text, not {quote(value)}")
         if t == "padding" and value == "same":
             return "same"
         if t in ("pair", "padding"):
             if isinstance(value, (list, tuple)):
                 if len(value) != 2:
-                    raise SettingError(f"{self.label} must be one number or two (height, width), not {list(value)!r}")
+                    raise SettingError(f"{self.label} must be one number or two (height, width), not {quote(list(value))}")
                 h, w = self._int(value[0]), self._int(value[1])
                 return h if h == w else (h, w)
             return self._int(value)
@@ -71,15 +76,20 @@ class Setting:
                 value = int(value)
             else:
                 extra = " or 'same'" if self.type == "padding" else ""
-                raise SettingError(f"{self.label} must be a whole number{extra}, not {value!r}")
+                raise SettingError(f"{self.label} must be a whole number{extra}, not {quote(value)}")
         self._range(value)
         return value
 
     def _range(self, value: float) -> None:
         if self.minimum is not None and value < self.minimum:
-            raise SettingError(f"{self.label} {value:g} is below the minimum {self.minimum:g}")
+            raise SettingError(f"{self.label} {_number(value)} is below the minimum {self.minimum:g}")
         if self.maximum is not None and value > self.maximum:
-            raise SettingError(f"{self.label} {value:g} is above the maximum {self.maximum:g}")
+            raise SettingError(f"{self.label} {_number(value)} is above the maximum {self.maximum:g}")
+
+
+def _number(value: float) -> str:
+    """A number for a message: ``3``, ``0.5``; a long integer shortened."""
+    return quote(value) if isinstance(value, int) else f"{value:g}"
 
 
 def pair(value: Any) -> tuple[int, int]:

@@ -3,6 +3,8 @@ from __future__ import annotations
 
 from math import prod
 
+from layerloom.core.values import quote
+
 
 class Shape(tuple):
     """An immutable tensor shape per sample (the batch size N lives on the design).
@@ -55,11 +57,11 @@ def parse_shape(text: str) -> Shape:
     """
     parts = [p for p in text.replace("×", "x").replace(",", "x").lower().split("x") if p.strip()]
     if len(parts) != 3:
-        raise ValueError(f"input shape {text!r} must be three numbers C×H×W, e.g. 3x224x224")
+        raise ValueError(f"input shape {quote(text)} must be three numbers C×H×W, e.g. 3x224x224")
     try:
         dims = [int(p) for p in parts]
     except ValueError:
-        raise ValueError(f"input shape {text!r} must be whole numbers, e.g. 3x224x224") from None
+        raise ValueError(f"input shape {quote(text)} must be whole numbers, e.g. 3x224x224") from None
     if min(dims) < 1:
-        raise ValueError(f"input shape {text!r} has a size below 1")
+        raise ValueError(f"input shape {quote(text)} has a size below 1")
     return Shape.chw(*dims)

@@ -10,7 +10,11 @@ data layout. Measured latency on the real device decides.
 """
 from __future__ import annotations
 
+import math
+
 from typing import NamedTuple
+
+from layerloom.core.values import quote
 
 CAUTION = ("First-order estimate (roofline): ignores caches, fusion and kernel choice; "
            "measured latency on the real device decides.")
@@ -38,9 +42,13 @@ class Target(NamedTuple):
                        float(data["gbytes_per_second"]) * 1e9, float(data.get("overhead_us", 0.0)) * 1e-6,
                        str(data.get("assumptions", "")))
         except KeyError as e:
-            raise ValueError(f"target is missing {e.args[0]!r}") from None
+            raise ValueError(f"target is missing {quote(e.args[0])}") from None
+        except OverflowError:
+            t = None
+        if t is None or not all(map(math.isfinite, (t.macs_per_second, t.bytes_per_second, t.overhead))):
+            raise ValueError("target rates are too large to count with")
         if t.macs_per_second <= 0 or t.bytes_per_second <= 0 or t.overhead < 0:
-            raise ValueError(f"target {t.name!r} needs a positive MAC rate and bandwidth and an overhead ≥ 0")
+            raise ValueError(f"target {quote(t.name)} needs a positive MAC rate and bandwidth and an overhead ≥ 0")
         return t
 
 
@@ -68,4 +76,4 @@ def preset(name: str) -> Target:
     for t in PRESETS:
         if t.name == name:
             return t
-    raise KeyError(f"no target preset {name!r}; presets: {'; '.join(t.name for t in PRESETS)}")
+    raise KeyError(f"no target preset {quote(name)}; presets: {'; '.join(t.name for t in PRESETS)}")

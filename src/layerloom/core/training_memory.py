@@ -26,6 +26,7 @@ if TYPE_CHECKING:
 from layerloom.core import units
 from layerloom.core.inference import GraphInference
 from layerloom.core.kinds import KINDS
+from layerloom.core.values import quote
 
 OPTIMIZERS = {"sgd": 0, "sgd_momentum": 1, "adam": 2}
 """Optimizer → copies of the weights it keeps as state (common practice: SGD with momentum keeps one
@@ -78,7 +79,8 @@ def kept_for_backward(analysis) -> "tuple[np.ndarray, np.ndarray]":
     import numpy as np
 
     kept = _Walk(analysis.refresh().top, analysis, {}).result()
-    return np.asarray(kept.elements, dtype=np.int64), np.asarray(kept.fixed, dtype=np.int64)
+    # Python integers (dtype=object): exact at any size, as the ledger's counts
+    return np.asarray(kept.elements, dtype=object), np.asarray(kept.fixed, dtype=object)
 
 
 class _Walk:
@@ -192,12 +194,12 @@ def training_curve(ledger, optimizer: str = "sgd_momentum", mixed: bool = False)
 
     weight_bytes = _weight_bytes(ledger, optimizer, mixed)
     per_weight = weight_bytes * (2 + OPTIMIZERS[optimizer]) + (HALF_BYTES if mixed else 0)
-    return np.cumsum(ledger.costs[:, 0] * per_weight + _activation_bytes(ledger, mixed))
+    return np.cumsum(ledger.costs[:, 0].astype(object) * per_weight + _activation_bytes(ledger, mixed))
 
 
 def _weight_bytes(ledger, optimizer: str, mixed: bool) -> int:
     if optimizer not in OPTIMIZERS:
-        raise ValueError(f"optimizer {optimizer!r} is not one of {', '.join(OPTIMIZERS)}")
+        raise ValueError(f"optimizer {quote(optimizer)} is not one of {', '.join(OPTIMIZERS)}")
     return MASTER_BYTES if mixed else ledger.bytes_per_element
 
 

@@ -23,7 +23,7 @@ from pathlib import Path
 
 from layerloom.core.kinds import KINDS
 from layerloom.core.ledger import Ledger
-from layerloom.core.units import count
+from layerloom.core.units import count, size
 
 _serial = itertools.count(1)
 
@@ -143,15 +143,16 @@ def verify(design, source: str | os.PathLike) -> VerifyReport:
         raise ValueError(f"{source if not isinstance(source, str) else 'the source'} is not a Layerloom export: "
                          "it has no __all__ naming the design's class")
     class_name = module.__all__[0]
+    analysis = design.analysis()
+    ledger = Ledger(analysis)
+    _check_fits(ledger)
     plan = export(design, class_name)
     model = getattr(module, class_name)().eval()
-    analysis = design.analysis()
     batch = design.batch
     inputs = [torch.zeros(batch, *analysis.shape(b.id)) for b in design.of_kind("Input")]
     with torch.no_grad(), FlopCounterMode(display=False) as counter:
         variables = _forward_locals(model, inputs)
     flops = counter.get_flop_counts()
-    ledger = Ledger(analysis)
     rows = []
     for row in ledger.rows:
         blk = design.blocks[row.block]
@@ -167,6 +168,21 @@ def verify(design, source: str | os.PathLike) -> VerifyReport:
     total = BlockCheck("total", "", (), (), t.weights, sum(p.numel() for p in model.parameters()),
                        t.macs, counter.get_total_flops() // 2)
     return VerifyReport(tuple(rows), total)
+
+
+def _check_fits(ledger) -> None:
+    """Refuse (ValueError) a run that could not fit in this computer's memory: the weights and the
+    peak live activations at fp32, which torch uses for the run, against half the physical memory."""
+    t = ledger.totals
+    need = (t.weights + t.peak_memory // ledger.bytes_per_element) * 4
+    try:
+        memory = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):  # not available on this system
+        return
+    if need > memory // 2:
+        raise ValueError(f"running the module would need about {size(need)} (weights and peak live activations "
+                         f"at fp32, batch {ledger.batch}), more than half of this computer's {size(memory)}; "
+                         "verify a copy with a smaller input or batch")
 
 
 def _value(variables: dict, name: str, index: int | None):

@@ -24,7 +24,7 @@ from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot, snapshot_of_file
 from layerloom.core.edits import Edit, SetField
 from layerloom.core.fileformat import LoomFileError
-from layerloom.core.ledger import Ledger
+from layerloom.core.ledger import Ledger, floats
 from layerloom.core.ledger_csv import ledger_csv
 from layerloom.core.targets import CAUTION
 from layerloom.core.training_memory import training_curve, training_memory, training_text
@@ -197,13 +197,13 @@ class DepthLedger(QWidget):
         """The values drawn for metric ``key`` (bytes for memory, seconds for latency)."""
         L = self.ledger
         if key == "memory":
-            return L.live.astype(float) if cumulative else L.out_memory.astype(float)
+            return floats(L.live if cumulative else L.out_memory)
         if key == "training":
-            curve = training_curve(L, self.optimizer_box.currentData(), self.mixed_box.isChecked()).astype(float)
+            curve = floats(training_curve(L, self.optimizer_box.currentData(), self.mixed_box.isChecked()))
             return curve if cumulative else np.diff(curve, prepend=0.0)
         per_block = {"weights": L.costs[:, 0], "macs": L.costs[:, 2],
                      "latency": L.latency if L.latency is not None else np.zeros(len(L.order))}[key]
-        return np.cumsum(per_block).astype(float) if cumulative else np.asarray(per_block, dtype=float)
+        return floats(np.cumsum(per_block) if cumulative else per_block)
 
     def redraw(self) -> None:
         L, design = self.ledger, self.document.design
@@ -218,7 +218,7 @@ class DepthLedger(QWidget):
         else:
             self.curve.setData([], [])
             self.bars.setOpts(x=x, height=y)
-        peak = L.running_peak.astype(float) if key == "memory" and cumulative else np.zeros(0)
+        peak = floats(L.running_peak) if key == "memory" and cumulative else np.zeros(0)
         self.peak_curve.setData(x[:len(peak)], peak)
         self._draw_baseline(base_key, cumulative)
         measured = self._draw_measured(x, key, cumulative)
@@ -271,7 +271,7 @@ class DepthLedger(QWidget):
         if values is None:
             self.base_curve.setData([], [])
             return
-        values = np.asarray(values, dtype=float)
+        values = floats(values)
         if not cumulative:
             if column == "live":  # live memory has no per-block form in a baseline
                 self.base_curve.setData([], [])

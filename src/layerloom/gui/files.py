@@ -12,6 +12,8 @@ Every question to the user goes through :class:`Prompts`, which tests replace.
 """
 from __future__ import annotations
 
+import os
+import zlib
 from pathlib import Path
 
 from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
@@ -19,13 +21,25 @@ from PySide6.QtWidgets import QFileDialog, QInputDialog, QMessageBox
 
 from layerloom.core import fileformat
 from layerloom.core.fileformat import LoomFileError
+from layerloom.core.values import quote
 from layerloom.gui.document import Document
 
 AUTOSAVE_MS = 60_000
 AUTOSAVE_SUFFIX = ".autosave"
+NAME_MAX = 255  # bytes in a file name on common file systems
 UNSAVED_NAME = "unsaved.loom"
 RECENT_KEY, RECENT_LIMIT = "files/recent", 8
 DESIGN_FILTER = "Layerloom designs (*.loom)"
+
+
+def why_not_saved(error: Exception) -> str:
+    """A save error in words: the system's reason, or the text that cannot be written."""
+    if isinstance(error, UnicodeEncodeError):
+        return (f"the design holds text that cannot be written as UTF-8 "
+                f"({quote(error.object[error.start:error.end])} at character {error.start + 1} of the file)")
+    if isinstance(error, OSError):
+        return error.strerror or str(error)
+    return str(error)
 
 
 class Prompts:
@@ -93,10 +107,15 @@ class FileKeeper(QObject):
         return path.name if path is not None else f"{self.document.design.name} (not saved)"
 
     def autosave_path(self) -> Path:
+        """``NAME.loom.autosave`` beside the file; for a name near the 255-byte limit, its first
+        200 bytes and a checksum of the whole name instead of NAME.loom."""
         path = self.document.path
         if path is None:
             return self.scratch_dir / (UNSAVED_NAME + AUTOSAVE_SUFFIX)
-        return path.with_name(path.name + AUTOSAVE_SUFFIX)
+        name = os.fsencode(path.name)
+        if len(name) + len(AUTOSAVE_SUFFIX) > NAME_MAX:
+            name = name[:200] + f"~{zlib.crc32(name):08x}".encode()
+        return path.with_name(os.fsdecode(name) + AUTOSAVE_SUFFIX)
 
     # ----- autosave and recovery
     def autosave(self) -> Path | None:
@@ -107,8 +126,8 @@ class FileKeeper(QObject):
         try:
             target.parent.mkdir(parents=True, exist_ok=True)
             fileformat.save(self.document.design, target)
-        except OSError as e:
-            self.said.emit(f"Autosave to {target} failed: {e.strerror or e}")
+        except (OSError, ValueError) as e:
+            self.said.emit(f"Autosave to {target} failed: {why_not_saved(e)}")
             return None
         return target
 
@@ -195,12 +214,18 @@ class FileKeeper(QObject):
         return self.write(path if path.suffix == ".loom" else path.with_name(path.name + ".loom"))
 
     def write(self, path: Path) -> bool:
-        """Save atomically to ``path``; the old autosave copy goes."""
+        """Save atomically to ``path``; the old autosave copy goes. On failure say why, keep the
+        design open and unsaved, and leave (or write) its recovery copy."""
         try:
             fileformat.save(self.document.design, path)
-        except OSError as e:
+        except (OSError, ValueError) as e:
+            copy = self.autosave_path()
+            if not copy.exists():
+                copy = self.autosave()
+            kept = f"A recovery copy is kept at {copy}." if copy else "No recovery copy could be written either."
             self.prompts.error("Cannot save design",
-                               f"{path}: {e.strerror or e}\nThe design is still open and unsaved.")
+                               f"{path}: {why_not_saved(e)}\nThe design is still open and unsaved. {kept}")
+            self.said.emit(f"{path.name} was not saved")
             return False
         self.drop_autosave()  # the copy under the old name (or of the unsaved design)
         self.document.mark_saved(path.resolve())

@@ -22,6 +22,7 @@ from typing import Any, NamedTuple
 from layerloom.core.findings import Stop
 from layerloom.core.settings import Setting, SettingError
 from layerloom.core.shapes import Shape
+from layerloom.core.values import quote
 
 
 class Cost(NamedTuple):
@@ -116,7 +117,7 @@ class Kind:
         for key, value in settings.items():
             spec = self.settings_by_key.get(key)
             if spec is None:
-                raise SettingError(f"{self.name} has no setting {key!r} (it has: {', '.join(self.settings_by_key) or 'none'})")
+                raise SettingError(f"{self.name} has no setting {quote(key)} (it has: {', '.join(self.settings_by_key) or 'none'})")
             out[key] = spec.check(value)
         return out
 
@@ -151,6 +152,26 @@ def conv_length(n: int, k: int, s: int, p: int, d: int, name: str, axis: str, re
                    f"{name}: stride {s} over {axis} {n} leaves the last {dropped} {'row' if axis == 'height' else 'column'}"
                    f"{'s' if dropped > 1 else ''} unread")
     return span // s + 1
+
+
+def both_axes(rule) -> tuple[int, int]:
+    """``(rule("height", 0), rule("width", 1))``; when both axes collapse, one ``shape.collapsed``
+    names both (numbers ``h×w`` of each side), not only the height."""
+    sizes, collapsed = [], []
+    for i, axis in enumerate(("height", "width")):
+        try:
+            sizes.append(rule(axis, i))
+        except Stop as e:
+            if e.code != "shape.collapsed":
+                raise
+            collapsed.append(e)
+    if len(collapsed) == 2:
+        h, w = collapsed
+        raise Stop("shape.collapsed", f"{h.message}; and {w.message.split(': ', 1)[-1]}", h.port,
+                   tuple(f"{a}×{b}" for a, b in zip(h.numbers, w.numbers)))
+    if collapsed:
+        raise collapsed[0]
+    return sizes[0], sizes[1]
 
 
 def kw(**pairs: Any) -> str:

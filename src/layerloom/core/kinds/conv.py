@@ -7,7 +7,7 @@ convention of ``torch.utils.flop_counter``).
 from __future__ import annotations
 
 from layerloom.core.findings import Stop
-from layerloom.core.kinds.base import Cost, Kind, conv_length, kw, need_map, register
+from layerloom.core.kinds.base import Cost, Kind, both_axes, conv_length, kw, need_map, register
 from layerloom.core.settings import bool_setting, int_setting, padding_setting, pair, pair_setting, pair_text
 from layerloom.core.shapes import Shape
 
@@ -32,8 +32,8 @@ def _conv_map(name, x, k, s, p, d, report) -> tuple[int, int]:
                        "give the padding as a number instead")
         return x[1], x[2]
     (kh, kw_), (sh, sw), (ph, pw), (dh, dw) = pair(k), pair(s), pair(p), pair(d)
-    return (conv_length(x[1], kh, sh, ph, dh, name, "height", report),
-            conv_length(x[2], kw_, sw, pw, dw, name, "width", report))
+    k, s, p, d = (kh, kw_), (sh, sw), (ph, pw), (dh, dw)
+    return both_axes(lambda axis, i: conv_length(x[1 + i], k[i], s[i], p[i], d[i], name, axis, report))
 
 
 def _conv_window(s: dict):
@@ -179,18 +179,20 @@ class ConvTranspose2d(Kind):
         x = need_map(ins[0], name)
         out = s["out_channels"]
         _groups_fit(x[0], out, s["groups"], name)
-        sizes = []
-        for axis, n, k, st, p, op, d in zip(("height", "width"), x[1:], pair(s["kernel"]), pair(s["stride"]),
-                                            pair(s["padding"]), pair(s["output_padding"]), pair(s["dilation"])):
+        settings = [pair(s[key]) for key in ("kernel", "stride", "padding", "output_padding", "dilation")]
+
+        def length(axis, i):
+            k, st, p, op, d = (v[i] for v in settings)
             if op >= max(st, d):
                 raise Stop("conv.output_padding", f"{name}: output padding {op} must be below the stride {st} "
                            f"or the dilation {d}", numbers=(op, max(st, d)))
-            size = (n - 1) * st - 2 * p + d * (k - 1) + op + 1
+            size = (x[1 + i] - 1) * st - 2 * p + d * (k - 1) + op + 1
             if size < 1:
-                raise Stop("shape.collapsed", f"{name}: the output {axis} would be {size}; reduce the padding {p}",
+                raise Stop("shape.collapsed", f"{name}: the output {axis} would be {size} with padding {p}, below 1",
                            numbers=(size, 1))
-            sizes.append(size)
-        return Shape.chw(out, *sizes)
+            return size
+
+        return Shape.chw(out, *both_axes(length))
 
     def cost(self, s, ins, out):
         kh, kw_ = pair(s["kernel"])

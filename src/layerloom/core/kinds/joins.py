@@ -1,6 +1,7 @@
 """Joins of branches: Add (residual), Multiply (gating, e.g. squeeze-and-excite), Concat (channels).
 
-No weights, no MACs; other operations: one per output element per extra input.
+No weights, no MACs. Other operations: Add, one per output element per extra input; Multiply, one
+per output element; Concat none (it only copies its inputs side by side).
 """
 from __future__ import annotations
 

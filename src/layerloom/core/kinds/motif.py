@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from layerloom.core.kinds.base import Kind, register
 from layerloom.core.settings import Setting, SettingError, int_setting
+from layerloom.core.values import quote
 
 MOTIF = Setting("motif", "text", "motif", "Motif", help="name of a motif defined in this design")
 REPEAT = int_setting("repeat", 1, "Repeat × N", maximum=1000, help="copies stacked in series")
@@ -30,7 +31,7 @@ class MotifUse(Kind):
                 try:
                     out[key] = PARAM.check(value)
                 except SettingError as e:
-                    raise SettingError(f"motif parameter {key!r}: {e}") from None
+                    raise SettingError(f"motif parameter {quote(key)}: {e}") from None
         return out
 
     def summary(self, s):

@@ -6,7 +6,7 @@ element read (pooling), one per output element (resizing).
 from __future__ import annotations
 
 from layerloom.core.findings import Stop
-from layerloom.core.kinds.base import Cost, Kind, conv_length, kw, need_map, register
+from layerloom.core.kinds.base import Cost, Kind, both_axes, conv_length, kw, need_map, register
 from layerloom.core.settings import Setting, bool_setting, int_setting, pair, pair_setting, pair_text
 from layerloom.core.shapes import Shape
 
@@ -22,12 +22,12 @@ class Pool(Kind):
     def shape(self, s, ins, report):
         name = report.name
         x = need_map(ins[0], name)
-        sizes = []
-        for axis, n, k, st, p in zip(("height", "width"), x[1:], pair(s["kernel"]), pair(s["stride"]), pair(s["padding"])):
+        kernel, stride, padding = pair(s["kernel"]), pair(s["stride"]), pair(s["padding"])
+        for k, p in zip(kernel, padding):
             if 2 * p > k:
                 raise Stop("pool.padding", f"{name}: padding {p} is more than half the kernel {k}", numbers=(p, k // 2))
-            sizes.append(conv_length(n, k, st, p, 1, name, axis, report, s["ceil_mode"]))
-        return Shape.chw(x[0], *sizes)
+        return Shape.chw(x[0], *both_axes(lambda axis, i: conv_length(
+            x[1 + i], kernel[i], stride[i], padding[i], 1, name, axis, report, s["ceil_mode"])))
 
     def cost(self, s, ins, out):
         kh, kw_ = pair(s["kernel"])

@@ -14,6 +14,7 @@ from layerloom.core.findings import Stop
 from layerloom.core.kinds.base import Cost, Kind, register
 from layerloom.core.settings import Setting, SettingError, int_setting
 from layerloom.core.shapes import Shape
+from layerloom.core.values import quote
 
 PLACEHOLDER = '''class UnmappedOperation(nn.Module):
     """Placeholder for an operation Layerloom imported but could not map: write its forward."""
@@ -40,9 +41,9 @@ def parse_shapes(text: str) -> tuple[Shape, ...]:
         try:
             numbers = [int(d) for d in dims]
         except ValueError:
-            raise ValueError(f"{part.strip()!r} is not a shape C×H×W or F") from None
+            raise ValueError(f"{quote(part.strip())} is not a shape C×H×W or F") from None
         if len(numbers) not in (1, 3) or min(numbers) < 1:
-            raise ValueError(f"{part.strip()!r} is not a shape C×H×W or F of sizes ≥ 1")
+            raise ValueError(f"{quote(part.strip())} is not a shape C×H×W or F of sizes ≥ 1")
         shapes.append(Shape(numbers))
     return tuple(shapes)
 
@@ -72,9 +73,9 @@ class Unmapped(Kind):
             except ValueError as e:
                 raise SettingError(f"{self.settings_by_key[key].label}: {e}") from None
         if len(shapes) != 1:
-            raise SettingError(f"Traced output shape must be one shape, not {out['out_shape']!r}")
+            raise SettingError(f"Traced output shape must be one shape, not {quote(out['out_shape'])}")
         if len(parse_shapes(out["in_shapes"])) != out["inputs"]:
-            raise SettingError(f"Traced input shapes {out['in_shapes']!r} must give one shape per input "
+            raise SettingError(f"Traced input shapes {quote(out['in_shapes'])} must give one shape per input "
                                f"({out['inputs']})")
         return out
 
