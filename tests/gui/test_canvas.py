@@ -257,7 +257,7 @@ def test_select_a_wire_and_delete_it_then_delete_a_block(qtbot):
     w = Wire(ids["mix"], 0, ids["expand"], 0)
     item = wire_item(view, w)
     QTest.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, Qt.KeyboardModifier.NoModifier,
-                     at(view, item._path.pointAtPercent(0.3)))
+                     at(view, item.path().pointAtPercent(0.3)))
     assert item.isSelected()
     QTest.keyClick(view, Qt.Key.Key_Delete)
     assert w not in d.wires and w not in view.canvas_scene.wires

@@ -39,7 +39,7 @@ def open_unfolded(qtbot, design, **kw):
 
 
 def wire_point(view, wire, t=0.5) -> QPoint:
-    return at(view, wire_item(view, wire)._path.pointAtPercent(t))
+    return at(view, wire_item(view, wire).path().pointAtPercent(t))
 
 
 def click(view, point: QPoint, modifier=Qt.KeyboardModifier.NoModifier) -> None:

@@ -48,7 +48,7 @@ def cards(scene):
 
 
 def path_points(wire) -> list:
-    path = wire._path
+    path = wire.path()
     return [(p.x(), p.y()) for p in (path.pointAtPercent(i / 60) for i in range(61))]
 
 

@@ -72,16 +72,22 @@ class Obstacles:
                 if r[0] < right and r[2] > left and r[1] < bottom and r[3] > top]
 
 
-def _crosses_h(rects, y: float, left: float, right: float) -> bool:
-    """Whether a horizontal lane at ``y`` from ``left`` to ``right`` comes within CLEAR of a card."""
+def _spans_h(rects, left: float, right: float) -> list[tuple[float, float]]:
+    """The heights (open intervals) where a horizontal lane from ``left`` to ``right`` would come
+    within CLEAR of one of ``rects``."""
     c = CLEAR - 0.5
-    return any(r[0] - c < right and r[2] + c > left and r[1] - c < y < r[3] + c for r in rects)
+    return [(r[1] - c, r[3] + c) for r in rects if r[0] - c < right and r[2] + c > left]
 
 
-def _crosses_v(rects, x: float, y0: float, y1: float) -> bool:
-    """Whether a vertical run at ``x`` between ``y0`` and ``y1`` touches a card."""
+def _spans_v(rects, x: float) -> list[tuple[float, float]]:
+    """The heights (top, bottom) of the cards a vertical run at ``x`` would touch."""
+    return [(r[1], r[3]) for r in rects if r[0] - 2.0 < x < r[2] + 2.0]
+
+
+def _crosses_v(spans, y0: float, y1: float) -> bool:
+    """Whether a vertical run between ``y0`` and ``y1`` touches a card of ``spans`` (see _spans_v)."""
     top, bottom = min(y0, y1), max(y0, y1)
-    return any(r[0] - 2.0 < x < r[2] + 2.0 and r[1] < bottom and r[3] > top for r in rects)
+    return any(a < bottom and b > top for a, b in spans)
 
 
 def route(a: Point, b: Point, obstacles: Obstacles, ends=()) -> tuple | None:
@@ -112,13 +118,14 @@ def _lane(near, target, x0, x1, ay, by, top, bottom) -> float | None:
     """The free lane nearest ``target`` (both turns clear of cards too, if any such lane exists),
     within ``top``..``bottom``; None when there is none there."""
     lo, hi = min(x0, x1), max(x0, x1)
-    lanes = sorted({y for r in near for y in (r[1] - CLEAR, r[3] + CLEAR)} | {target},
+    lanes = sorted((y for y in {y for r in near for y in (r[1] - CLEAR, r[3] + CLEAR)} | {target} if top < y < bottom),
                    key=lambda y: (abs(y - target), y))
+    across, up, down = _spans_h(near, lo, hi), _spans_v(near, x0), _spans_v(near, x1)
     first = None
     for y in lanes:
-        if not top < y < bottom or _crosses_h(near, y, lo, hi):
+        if any(a < y < b for a, b in across):
             continue
-        if not _crosses_v(near, x0, ay, y) and not _crosses_v(near, x1, y, by):
+        if not _crosses_v(up, ay, y) and not _crosses_v(down, y, by):
             return y
         if first is None:
             first = y

@@ -140,6 +140,9 @@ def chip_width(label: str) -> float:
     return advance("detail", label) + 6.0
 
 
+SCENE_MOVED = QGraphicsItem.GraphicsItemChange.ItemScenePositionHasChanged
+
+
 class BlockItem(QGraphicsItem):
     """One block's card. Its position is the card's top-left corner, as stored in the design."""
 
@@ -244,12 +247,22 @@ class BlockItem(QGraphicsItem):
         p.addRect(QRectF(-4.0, 0, W + 8.0, H))
         return p
 
+    def input_point(self, port: int) -> tuple[float, float]:
+        """Scene ``(x, y)`` where a wire into input ``port`` ends (just short of its notch; a card
+        is a top-level item, so its position is its scene position)."""
+        p = self.pos()
+        return p.x() - theme.WIRE_GAP, p.y() + port_y(port, max(self.state.n_in, port + 1))
+
+    def output_point(self, port: int) -> tuple[float, float]:
+        p = self.pos()
+        return p.x() + W + theme.WIRE_GAP, p.y() + port_y(port, max(self.state.n_out, port + 1))
+
     def input_pos(self, port: int) -> QPointF:
-        """Scene point where a wire into input ``port`` ends (just short of its notch)."""
-        return self.scenePos() + QPointF(-theme.WIRE_GAP, port_y(port, max(self.state.n_in, port + 1)))
+        """:meth:`input_point` as a QPointF."""
+        return QPointF(*self.input_point(port))
 
     def output_pos(self, port: int) -> QPointF:
-        return self.scenePos() + QPointF(W + theme.WIRE_GAP, port_y(port, max(self.state.n_out, port + 1)))
+        return QPointF(*self.output_point(port))
 
     def title_rect(self) -> QRectF:
         return QRectF(TITLE_LEFT - 3, 6.0, W - TITLE_LEFT - theme.PADDING + 6, 20.0)
@@ -272,9 +285,9 @@ class BlockItem(QGraphicsItem):
 
     # ----- moves
     def itemChange(self, change, value):
-        if change == QGraphicsItem.GraphicsItemChange.ItemScenePositionHasChanged:
+        if change == SCENE_MOVED:
             self._on_moved(self.block_id)
-        return super().itemChange(change, value)
+        return value  # what QGraphicsItem.itemChange returns (no second crossing into Qt)
 
     # ----- drawing
     def paint(self, painter, option, widget=None) -> None:

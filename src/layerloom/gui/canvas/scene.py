@@ -188,7 +188,7 @@ class CanvasScene(QGraphicsScene):
             self.obstacles = Obstacles({b: _rect(i) for b, i in self.cards()})
             self._ov_valid = False
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
-            self._stages = None
+            self._forget_places()
             if many:  # every route may change
                 self._dirty_wires.update(self.wires)
             for bid in () if many else change.moved[key]:
@@ -365,10 +365,15 @@ class CanvasScene(QGraphicsScene):
         if not self._ov_valid:
             self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
+            by_status: dict = {}  # a card's status → (colour rgba, its group's rectangles)
             for bid, item in self.cards():
-                colour = _overview_colour(item)
-                self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
-                self._ov_where[bid] = colour.rgba()
+                group = by_status.get(item.state.status)
+                if group is None:
+                    colour = _overview_colour(item)
+                    group = by_status[item.state.status] = (
+                        colour.rgba(), self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1])
+                group[1][bid] = CARD_RECT.translated(item.pos())
+                self._ov_where[bid] = group[0]
             self._ov_valid = True
         chosen = [] if moving is False else [
             (theme.ACCENT, [CARD_RECT.translated(i.pos()) for i in self.selectedItems() if isinstance(i, BlockItem)])]
@@ -422,8 +427,15 @@ class CanvasScene(QGraphicsScene):
         shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
         return stage_groups(self.graph, shapes, self.folds)
 
+    def _forget_places(self) -> None:
+        """Drop what :meth:`stage_cache` keeps that depends on where cards are (the stages
+        themselves depend only on the graph, its shapes and the folds)."""
+        if self._stages is not None:
+            self._stages = {k: v for k, v in self._stages.items() if k == "stages"}
+
     def stage_cache(self, key: str, make):
-        """What ``make()`` returns, kept until the graph shown, its results or a position changes."""
+        """What ``make()`` returns, kept until the graph shown or its results change, or (but for
+        the stages) a position changes."""
         if self._stages is None:
             self._stages = {}
         if key not in self._stages:
@@ -474,20 +486,21 @@ class CanvasScene(QGraphicsScene):
             item = self.wires.get(w)
             if item is not None:
                 src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
-                a = blocks[src].output_pos(w.src_port if src == w.src else 0)
-                b = blocks[dst].input_pos(w.dst_port)
-                before = item.lines
-                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
-                                  self._labelled(w, chosen))
+                a = blocks[src].output_point(w.src_port if src == w.src else 0)
+                b = blocks[dst].input_point(w.dst_port)
+                if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), self._labelled(w, chosen)):
+                    continue
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
-                if src not in self.moving and dst not in self.moving and item.lines != before:
+                if src not in self.moving and dst not in self.moving:
                     self.overview_revision += 1  # a still wire took another way
         self._dirty_wires.clear()
 
     def _labelled(self, w, chosen: dict) -> bool:
         """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the
         nearest card does (they all carry the same tensor); ``chosen`` remembers the pick per output."""
+        if len(self.graph.out_wires.get(w.src, ())) < 2:  # the only wire leaving its block
+            return True
         key = (w.src, w.src_port)
         if key not in chosen:
             siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]

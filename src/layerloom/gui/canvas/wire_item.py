@@ -2,12 +2,14 @@
 when cards stand in the way, a route around them (corner points from :mod:`layerloom.core.wire_route`)
 drawn with rounded corners.
 
-The path, its padded bounding rect and the label's place are computed in
-:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``), the stroked hit shape on the
-first hit test after it; all are cached, and ``paint`` only draws them.
+:meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``) keeps the wire's ends or corner
+points, its straight lines, padded bounding rect and label place, all computed without building a
+path; the QPainterPath is built on the first close-up paint or hit test after it (far out, only the
+lines are drawn), the stroked hit shape on the first hit test; both are then kept.
 """
 from __future__ import annotations
 
+from functools import lru_cache
 from math import log2
 
 from PySide6.QtCore import QLineF, QPointF, QRectF, Qt
@@ -30,10 +32,28 @@ def stroke_width(channels: int | None) -> float:
     return min(w, theme.WIRE_MAX_WIDTH)
 
 
+def curve_reach(ax: float, bx: float) -> float:
+    """How far a curve's control points stand out from its ends (at ``ax`` and ``bx``), horizontally."""
+    return max(abs(bx - ax) * 0.5, 40.0)
+
+
+NO_LABEL = ("", 0.0, 0.0)
+
+
+@lru_cache(maxsize=1024)
+def shape_label(shape) -> tuple[str, float, float]:
+    """A wire's label for the tensor ``shape`` it carries (None: none), with the label box's width
+    and height."""
+    if shape is None:
+        return NO_LABEL
+    text = str(shape)
+    return text, advance("figure", text) + 6.0, metrics("figure").height() + 1.0
+
+
 def curve(a: QPointF, b: QPointF) -> QPainterPath:
     """A smooth curve leaving ``a`` and entering ``b`` horizontally."""
     p = QPainterPath(a)
-    reach = max(abs(b.x() - a.x()) * 0.5, 40.0)
+    reach = curve_reach(a.x(), b.x())
     p.cubicTo(QPointF(a.x() + reach, a.y()), QPointF(b.x() - reach, b.y()), b)
     return p
 
@@ -64,7 +84,10 @@ class WireItem(QGraphicsItem):
         self.label = ""
         self.width = theme.WIRE_MIN_WIDTH
         self.known = False
-        self._path = QPainterPath()
+        self._path: QPainterPath | None = QPainterPath()
+        self._ends: tuple = ()  # (a, b) of a curve, or the corner points of a route
+        self._routed = False
+        self._key: tuple = ()  # what the geometry was last made from
         self._lines: list[QLineF] = []
         self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
@@ -72,33 +95,51 @@ class WireItem(QGraphicsItem):
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
-    def set_geometry(self, a: QPointF, b: QPointF, points=None, labelled: bool = True) -> None:
-        """Draw the wire from ``a`` to ``b`` as a curve, or through corner ``points`` when given;
-        width and label follow :attr:`carried` (no label when not ``labelled``: another wire from
-        the same output already says the shape)."""
+    def set_geometry(self, a: tuple, b: tuple, points=None, labelled: bool = True) -> bool:
+        """Draw the wire from scene point ``a`` to ``b`` (``(x, y)``) as a curve, or through corner
+        ``points`` when given; width and label follow :attr:`carried` (no label when not
+        ``labelled``: another wire from the same output already says the shape). Returns whether
+        anything changed (nothing is redone for a wire whose ends, route, shape and label stay)."""
         shape = self.carried
+        key = (points or (a, b), shape, labelled)
+        if key == self._key:
+            return False
+        self._key = key
         self.prepareGeometryChange()
         self.known = shape is not None
-        self.label = str(shape) if shape is not None and labelled else ""
-        self.width = stroke_width(shape[0] if shape is not None else None)
+        self.width = width = stroke_width(shape[0] if shape is not None else None)
+        self._routed = bool(points)
         if points:
-            self._path = routed(points)
+            self._ends = points
             self._lines = [QLineF(*p, *q) for p, q in zip(points, points[1:])]
+            xs, ys = [p[0] for p in points], [p[1] for p in points]
+            left, top, right, bottom = min(xs), min(ys), max(xs), max(ys)  # rounded corners stay inside
+            (mx, my), (nx, ny) = points[2], points[3]  # a routed wire: the middle of its lane
         else:
-            self._path = curve(a, b)
-            self._lines = [QLineF(a, b)]
+            self._ends = (a, b)
+            self._lines = [QLineF(*a, *b)]
+            (mx, my), (nx, ny) = a, b  # the curve is symmetric about the middle of its ends
+            reach = curve_reach(a[0], b[0])  # and stays within its control points' box
+            left, right = min(a[0], b[0], b[0] - reach), max(a[0], b[0], a[0] + reach)
+            top, bottom = min(a[1], b[1]), max(a[1], b[1])
+        self._path = None  # built on first use (a close-up paint or a hit test)
         self._hit = None  # stroked on first use (hit tests), then kept until the path changes
-        bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
+        bounds = QRectF(left - width, top - width, right - left + 2 * width, bottom - top + 2 * width)
+        self.label, w, h = shape_label(shape) if labelled else NO_LABEL
         if self.label:
-            fm = metrics("figure")
-            mid = (QLineF(*points[2], *points[3]).center() if points  # a routed wire: the middle of its lane
-                   else self._path.pointAtPercent(0.5))
-            w, h = advance("figure", self.label) + 6.0, fm.height() + 1.0
-            self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
+            x, y = (mx + nx) / 2, (my + ny) / 2
+            self._label_rect = QRectF(x - w / 2, y - width / 2 - h - 1.0, w, h)
             bounds = bounds.united(self._label_rect)
         else:
             self._label_rect = QRectF()
         self._bounds = bounds
+        return True
+
+    def path(self) -> QPainterPath:
+        """The wire's drawn path (built from its ends or corner points on first use)."""
+        if self._path is None:
+            self._path = routed(self._ends) if self._routed else curve(*(QPointF(*p) for p in self._ends))
+        return self._path
 
     @property
     def lines(self) -> list[QLineF]:
@@ -112,7 +153,7 @@ class WireItem(QGraphicsItem):
         if self._hit is None:
             stroker = QPainterPathStroker()
             stroker.setWidth(max(self.width, HIT_WIDTH))
-            self._hit = stroker.createStroke(self._path)
+            self._hit = stroker.createStroke(self.path())
         return self._hit
 
     def paint(self, painter, option, widget=None) -> None:
@@ -127,7 +168,7 @@ class WireItem(QGraphicsItem):
                    Qt.PenCapStyle.FlatCap)
         painter.setPen(pen)
         painter.setBrush(Qt.BrushStyle.NoBrush)
-        painter.drawPath(self._path)
+        painter.drawPath(self.path())
         if not self.label or lod < theme.TEXT_MIN_DETAIL:
             return
         painter.setPen(Qt.PenStyle.NoPen)
