@@ -6,7 +6,8 @@ freed. Blocks whose kind is a view (Flatten, Dropout at inference, Identity, Out
 nothing and keep their source alive. The design's outputs, and outputs nothing reads, stay alive
 to the end. A motif instance adds its inner transient memory beyond its inputs and outputs; when
 it is the last reader of its inputs they are freed inside it as soon as the inner blocks are done
-with them. Counts are elements per sample; the ledger multiplies by batch size and bytes.
+with them; in a repeated use, every copy after the first reads a tensor made inside the use,
+which counts while that copy runs. Counts are elements per sample; the ledger multiplies by batch size and bytes.
 
 When each tensor dies depends only on the wiring, so it is worked out once per order
 (:class:`Plan`); a settings edit only recomputes the sizes, with numpy.

@@ -265,6 +265,9 @@ def _mend_cycle(place: Place, finding: Finding):
 @mend("graph.dead_end")
 def _mend_dead_end(place: Place, finding: Finding):
     b = place.graph.blocks[place.block]
+    motif = place.design.motifs.get(b.settings["motif"]) if b.kind == "Motif" else None
+    if motif is not None and not motif.ports()[1]:
+        return  # a use of a motif with no output port has nothing to wire an Output to
     edit, _ = edits.add_block(place.design, "Output", graph=place.graph.key, inputs=[(b.id, 0)],
                               position=(b.position[0] + 220.0, b.position[1]))
     yield Mend(f"Add an Output after {b.name}", edit)
