@@ -91,24 +91,24 @@ def _graphs_with(d: Design, keep) -> list[str]:
     return [key for key in [""] + sorted(d.motifs) if any(keep(b) for b in d.graph(key).blocks.values())]
 
 
+def _reach(start: str, step) -> set[str]:
+    """``start`` and every block reached from it by following ``step`` (block → next blocks)."""
+    seen, todo = {start}, [start]
+    while todo:
+        for nxt in step(todo.pop()):
+            if nxt not in seen:
+                seen.add(nxt)
+                todo.append(nxt)
+    return seen
+
+
 def _convex(draw, g) -> list[str]:
     """Blocks on every path from one block to another (or to itself): a selection with no path that
     leaves it and comes back."""
     start = draw(st.sampled_from(sorted(b.id for b in g.blocks.values() if b.kind not in PORT_KINDS)))
-    after, todo = {start}, [start]
-    while todo:
-        for w in g.out_wires[todo.pop()]:
-            if w.dst not in after:
-                after.add(w.dst)
-                todo.append(w.dst)
+    after = _reach(start, lambda b: [w.dst for w in g.out_wires[b]])
     end = draw(st.sampled_from(sorted(b for b in after if g.blocks[b].kind not in PORT_KINDS)))
-    before, todo = {end}, [end]
-    while todo:
-        for w in g.in_wires[todo.pop()]:
-            if w.src not in before:
-                before.add(w.src)
-                todo.append(w.src)
-    return sorted(after & before)
+    return sorted(after & _reach(end, lambda b: [w.src for w in g.in_wires[b]]))
 
 
 def make_motif_edit(draw, d: Design) -> edits.Edit:
