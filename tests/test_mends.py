@@ -230,3 +230,21 @@ def test_findings_without_a_mend_still_name_the_numbers(code):
         d.add("Output", d.add("Conv2d", x, out_channels=8, kernel=7))
         assert "height 4" in finding(d, code).message and "7" in finding(d, code).message
     assert mends_for(d, finding(d, code)) == []
+
+
+def test_every_block_on_a_loop_is_reported_so_a_mend_never_reveals_new_errors():
+    """A self-loop on input_1 and a second loop input_1 → conv_1 → input_1: both blocks are on a
+    loop (only input_1 used to be named); removing the self-loop leaves no more errors than before."""
+    d = Design()
+    x = d.input(3, 8, 8)
+    c = d.add("Conv2d", x, out_channels=3, kernel=1)
+    d.connect(x, x, 0)
+    d.connect(c, x, 0)
+    loops = {f.block: f.message for f in d.findings() if f.code == "graph.cycle"}
+    assert loops == {x: "input_1 is on a loop of wires: input_1 → input_1",
+                     c: "conv_1 is on a loop of wires: conv_1 → input_1 → conv_1"}
+    errors = sum(f.severity == "error" for f in d.findings())
+    for m in mends_for(d, finding(d, "graph.cycle")):
+        undo = d.apply(m.edit)
+        assert sum(f.severity == "error" for f in d.findings()) <= errors, m.label
+        d.apply(undo)

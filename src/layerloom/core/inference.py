@@ -14,7 +14,6 @@ Transposed convolution and upsampling divide the jump (a first-order convention)
 """
 from __future__ import annotations
 
-import graphlib
 import heapq
 from math import prod
 from typing import NamedTuple
@@ -133,7 +132,7 @@ class GraphInference:
     # ----- order, cycles, dead ends
     def reorder(self) -> None:
         """Depth order and levels (Kahn's algorithm, levels bucketed in insertion order: graphlib's
-        sorter is several times slower at thousands of blocks), loops named with graphlib, and the
+        sorter is several times slower at thousands of blocks), loops named, and the
         graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks, out_wires = g.blocks, g.out_wires
@@ -172,23 +171,29 @@ class GraphInference:
         self.graph_findings = found
 
     def _cycles(self, stuck: list[str]) -> list[Finding]:
-        """Name every loop among the blocks that could not be ordered (graphlib finds each)."""
+        """Name a loop through every block that is on one (each group of blocks that reach one
+        another is a loop; a walk through each member is named, in linear time)."""
         g = self.graph
         members = set(stuck)
-        preds = {b: [w.src for w in g.in_wires[b] if w.src in members] for b in stuck}
+        succ = {b: [w.dst for w in g.out_wires[b] if w.dst in members] for b in stuck}
+        pred = {b: [w.src for w in g.in_wires[b] if w.src in members] for b in stuck}
         found = []
-        while True:
-            try:
-                graphlib.TopologicalSorter(preds).prepare()
-                return found
-            except graphlib.CycleError as e:
-                loop = e.args[1]
-            names = " → ".join(g.blocks[b].name for b in reversed(loop))
-            for b in dict.fromkeys(loop):
+        for group in _strong_groups(stuck, succ):
+            root = group[0]
+            inside = set(group)
+            if len(group) == 1 and root not in succ[root]:
+                continue  # after a loop, not on one
+            ahead = _paths(root, succ, inside)  # root → b
+            back = _paths(root, pred, inside)  # b → root, read backwards
+            for b in group:
+                if b == root:
+                    p = next(x for x in pred[root] if x in inside)
+                    walk = _walk(ahead, p) + [root]
+                else:
+                    walk = list(reversed(_walk(back, b))) + _walk(ahead, b)[1:]
+                names = " → ".join(g.blocks[x].name for x in walk)
                 found.append(Finding("graph.cycle", ERROR, b, f"{g.blocks[b].name} is on a loop of wires: {names}"))
-                preds.pop(b, None)
-            for b in preds:
-                preds[b] = [p for p in preds[b] if p in preds]
+        return found
 
     def _dead_ends(self) -> list[Finding]:
         g = self.graph
@@ -382,6 +387,67 @@ class GraphInference:
         if repeat > 1:  # copies after the first take an input made inside the use, freed inside it
             extra = max(extra, run.extra_freed + sum(x.elements for x in ins))
         return Result(ins, run.outs, cost, rf, jump, extra, run.extra_freed, executed, fields)
+
+
+def _strong_groups(nodes: list[str], succ: dict) -> list[list[str]]:
+    """Groups of nodes that all reach one another (Tarjan's algorithm, without recursion), each in
+    the order of ``nodes``."""
+    order = {v: i for i, v in enumerate(nodes)}
+    index: dict[str, int] = {}
+    low: dict[str, int] = {}
+    stack: list[str] = []
+    on: set[str] = set()
+    groups = []
+    for start in nodes:
+        if start in index:
+            continue
+        work = [(start, 0)]
+        while work:
+            v, i = work.pop()
+            if i == 0:
+                index[v] = low[v] = len(index)
+                stack.append(v)
+                on.add(v)
+            if i < len(succ[v]):
+                work.append((v, i + 1))
+                w = succ[v][i]
+                if w not in index:
+                    work.append((w, 0))
+                elif w in on:
+                    low[v] = min(low[v], index[w])
+                continue
+            if low[v] == index[v]:
+                group = []
+                while True:
+                    w = stack.pop()
+                    on.discard(w)
+                    group.append(w)
+                    if w == v:
+                        break
+                groups.append(sorted(group, key=order.__getitem__))
+            if work:
+                parent = work[-1][0]
+                low[parent] = min(low[parent], low[v])
+    return groups
+
+
+def _paths(root: str, step: dict, inside: set) -> dict:
+    """Breadth-first parents from ``root`` following ``step`` within ``inside``."""
+    parent, todo = {root: None}, [root]
+    for v in todo:
+        for w in step[v]:
+            if w in inside and w not in parent:
+                parent[w] = v
+                todo.append(w)
+    return parent
+
+
+def _walk(parent: dict, b: str) -> list[str]:
+    """The path from the root to ``b`` in a parent map."""
+    path = [b]
+    while parent[path[-1]] is not None:
+        path.append(parent[path[-1]])
+    return path[::-1]
 
 
 def _field(r: Result, port: int) -> tuple:

@@ -36,9 +36,12 @@ class Plan:
         allocates = [False] * n
         death = [n] * n  # nothing reads it: it stays to the end
         read = [False] * n
+        position = {b: i for i, b in enumerate(order)}
         for i, bid in enumerate(order):  # in order, so a source's owner is known before it is read
             kind = blocks[bid].kind
             ins = in_wires[bid]
+            if len(ins) > 1:  # the same answer whatever order the wires were made in
+                ins = sorted(ins, key=lambda w: (w.dst_port, position.get(w.src, n), w.src_port))
             if inputs_outside and kind == "Input":
                 owner[bid] = None
             elif kind in VIEWS and ins:

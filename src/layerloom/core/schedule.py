@@ -45,7 +45,7 @@ class _Opened:
         self.level: dict[tuple, int] = {}
 
     def add(self, step: tuple, key: tuple, kind: str, outs: tuple, sources: list) -> None:
-        wires = [Wire(src, port, step, k) for k, (src, port) in enumerate(sources)]
+        wires = [Wire(src, port, step, k) for (src, port), k in sources]
         self.blocks[step], self.in_wires[step], self.key[step] = _Block(kind), wires, key
         self.results[step] = _Step(outs)
         self.level[step] = max((self.level[w.src] + 1 for w in wires), default=0)
@@ -56,10 +56,12 @@ class _Opened:
         env: dict[str, list] = {}
         index = {b: i for i, b in enumerate(graph.blocks)}
         port_of = {b.id: k for k, b in enumerate(graph.of_kind("Input"))}
+        position = inference.position
         inside = bool(path)
         for bid in inference.order:
             blk, r = graph.blocks[bid], inference.results.get(bid)
-            sources = [self._source(env, w) for w in graph.in_wires[bid]]
+            wires = sorted(graph.in_wires[bid], key=lambda w: (w.dst_port, position.get(w.src, 0), w.src_port))
+            sources = [self._source(env, w) for w in wires]
             if inside and blk.kind == "Input":
                 env[bid] = [feeds[port_of[bid]] if port_of[bid] < len(feeds) else None]
             elif inside and blk.kind == "Output":
@@ -75,7 +77,7 @@ class _Opened:
                 env[bid] = current
             else:
                 step = path + (bid,)
-                known = [s for s in sources if s is not None]
+                known = [(s, w.dst_port) for s, w in zip(sources, wires) if s is not None]
                 self.add(step, key + (index[bid],), blk.kind, r.outs if r is not None else (), known)
                 env[bid] = [(step, p) for p in range(len(r.outs))] if r is not None else []
         if not inside:
