@@ -10,18 +10,22 @@ import argparse
 import json
 import sys
 
+from layerloom import fit_command
 from layerloom.core import units
-from layerloom.core.baseline import compare, snapshot_of_file
 from layerloom.core.design import DTYPES, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
-from layerloom.core.ledger import Ledger
-from layerloom.core.ledger_csv import ledger_csv, rf_text
-from layerloom.core.mends import mends_for
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
+from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
+from layerloom.measure import command as measure_command
+from layerloom.interchange import add_import_parser
+from layerloom import picture
 
-COMMANDS = ("check", "ledger", "export")
+# Each command imports what only it needs (the ledger brings numpy, the mends the whole pass of
+# a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
+
+COMMANDS = ("check", "ledger", "export", "import", "measure", "fit", "picture")
 
 
 class UsageError(Exception):
@@ -54,6 +58,8 @@ def _open(args) -> Design:
 
 
 def _finding_dict(design, f) -> dict:
+    from layerloom.core.mends import mends_for
+
     return {"code": f.code, "severity": f.severity, "block": f.block,
             "block_name": design.blocks[f.block].name if f.block in design.blocks else None,
             "path": list(f.path), "port": f.port, "message": f.message,
@@ -61,6 +67,8 @@ def _finding_dict(design, f) -> dict:
 
 
 def _check(args) -> int:
+    from layerloom.core.mends import mends_for
+
     design = _open(args)
     findings = design.findings()
     errors = sum(f.severity == ERROR for f in findings)
@@ -83,6 +91,10 @@ TARGET_COLUMNS = ("est. time", "bound")
 
 
 def _ledger(args) -> int:
+    from layerloom.core.baseline import compare
+    from layerloom.core.ledger import Ledger
+    from layerloom.core.ledger_csv import ledger_csv, rf_text
+
     design = _open(args)
     ledger = Ledger(design.analysis())
     baseline = _baseline(args, design)
@@ -100,6 +112,7 @@ def _ledger(args) -> int:
             "totals": {"weights": t.weights, "buffers": t.buffers, "macs": t.macs, "other_ops": t.other,
                        "weight_bytes": t.weight_bytes, "peak_live_bytes": t.peak_memory, "peak_at": peak_name,
                        "latency_s": t.latency},
+            "training": training_memory(ledger, args.optimizer, args.mixed_precision)._asdict(),
             "target": ledger.target.to_data() if ledger.target else None,
             "budget": design.budget,
             "baseline": None if baseline is None else {
@@ -132,6 +145,7 @@ def _ledger(args) -> int:
           f" · buffers {units.count(t.buffers)} · MACs {units.count(t.macs)} ({t.macs:,})")
     print(f"peak live activations {units.size(t.peak_memory)} at {peak_name} (batch {ledger.batch}, {ledger.dtype};"
           " first-order: execution in depth order, no in-place reuse)")
+    print(training_text(training_memory(ledger, args.optimizer, args.mixed_precision)) + " (first-order)")
     if timed:
         print(f"estimated latency {t.latency * 1e3:.3g} ms on {ledger.target.name} ({ledger.target.assumptions}). "
               f"{CAUTION}")
@@ -153,9 +167,24 @@ def _ledger(args) -> int:
 def _export(args) -> int:
     from pathlib import Path
 
-    from layerloom.export import ExportRefused, export, verify
+    from layerloom.export import ExportRefused, VerifyRefused, export, refuse_placeholders, verify
 
     design = _open(args)
+    if args.verify:
+        try:
+            refuse_placeholders(design)
+        except VerifyRefused as e:
+            raise UsageError(f"{args.file}: {e}") from None
+    if args.onnx:
+        from layerloom.interchange import export_onnx_command
+
+        if args.output is None:
+            return export_onnx_command(design, args)
+        written = export_onnx_command(design, args)
+        if written:
+            return written
+    elif args.output is None:
+        raise UsageError("export needs -o MODEL.py or --onnx MODEL.onnx")
     try:
         made = export(design, args.class_name)
     except ExportRefused as e:
@@ -181,6 +210,8 @@ def _export(args) -> int:
 
 def _baseline(args, design) -> dict | None:
     """The baseline to compare with: ``--baseline FILE`` (its current ledger), else the design's pinned one."""
+    from layerloom.core.baseline import snapshot_of_file
+
     if not getattr(args, "baseline", None):
         return design.baseline
     return snapshot_of_file(args.baseline, design.target)
@@ -205,16 +236,26 @@ def _parser() -> argparse.ArgumentParser:
     led.add_argument("--batch", type=int, help="batch size N (default: the design's)")
     led.add_argument("--target", metavar="NAME", help="estimate latency on a target preset: "
                      + "; ".join(f"'{t.name}'" for t in PRESETS))
+    led.add_argument("--optimizer", choices=tuple(OPTIMIZERS), default="sgd_momentum",
+                     help="optimizer for the training-memory line (state: sgd none, sgd_momentum 1 copy, adam 2)")
+    led.add_argument("--mixed-precision", action="store_true", help="training memory with fp16 activations and "
+                     "fp32 master weights, gradients and optimizer state")
     led.add_argument("--baseline", metavar="OTHER.loom", help="compare totals with another design "
                      "(default: the baseline pinned in FILE, if any)")
     led.set_defaults(run=_ledger)
     ex = sub.add_parser("export", help="write the design as a PyTorch nn.Module; refuses a design with errors")
     ex.add_argument("file", help="a .loom design")
-    ex.add_argument("-o", "--output", required=True, metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("-o", "--output", metavar="MODEL.py", help="the Python file to write")
+    ex.add_argument("--onnx", metavar="MODEL.onnx", help="write an ONNX file (through the PyTorch module); with "
+                    "--verify, run it in onnxruntime and compare with torch and the ledger")
     ex.add_argument("--class-name", metavar="NAME", help="name of the design's class (default: from the design name)")
     ex.add_argument("--verify", action="store_true", help="build the module with torch, run it and compare every "
                     "block's shape, weights and MACs with the ledger; exit 1 on any disagreement")
     ex.set_defaults(run=_export)
+    measure_command.add_parser(sub)
+    fit_command.add_parser(sub)
+    add_import_parser(sub)
+    picture.register(sub)
     return p
 
 
@@ -231,7 +272,7 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return args.run(args)
-    except (LoomFileError, UsageError) as e:
+    except (LoomFileError, UsageError, picture.PictureError) as e:
         print(f"layerloom: {e}", file=sys.stderr)
         return 2
     except BrokenPipeError:

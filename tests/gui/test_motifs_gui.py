@@ -14,7 +14,7 @@ from layerloom import Design
 from layerloom.core import fileformat, units
 from layerloom.core.fileformat import dumps
 from layerloom.core.graph import Wire
-from layerloom.gui.canvas.block_item import H, W
+from layerloom.gui.canvas.block_item import H, W, BlockItem
 from test_canvas import SHOTS, at, drag
 from test_flows import shoot
 from test_window_files import SAMPLES, open_window, press
@@ -62,8 +62,10 @@ def inside_new_motif(qtbot, tmp_path, names):
     return window, prompts, ids, unit
 
 
-def card_point(window, block_id, x=W / 2, y=H - 12):
+def card_point(window, block_id, x=W / 2, y=H - 8):  # below the chips of a folded card
     item = window.canvas.canvas_scene.blocks[block_id]
+    if not isinstance(item, BlockItem):  # a chip of a folded card: its middle
+        return at(window.canvas, item.mapToScene(item.shape().boundingRect().center()))
     return at(window.canvas, item.mapToScene(QPointF(x, y)))
 
 
@@ -139,8 +141,8 @@ def test_make_open_edit_back_expand_and_undo_each_step(qtbot, tmp_path):
     type_into(qtbot, window.block_settings.fields["out_channels"].widget, "48")
     assert d.motifs["widen_unit"].blocks[ids["widen"]].settings["out_channels"] == 48
     assert scene.blocks[ids["widen"]].state.shape == "48×32×32"
-    assert Wire(ids["widen"], 0, ids["norm"], 0) in scene.wires and scene.wires[
-        Wire(ids["widen"], 0, ids["norm"], 0)].label == "48×32×32"
+    assert Wire(ids["act"], 0, ids["narrow"], 0) in scene.wires and scene.wires[
+        Wire(ids["act"], 0, ids["narrow"], 0)].label == "48×32×32"  # norm and act are chips of widen
     wider = 48 * 32 * 32 * 16 * 9 + 16 * 32 * 32 * 48
     assert d.ledger().totals.macs == 2 * wider
     assert "one use" in window.block_settings.facts.text()

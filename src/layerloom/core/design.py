@@ -110,6 +110,7 @@ class Design(Graph):
         self.budget: dict = {}  # limits, see layerloom.core.budget
         self.target = None  # a layerloom.core.targets.Target for latency estimates, or None
         self.baseline: dict | None = None  # a pinned ledger, see layerloom.core.baseline
+        self.measurement = None  # the last layerloom.core.measurement.Measurement, or None
         self._listeners: list[Callable[[Change], None]] = []
         self._pending: Change | None = None
         self._analysis = None
@@ -153,7 +154,11 @@ class Design(Graph):
 
     def set_field(self, name: str, value: Any) -> None:
         """Change a design-wide field (``batch``, ``dtype``, ``name``, ``notes``, ``budget``,
-        ``target``, ``baseline``) as one edit."""
+        ``target``, ``baseline``, ``measurement``) as one edit."""
+        self.apply(self.field_edit(name, value))
+
+    def field_edit(self, name: str, value: Any) -> edits.Edit:
+        """The edit that sets a design-wide field, checked first (:class:`EditError` naming the value)."""
         if name == "budget":
             from layerloom.core.budget import check_budget
 
@@ -161,13 +166,15 @@ class Design(Graph):
                 value = check_budget(value)
             except ValueError as e:
                 raise edits.EditError(str(e)) from None
-        if name not in ("name", "batch", "dtype", "notes", "budget", "target", "baseline"):
+        if name not in ("name", "batch", "dtype", "notes", "budget", "target", "baseline", "measurement"):
             raise edits.EditError(f"a design has no field {name!r}")
         if name == "dtype" and value not in DTYPES:
             raise edits.EditError(f"element type {value!r} is not one of {', '.join(DTYPES)}")
         if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or value < 1):
             raise edits.EditError(f"batch size must be a whole number ≥ 1, not {value!r}")
-        self.apply(edits.Edit(f"Set {name}", (edits.SetField(name, value),)))
+        if name == "name" and (not isinstance(value, str) or not value.strip()):
+            raise edits.EditError("a design needs a name")
+        return edits.Edit(f"Set {name}", (edits.SetField(name, value),))
 
     # ----- changes
     def apply(self, edit: edits.Edit) -> edits.Edit:
@@ -185,6 +192,18 @@ class Design(Graph):
             change.note(op)
         self._emit(change)
         return edits.Edit(edit.label, tuple(reversed(done)))
+
+    def fill(self, graph: str, blocks, wires) -> None:
+        """Add checked blocks and then wires to the graph ``graph`` at once, as reading a file does:
+        no inverse is kept (a load is not undone), and subscribers hear of one change."""
+        g = self.graph(graph)
+        ids = set()
+        for b in blocks:
+            g._insert_block(b)
+            ids.add(b.id)
+        for w in wires:
+            g._insert_wire(w)
+        self._emit(Change(dirty={graph: ids}, topology={graph}))
 
     def subscribe(self, listener: Callable[[Change], None]) -> Callable[[], None]:
         """Call ``listener(change)`` after each edit or batch; returns a function that unsubscribes."""

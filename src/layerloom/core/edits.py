@@ -229,21 +229,86 @@ def remove_blocks(g: Graph, block_ids) -> Edit:
     return Edit("Delete" if len(ids) != 1 else f"Delete {g.blocks[ids[0]].name}", tuple(ops))
 
 
-def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str = "") -> Edit:
+def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str = "", *,
+                   position=None, name: str | None = None) -> Edit:
     """An edit that puts a chain of new one-in, one-out blocks (``(kind, settings)`` each) in the
-    middle of ``wire``."""
+    middle of ``wire``; a single block may be given its ``position`` and ``name``. Refused with
+    :class:`EditError` when a kind does not take exactly one input and give one output."""
     g = design.graph(graph)
+    if wire not in g.wires:
+        raise EditError(f"there is no such wire: {wire}")
     (ax, ay), (bx, by) = g.blocks[wire.src].position, g.blocks[wire.dst].position
     ops: list = [RemoveWire(graph, wire)]
     src, n = (wire.src, wire.src_port), len(steps)
     names = {b.name for b in g.blocks.values()}
     for i, (kind, settings) in enumerate(steps, 1):
+        ins, outs = port_counts(design, Block("", kind, "", check_settings(design, kind, settings, graph), (0, 0)))
+        if (ins, outs) != (1, 1):
+            raise EditError(f"only a block with one input and one output can go on a wire; "
+                            f"{kind} has {ins} inputs and {outs} outputs")
         f = i / (n + 1)
-        name = g.fresh_name(kind_stem(kind), names)
-        names.add(name)
-        edit, bid = add_block(design, kind, settings, graph=graph, inputs=[src], name=name,
-                              position=(ax + (bx - ax) * f, ay + (by - ay) * f + 90.0))
+        here = position if n == 1 and position is not None else (ax + (bx - ax) * f, ay + (by - ay) * f + 90.0)
+        block_name = name if n == 1 and name is not None else g.fresh_name(kind_stem(kind), names)
+        names.add(block_name)
+        edit, bid = add_block(design, kind, settings, graph=graph, inputs=[src], name=block_name, position=here)
         ops += edit.ops
         src = (bid, 0)
     ops.append(AddWire(graph, Wire(src[0], 0, wire.dst, wire.dst_port)))
     return Edit("Insert " + " and ".join(k for k, _ in steps), tuple(ops))
+
+
+def added_blocks(edit: Edit) -> list[str]:
+    """Ids of the blocks an edit adds, in order."""
+    return [op.id for op in edit.ops if isinstance(op, AddBlock)]
+
+
+def port_counts(design, block: Block) -> tuple[int, int]:
+    """Input and output port counts of ``block`` (a motif instance takes its motif's ports)."""
+    if block.kind == "Motif":
+        motif = design.motifs.get(block.settings.get("motif"))
+        if motif is None:
+            return 1, 1
+        ins, outs = motif.ports()
+        return len(ins), len(outs)
+    kind = KINDS.get(block.kind)
+    if kind is None:
+        return 1, 1
+    return kind.input_count(block.settings), kind.output_count(block.settings)
+
+
+def remove_bridging(design, block_ids, graph: str = "") -> Edit:
+    """An edit that removes blocks and mends the gap: a consumer of a removed one-in, one-out block
+    (or of a run of them) is wired from what fed that run. Where a removed block has other wiring
+    (a join, a second output, no input) its consumers are left unwired, as :func:`remove_blocks`."""
+    g = design.graph(graph)
+    ids = list(dict.fromkeys(block_ids))
+    gone = set(ids)
+
+    def feed(bid: str, seen: set) -> tuple[str, int] | None:
+        """The outside output reaching ``bid`` through removed pass-through blocks, if any."""
+        ins = g.in_wires[bid]
+        if bid in seen or port_counts(design, g.blocks[bid]) != (1, 1) or len(ins) != 1:
+            return None
+        w = ins[0]
+        if w.src not in gone:
+            return (w.src, w.src_port)
+        return feed(w.src, seen | {bid})
+
+    bridges: dict[Wire, None] = {}
+    for bid in ids:
+        for w in g.out_wires[bid]:
+            if w.dst not in gone and (source := feed(bid, set())) is not None:
+                bridges[Wire(source[0], source[1], w.dst, w.dst_port)] = None
+    edit = remove_blocks(g, ids)
+    if not bridges:
+        return edit
+    return Edit(edit.label + ", bridged", edit.ops + tuple(AddWire(g.key, w) for w in bridges))
+
+
+def replace_wire(g: Graph, wire: Wire) -> Edit:
+    """An edit that wires ``wire`` into its input port, taking away the wire that held the port."""
+    add = connect(g, wire)
+    old = [w for w in g.in_wires[wire.dst] if w.dst_port == wire.dst_port]
+    if not old:
+        return add
+    return Edit(f"Rewire {g.blocks[wire.dst].name}", tuple(RemoveWire(g.key, w) for w in old) + add.ops)

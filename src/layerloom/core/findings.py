@@ -38,6 +38,8 @@ CODES: dict[str, str] = {
     "motif.repeat_shape": "a repeated motif changes the shape, so its copies cannot be stacked",
     "motif.ports": "an instance's ports do not match its motif",
     "motif.param": "a motif parameter is unknown or its value does not fit the setting it feeds",
+    "import.unmapped": "an imported operation no kind describes; it carries its traced shape and costs",
+    "import.unmapped_input": "an unmapped operation receives another shape than it was traced with",
     "budget.weights": "the weights pass the design's budget",
     "budget.macs": "the MACs pass the design's budget",
     "budget.memory": "the peak live activation memory passes the design's budget",

@@ -131,8 +131,8 @@ class GraphInference:
 
     # ----- order, cycles, dead ends
     def reorder(self) -> None:
-        """Depth order and levels (Kahn's algorithm, levels bucketed in insertion order: graphlib's
-        sorter is several times slower at thousands of blocks), loops named, and the
+        """Depth order and levels (Kahn's algorithm for the levels, then a stable sort by level:
+        graphlib's sorter is several times slower at thousands of blocks), loops named, and the
         graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks, out_wires = g.blocks, g.out_wires
@@ -149,16 +149,12 @@ class GraphInference:
                 if indeg[d] == 0:
                     queue.append(d)
         top = max(level.values(), default=-1) + 1
-        columns: list[list[str]] = [[] for _ in range(top + 1)]  # the last holds blocks on or after a loop
-        for b in blocks:  # insertion order within each level
-            columns[level[b] if indeg[b] == 0 else top].append(b)
-        found: list[Finding] = []
-        self.stuck = set(columns[top])
-        if columns[top]:
-            found += self._cycles(columns[top])
-            for b in columns[top]:
-                level[b] = top
-        order = [b for column in columns for b in column]
+        stuck = [b for b in blocks if indeg[b]]  # on a loop or after one: they go last
+        for b in stuck:
+            level[b] = top
+        self.stuck = set(stuck)
+        found: list[Finding] = self._cycles(stuck) if stuck else []
+        order = sorted(blocks, key=level.__getitem__)  # a stable sort: insertion order within a level
         self.order = order
         self.plan = None
         self.level = level
@@ -500,7 +496,7 @@ class Analysis:
         self._dirty: set[str] = set()
         self._topology = True
         self._stale = True
-        self._profile = None  # live elements per step (numpy), made on demand
+        self._profile = None  # live elements per step, made on demand
         self._budget: tuple = (None, [])
         self.revision = 0  # counts refreshes that may have changed results
         design.subscribe(self._on_change)
@@ -542,8 +538,8 @@ class Analysis:
             outs = tuple(inner.results[b].outs[0] if inner.results.get(b) else None for b in out_ids)
             fields = tuple((r.rf, r.jump) if r is not None else (ONE, ONE)
                            for r in (inner.results.get(b) for b in out_ids))
-            kept = int(live_profile(motif, inner.order, inner.results, inputs_outside=True).max(initial=0))
-            freed = int(live_profile(motif, inner.order, inner.results).max(initial=0))
+            kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
+            freed = max(live_profile(motif, inner.order, inner.results), default=0)
             ends = sum(o.elements for o in outs if o is not None)
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
@@ -599,8 +595,8 @@ class Analysis:
         return self._budget[1]
 
     def live_profile(self):
-        """Live activation elements per sample at each step of :attr:`order` (for a motif use, the
-        largest over the blocks it runs: see :mod:`layerloom.core.schedule`)."""
+        """Live activation elements per sample at each step of :attr:`order`, a list (for a motif
+        use, the largest over the blocks it runs: see :mod:`layerloom.core.schedule`)."""
         top = self.refresh().top
         if self._profile is None:
             self._profile = opened_profile(self.design, top)

@@ -10,13 +10,12 @@ with them; in a repeated use, every copy after the first reads a tensor made ins
 which counts while that copy runs. Counts are elements per sample; the ledger multiplies by batch size and bytes.
 
 When each tensor dies depends only on the wiring, so it is worked out once per order
-(:class:`Plan`); a settings edit only recomputes the sizes, with numpy.
+(:class:`Plan`); a settings edit only adds up the sizes again (plain lists: at a few thousand
+blocks one loop beats building numpy arrays from Python values).
 """
 from __future__ import annotations
 
 from math import prod
-
-import numpy as np
 
 from layerloom.core.kinds import KINDS
 
@@ -57,24 +56,31 @@ class Plan:
                     death[o], read[o] = n, True
                 elif not read[o] or death[o] < i:
                     death[o], read[o] = i, True
-        last = [all((o := owner.get(w.src)) is not None and death[o] == i for w in in_wires[bid])
-                for i, bid in enumerate(order)]
-        self.allocates = np.array(allocates, dtype=bool)
-        self.death = np.array(death, dtype=np.int64)
-        self.last_reader = np.array(last, dtype=bool)
+        last = [True] * n
+        for i, bid in enumerate(order):
+            for w in in_wires[bid]:
+                o = owner.get(w.src)
+                if o is None or death[o] != i:
+                    last[i] = False
+                    break
+        self.allocates, self.death, self.last_reader = allocates, death, last
 
 
-def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> np.ndarray:
+def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
     """Live elements per sample at each step of ``order`` (after allocation, before freeing)."""
     plan = plan or Plan(graph, order, inputs_outside)
-    n = len(order)
-    if not n:
-        return np.zeros(0, dtype=np.int64)
-    rs = [results.get(b) for b in order]
-    sizes = np.array([sum(map(prod, r.outs)) if r is not None else 0 for r in rs], dtype=np.int64)
-    sizes[~plan.allocates] = 0
-    freed = np.bincount(np.minimum(plan.death, n), weights=sizes, minlength=n + 1)[:n].astype(np.int64)
-    live = np.cumsum(sizes) - np.concatenate(([0], np.cumsum(freed)[:-1]))
-    extra = np.array([(r.extra_freed if last else r.extra) if r is not None else 0
-                      for r, last in zip(rs, plan.last_reader)], dtype=np.int64)
-    return live + extra
+    allocates, death, last_reader = plan.allocates, plan.death, plan.last_reader
+    freed = [0] * (len(order) + 1)  # elements freed after each step
+    live, total = [], 0
+    for i, bid in enumerate(order):
+        r = results.get(bid)
+        if r is None:
+            live.append(total)
+        else:
+            if allocates[i]:
+                size = sum(map(prod, r.outs))
+                total += size
+                freed[death[i]] += size
+            live.append(total + (r.extra_freed if last_reader[i] else r.extra))
+        total -= freed[i]
+    return live

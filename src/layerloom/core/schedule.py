@@ -15,8 +15,6 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-import numpy as np
-
 from layerloom.core.graph import Wire
 from layerloom.core.liveness import Plan, live_profile
 
@@ -90,7 +88,7 @@ class _Opened:
         return outs[w.src_port] if outs is not None and w.src_port < len(outs) else None
 
 
-def opened_profile(design, top) -> np.ndarray | None:
+def opened_profile(design, top) -> list[int] | None:
     """Live elements per sample for each block of ``top.order`` (the largest over the steps it
     runs), or None when the design uses no motif or its uses run more than STEP_LIMIT blocks."""
     uses = [top.results.get(b) for b in top.order if design.blocks[b].kind == "Motif"]
@@ -102,11 +100,11 @@ def opened_profile(design, top) -> np.ndarray | None:
     order = sorted(net.blocks, key=lambda s: (net.level[s], net.key[s]))
     live = live_profile(net, order, net.results, plan=Plan(net, order))
     per_block = dict.fromkeys(top.order, None)
-    for step, value in zip(order, live.tolist()):
+    for step, value in zip(order, live):
         mine = per_block[step[0]]
         per_block[step[0]] = value if mine is None else max(mine, value)
     out, last = [], 0
     for value in per_block.values():  # a use that runs no block shows the total before it
         last = value if value is not None else last
         out.append(last)
-    return np.array(out, dtype=np.int64)
+    return out

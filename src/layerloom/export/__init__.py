@@ -10,6 +10,8 @@ True
 :func:`verify` needs torch (imported only when it is called); nothing here imports Qt.
 """
 from layerloom.export.pytorch_source import Export, ExportRefused, export, module_source
-from layerloom.export.verify import BlockCheck, VerifyReport, load_module, verify
+from layerloom.export.verify import (BlockCheck, VerifyRefused, VerifyReport, load_module, refuse_placeholders,
+                                     verify)
 
-__all__ = ["BlockCheck", "Export", "ExportRefused", "VerifyReport", "export", "load_module", "module_source", "verify"]
+__all__ = ["BlockCheck", "Export", "ExportRefused", "VerifyRefused", "VerifyReport", "export", "load_module",
+           "module_source", "refuse_placeholders", "verify"]

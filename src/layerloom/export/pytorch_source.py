@@ -92,7 +92,9 @@ def export(design, class_name: str | None = None, date: datetime.date | str | No
     unscriptable = tuple(sorted(k for k in used if not KINDS[k].scriptable))
     header = _header(design, analysis, top, unscriptable, date, writer)
     preamble = f'{header}\n\nimport torch\nfrom torch import nn\n\n__all__ = ["{writer.class_name}"]\n'
-    return Export("\n\n".join([preamble, *writer.classes]), writer.class_name, top.outputs, top.modules, unscriptable)
+    helpers = list(dict.fromkeys(KINDS[k].torch_helper for k in sorted(used) if KINDS[k].torch_helper))
+    return Export("\n\n".join([preamble, *helpers, *writer.classes]), writer.class_name, top.outputs, top.modules,
+                  unscriptable)
 
 
 def _header(design, analysis, top: "_Written", unscriptable, date, writer: "_Writer") -> str:
@@ -107,6 +109,12 @@ def _header(design, analysis, top: "_Written", unscriptable, date, writer: "_Wri
              f"Totals: {totals.weights:,} weights (learned parameters) and {totals.macs // batch:,} MACs per sample",
              "(multiply-accumulates of convolutions and linear layers).",
              script, f"Exported on {when}."]
+    placeholders = sorted({b.name for g in (design, *writer.used_motifs()) for b in g.blocks.values()
+                           if not KINDS[b.kind].verifiable})
+    if placeholders:
+        lines += ["", *textwrap.wrap(f"TO FILL IN: {', '.join(map(plain_text, placeholders))} are operations import "
+                                     "could not map; each is an UnmappedOperation whose forward raises until you "
+                                     "write it.", WRAP)]
     if writer.shared:
         lines += ["", *textwrap.wrap(MOTIF_NOTE, WRAP)]
     if writer.per_shape:

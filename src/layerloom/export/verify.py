@@ -21,6 +21,7 @@ import types
 from dataclasses import dataclass
 from pathlib import Path
 
+from layerloom.core.kinds import KINDS
 from layerloom.core.ledger import Ledger
 from layerloom.core.units import count
 
@@ -105,11 +106,33 @@ def load_module(source: str | os.PathLike) -> types.ModuleType:
     return module
 
 
+class VerifyRefused(ValueError):
+    """The design holds placeholders (unmapped operations) that cannot run, so there is nothing to verify."""
+
+
+def placeholders(design) -> list[str]:
+    """Names of the blocks (in the design and its motifs) whose export is a placeholder to fill in."""
+    return [b.name for g in (design, *design.motifs.values()) for b in g.blocks.values()
+            if not KINDS[b.kind].verifiable]
+
+
+def refuse_placeholders(design) -> None:
+    """Raise :class:`VerifyRefused` naming the placeholders, if the design has any."""
+    names = placeholders(design)
+    if names:
+        listed = ", ".join(names[:5]) + (f" and {len(names) - 5} more" if len(names) > 5 else "")
+        raise VerifyRefused(f"cannot verify: {len(names)} block{'s are' if len(names) != 1 else ' is'} an unmapped "
+                            f"operation ({listed}) exported as a placeholder; fill it in or replace it with blocks, "
+                            "or export without --verify")
+
+
 def verify(design, source: str | os.PathLike) -> VerifyReport:
     """Build the exported module, run it once and compare every block with the ledger.
 
-    ``source`` is the exported text, or the path of the written file. Needs torch.
+    ``source`` is the exported text, or the path of the written file. Needs torch. Raises
+    :class:`VerifyRefused` for a design with unmapped operations (their export cannot run).
     """
+    refuse_placeholders(design)
     import torch
     from torch.utils.flop_counter import FlopCounterMode
 

@@ -3,9 +3,14 @@
 Each setting of the block's kind gets a typed field (a text field for numbers, pairs and
 padding, a check box for on/off, a list for choices). An accepted change is one undoable edit
 (:func:`layerloom.core.edits.set_settings` through :meth:`Document.apply`); a refused one shows the
-reason under its field and the field goes back to the value the block keeps. Fields are set from
-the model with their signals blocked, so nothing echoes back. Below the fields: in-channels and
-shapes from the wires (read-only) and the block's weights and MACs (for the whole batch).
+reason on the message line reserved below the fields (so no field moves), outlines the field and
+repeats the reason in its hover text; the field goes back to the value the block keeps. Fields are
+set from the model with their signals blocked, so nothing echoes back. Below the fields: in-channels
+and shapes from the wires (read-only) and the block's weights and MACs (for the whole batch).
+
+Enter in a field commits it and Escape restores it; both hand the keys back to the canvas
+(``finished``). With nothing selected the panel shows the design's own settings
+(:mod:`layerloom.gui.design_settings`).
 
 Inside an open motif the panel edits the motif's blocks (a change applies to every use; shapes and
 costs are those of the use the canvas shows). Each whole-number setting there has a **param…**
@@ -17,7 +22,7 @@ from __future__ import annotations
 import re
 from collections import Counter
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import QEvent, Qt, QTimer, Signal
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QFormLayout, QFrame, QHBoxLayout, QLabel, QLineEdit,
                                QScrollArea, QToolButton, QVBoxLayout, QWidget)
 
@@ -25,6 +30,7 @@ from layerloom.core import edits, motif_ops, units
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import Setting, SettingError
 from layerloom.gui import theme
+from layerloom.gui.design_settings import DesignSettings
 from layerloom.gui.document import Document
 from layerloom.gui.files import Prompts
 
@@ -70,10 +76,10 @@ def value_text(value) -> str:
 
 
 class Field:
-    """One setting's widget (with a **param…** button when ``expose`` is given) and the inline
-    message under it. ``host`` is what goes into the form."""
+    """One setting's widget (with a **param…** button when ``expose`` is given); ``message`` is the
+    panel's message line, shared by every field. ``host`` is what goes into the form."""
 
-    def __init__(self, setting: Setting, commit, expose=None):
+    def __init__(self, setting: Setting, commit, message: QLabel, expose=None):
         self.setting = setting
         self.params: set[str] = set()  # parameter names of the open motif, read as references when typed
         t = setting.type
@@ -101,10 +107,7 @@ class Field:
             row.setSpacing(4)
             row.addWidget(self.widget, 1)
             row.addWidget(self.expose_button)
-        self.message = QLabel()
-        self.message.setObjectName("field_message")
-        self.message.setWordWrap(True)
-        self.message.hide()
+        self.message = message
 
     def typed(self):
         """The line edit's text as a value: a parameter reference if it names one, else a number or pair."""
@@ -139,12 +142,19 @@ class Field:
         w.blockSignals(False)
 
     def say(self, text: str) -> None:
+        """Say why a value was refused (or, with "", that all is well): on the message line, in the
+        field's hover text and as an outline around the field."""
         self.message.setText(text)
-        self.message.setVisible(bool(text))
+        self.widget.setProperty("refused", bool(text))
+        self.widget.setToolTip(text or self.setting.help)
+        self.widget.style().polish(self.widget)
 
 
 class BlockSettings(QWidget):
-    """The Block settings panel, following ``document.selection``."""
+    """The Block settings panel, following ``document.selection``. ``finished`` fires when Enter or
+    Escape in a field hands the keys back."""
+
+    finished = Signal()
 
     def __init__(self, document: Document, parent=None):
         super().__init__(parent)
@@ -160,10 +170,16 @@ class BlockSettings(QWidget):
         self.name_edit = QLineEdit()
         self.name_edit.setObjectName("block_name")
         self.name_edit.editingFinished.connect(self._commit_name)
-        self.name_message = QLabel()
-        self.name_message.setObjectName("field_message")
-        self.name_message.setWordWrap(True)
-        self.name_message.hide()
+        self.name_edit.installEventFilter(self)
+        self.message = QLabel()  # one line kept for refusals, so no field moves when one is said
+        self.message.setObjectName("field_message")
+        self.message.setWordWrap(True)
+        self.message.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
+        self.message.setFixedHeight(2 * self.message.fontMetrics().lineSpacing() + 4)
+        self.name_message = self.message
+        self.design_settings = DesignSettings(document)
+        self.design_settings.said.connect(self.message.setText)
+        self.design_settings.finished.connect(self.finished)
 
         self.form_host = QWidget()
         self.form = QFormLayout(self.form_host)
@@ -180,8 +196,9 @@ class BlockSettings(QWidget):
         col = QVBoxLayout(body)
         col.addWidget(self.heading)
         col.addWidget(self.name_edit)
-        col.addWidget(self.name_message)
         col.addWidget(self.form_host)
+        col.addWidget(self.design_settings)
+        col.addWidget(self.message)
         rule = QFrame()
         rule.setFrameShape(QFrame.Shape.HLine)
         rule.setObjectName("rule")
@@ -223,9 +240,15 @@ class BlockSettings(QWidget):
         editing = self.block_id is not None and self.block_id in graph.blocks
         for w in (self.name_edit, self.form_host):
             w.setVisible(editing)
+        design_shown = not editing and not self.document.selection and not graph.key
+        self.design_settings.setVisible(design_shown)
+        if design_shown:
+            self.design_settings.refresh()
         if not editing:
             self._clear_fields()
-            self.name_message.hide()
+            if self._kind_shown is not None or not design_shown:
+                self.message.setText("")
+            self._kind_shown = None
             self._show_summary(self.document.selection)
             return
         b = graph.blocks[self.block_id]
@@ -239,6 +262,7 @@ class BlockSettings(QWidget):
         if shape_key != self._kind_shown:
             self._build_fields(specs)
             self._kind_shown = shape_key
+            self.message.setText("")
         params = set(self.document.design.motifs[graph.key].params) if graph.key else set()
         for key, field in self.fields.items():
             if field.expose_button is not None:
@@ -266,13 +290,12 @@ class BlockSettings(QWidget):
         self._clear_fields()
         inside = bool(self.document.graph_key)
         for spec in specs:
-            field = Field(spec, self._commit, self._expose if inside and spec.type in WHOLE_NUMBER_TYPES else None)
+            field = Field(spec, self._commit, self.message,
+                          self._expose if inside and spec.type in WHOLE_NUMBER_TYPES else None)
             self.fields[spec.key] = field
-            if spec.type == "bool":
-                self.form.addRow("", field.host)
-            else:
-                self.form.addRow(spec.label, field.host)
-            self.form.addRow("", field.message)
+            field.widget.installEventFilter(self)
+            self.form.addRow("" if spec.type == "bool" else spec.label, field.host)
+            field.host.show()  # at once, not on the next pass of the event loop: Enter may focus it now
 
     def _clear_fields(self) -> None:
         # deleteLater: a field may be rebuilt from inside its own signal (choosing another motif)
@@ -311,7 +334,7 @@ class BlockSettings(QWidget):
             if graph.key:
                 self._show_motif(graph)
                 return
-            self.heading.setText("Block settings")
+            self.heading.setText("Design")
             self.facts.setText(_muted("Select a block on the canvas to see and change its settings."))
             return
         self.heading.setText(f"{len(ids)} blocks selected")
@@ -353,8 +376,8 @@ class BlockSettings(QWidget):
                 return
             doc.apply(edit)
         except (SettingError, edits.EditError) as e:
-            field.say(f"{e} — kept {_value_or_param(old)}")
             field.show_value(old)
+            field.say(f"{e} — kept {_value_or_param(old)}")
             return
         field.say("")
 
@@ -391,13 +414,33 @@ class BlockSettings(QWidget):
         clash = next((b for b in design.blocks.values() if b.name == name and b.id != bid), None)
         if not name or clash is not None:
             why = "a block needs a name" if not name else f"the name {name!r} is already used by another block"
-            self.name_message.setText(f"{why} — kept {block.name}")
-            self.name_message.show()
+            self.message.setText(f"{why} — kept {block.name}")
             self.name_edit.setText(block.name)
             return
-        self.name_message.hide()
+        self.message.setText("")
         if name != block.name:
             self.document.apply(edits.rename(design, bid, name))
+
+
+    # ----- keys
+    def focus_first(self) -> None:
+        """Put the keys in the first setting of the selection (its name when it has none), text selected."""
+        first = next((f.widget for f in self.fields.values() if isinstance(f.widget, QLineEdit)), None)
+        target = first if first is not None else self.name_edit
+        if self.design_settings.isVisible():
+            target = self.design_settings.name_edit
+        target.setFocus(Qt.FocusReason.TabFocusReason)
+        target.selectAll()
+
+    def eventFilter(self, obj, event) -> bool:
+        """Enter commits a field (its own editing-finished does that) and Escape shows the block's
+        value again; both hand the keys back once the key press is done."""
+        if event.type() == QEvent.Type.KeyPress and event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter,
+                                                                    Qt.Key.Key_Escape):
+            if event.key() == Qt.Key.Key_Escape:
+                self.refresh()
+            QTimer.singleShot(0, self.finished.emit)
+        return super().eventFilter(obj, event)
 
 
 def _shape(results: dict, block_id: str, port: int):

@@ -4,7 +4,9 @@ x counts blocks as executed in the core's depth order (a motif use spans the blo
 network draws the same whether or not it is grouped; hover names the block); y is the metric, as a
 cumulative curve (activation memory: live bytes at each step and their running peak) or as
 per-block bars. The design's budget is drawn as a line and the block where the curve passes it
-is marked; a pinned baseline is overlaid dashed, with a table of totals and their change.
+is marked; a pinned baseline is overlaid dashed, with a table of totals and their change. With
+latency, the design's last measurement (Design ▸ Measure on this machine) is drawn beside the
+estimate; training memory (:mod:`layerloom.core.training_memory`) is charted for a chosen optimizer.
 Curves are created once and refreshed with ``setData`` on each edit.
 """
 from __future__ import annotations
@@ -15,8 +17,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor
-from PySide6.QtWidgets import (QComboBox, QFileDialog, QHBoxLayout, QHeaderView, QLabel, QMenu, QMessageBox,
-                               QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QFileDialog, QHBoxLayout, QHeaderView, QLabel, QMenu, QMessageBox,
+                               QSizePolicy, QTableWidget, QTableWidgetItem, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core import units
 from layerloom.core.baseline import compare, snapshot, snapshot_of_file
@@ -25,6 +27,7 @@ from layerloom.core.fileformat import LoomFileError
 from layerloom.core.ledger import Ledger
 from layerloom.core.ledger_csv import ledger_csv
 from layerloom.core.targets import CAUTION
+from layerloom.core.training_memory import training_curve, training_memory, training_text
 from layerloom.gui import theme
 
 METRICS = (  # key, menu label, axis unit formatter, budget key, baseline column
@@ -32,7 +35,10 @@ METRICS = (  # key, menu label, axis unit formatter, budget key, baseline column
     ("macs", "MACs", units.count, "macs", "macs"),
     ("memory", "Activation memory", units.size, "memory", "live"),
     ("latency", "Estimated latency", lambda s: f"{s * 1e3:.3g} ms", "latency_ms", "latency"),
+    ("training", "Training memory", units.size, None, None),
 )
+OPTIMIZER_LABELS = {"sgd_momentum": "SGD with momentum", "adam": "Adam", "sgd": "plain SGD"}  # keys: OPTIMIZERS
+MEASURED_PEN = pg.mkPen(theme.TEXT, width=1.5, style=Qt.PenStyle.DashDotDotLine)
 BASE_PEN = pg.mkPen(theme.TEXT_MUTED, width=1.5, style=Qt.PenStyle.DashLine)
 NOW_PEN = pg.mkPen(theme.ACCENT, width=2)
 PEAK_PEN = pg.mkPen(theme.ACCENT, width=1, style=Qt.PenStyle.DotLine)
@@ -87,9 +93,16 @@ class DepthLedger(QWidget):
         menu.addAction("Export chart as PNG…", self.export_png)
         menu.addAction("Export ledger as CSV…", self.export_csv)
         more.setMenu(menu)
+        self.optimizer_box = QComboBox()
+        for key, label in OPTIMIZER_LABELS.items():
+            self.optimizer_box.addItem(label, key)
+        self.mixed_box = QCheckBox("mixed precision")
+        self.mixed_box.setToolTip("fp16 activations, fp32 master weights, gradients and optimizer state")
         top = QHBoxLayout()
         top.addWidget(self.metric_box)
         top.addWidget(self.view_box)
+        top.addWidget(self.optimizer_box)
+        top.addWidget(self.mixed_box)
         top.addStretch(1)
         top.addWidget(more)
 
@@ -103,7 +116,8 @@ class DepthLedger(QWidget):
         self.base_curve = self.plot.plot(pen=BASE_PEN, name="baseline")
         self.peak_curve = self.plot.plot(pen=PEAK_PEN)
         self.curve = self.plot.plot(pen=NOW_PEN, name="now")
-        for c in (self.base_curve, self.peak_curve, self.curve):
+        self.measured_curve = self.plot.plot(pen=MEASURED_PEN, name="measured")
+        for c in (self.base_curve, self.peak_curve, self.curve, self.measured_curve):
             c.setClipToView(True)
             c.setDownsampling(auto=True, method="peak")
         self.bars = pg.BarGraphItem(x=[], height=[], width=0.8, brush=theme.COST_BAR, pen=None)
@@ -127,8 +141,10 @@ class DepthLedger(QWidget):
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         self.table.setMaximumHeight(132)
-        self.key = QLabel()
+        self.key = QLabel()  # wraps, and never asks for more width: the right column keeps its size
         self.key.setObjectName("chart_key")
+        self.key.setWordWrap(True)
+        self.key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.caution = QLabel(CAUTION)
         self.caution.setWordWrap(True)
         self.caution.setObjectName("caution")
@@ -143,6 +159,8 @@ class DepthLedger(QWidget):
 
         self.metric_box.currentIndexChanged.connect(self.redraw)
         self.view_box.currentIndexChanged.connect(self.redraw)
+        self.optimizer_box.currentIndexChanged.connect(self.redraw)
+        self.mixed_box.toggled.connect(self.redraw)
         self.plot.scene().sigMouseMoved.connect(self._hovered)
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         document.changed.connect(self._changed)
@@ -153,7 +171,7 @@ class DepthLedger(QWidget):
 
     # ----- model → chart
     def _changed(self, change) -> None:
-        if change.reinfers or "baseline" in change.fields:
+        if change.reinfers or change.fields & {"baseline", "measurement"} or change.renamed:
             if not self._pending:  # one refresh per event-loop pass, however many edits arrive
                 self._pending = True
                 QTimer.singleShot(0, self.refresh)
@@ -164,6 +182,14 @@ class DepthLedger(QWidget):
         self.ledger = Ledger(self.document.design.analysis())
         self.redraw()
 
+    def remember_choices(self, settings) -> None:
+        """Start with the metric and view last chosen (kept in ``settings``) and keep each new choice."""
+        for box, name in ((self.metric_box, "ledger/metric"), (self.view_box, "ledger/view")):
+            index = box.findText(str(settings.value(name, box.currentText())))
+            if index >= 0:
+                box.setCurrentIndex(index)
+            box.currentTextChanged.connect(lambda text, name=name: settings.setValue(name, text))
+
     def metric_key(self) -> str:
         return METRICS[self.metric_box.currentIndex()][0]
 
@@ -172,6 +198,9 @@ class DepthLedger(QWidget):
         L = self.ledger
         if key == "memory":
             return L.live.astype(float) if cumulative else L.out_memory.astype(float)
+        if key == "training":
+            curve = training_curve(L, self.optimizer_box.currentData(), self.mixed_box.isChecked()).astype(float)
+            return curve if cumulative else np.diff(curve, prepend=0.0)
         per_block = {"weights": L.costs[:, 0], "macs": L.costs[:, 2],
                      "latency": L.latency if L.latency is not None else np.zeros(len(L.order))}[key]
         return np.cumsum(per_block).astype(float) if cumulative else np.asarray(per_block, dtype=float)
@@ -192,6 +221,7 @@ class DepthLedger(QWidget):
         peak = L.running_peak.astype(float) if key == "memory" and cumulative else np.zeros(0)
         self.peak_curve.setData(x[:len(peak)], peak)
         self._draw_baseline(base_key, cumulative)
+        measured = self._draw_measured(x, key, cumulative)
         limit = design.budget.get(budget_key)
         if limit is not None and key == "latency":
             limit = limit / 1e3
@@ -207,11 +237,33 @@ class DepthLedger(QWidget):
             key_text.append(f"dashed: baseline “{design.baseline['name']}”")
         if show_budget:
             key_text.append("dash-dot: budget" + (", ○ where it is passed" if len(self.crossing.data) else ""))
+        if measured:
+            key_text.append(measured)
+        if key == "training":
+            memory = training_memory(L, self.optimizer_box.currentData(), self.mixed_box.isChecked())
+            key_text.append(f"total {units.size(memory.total)}, of it kept activations {units.size(memory.activations)}")
+            self.key.setToolTip(training_text(memory))
         self.key.setText(" · ".join(key_text))
-        self.caution.setVisible(key == "latency")
+        self.caution.setVisible(key in ("latency", "training"))
+        self.optimizer_box.setVisible(key == "training")
+        self.mixed_box.setVisible(key == "training")
         self._fill_table()
         self._mark_selection(self.document.selection)
         self.clear_action.setEnabled(design.baseline is not None)
+
+    def _draw_measured(self, x: np.ndarray, key: str, cumulative: bool) -> str:
+        """The last measurement's latency along depth (on the latency metric); its key text or ""."""
+        m = self.document.design.measurement
+        if key != "latency" or m is None:
+            self.measured_curve.setData([], [])
+            return ""
+        per_block = m.along(self.ledger.order)
+        self.measured_curve.setData(x, np.cumsum(per_block) if cumulative else per_block)
+        missing = m.missing(self.ledger)
+        self.key.setToolTip(f"measured {m.date} on {m.machine.describe()}, torch {m.machine.torch_version}, "
+                            f"batch {m.batch}, median of {m.repeat} runs")
+        return (f"dash-dot-dot: measured {m.date[:10]}, {m.machine.threads} thr."
+                + (f" ({len(missing)} new blocks not timed)" if missing else ""))
 
     def _draw_baseline(self, column: str, cumulative: bool) -> None:
         base = self.document.design.baseline

@@ -70,7 +70,8 @@ class Document(QObject):
         return d
 
     def set_design(self, design: Design, path: str | Path | None = None) -> None:
-        """Show another design (new or loaded); clears undo history and selection."""
+        """Show another design (new or loaded); clears undo history and the selection (a design of
+        one block, a new one, starts with it selected, so typing builds on from it)."""
         if self._unsubscribe is not None:
             self._unsubscribe()
         self.design = design
@@ -79,10 +80,10 @@ class Document(QObject):
         self._unsubscribe = design.subscribe(self._on_design_change)
         self.undo_stack.clear()
         self.undo_stack.setClean()
-        self.selection = []
+        self.selection = list(design.blocks) if len(design.blocks) == 1 else []
         self.trail, self.use, self._view = [("", None)], None, None
         self.replaced.emit()
-        self.selection_changed.emit([])
+        self.selection_changed.emit(list(self.selection))
         self.path_changed.emit()
 
     def apply(self, edit: Edit) -> None:

@@ -11,15 +11,19 @@ from pathlib import Path
 
 from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QIcon, QKeySequence
-from PySide6.QtWidgets import QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (QApplication, QDockWidget, QLabel, QMainWindow, QPushButton, QToolTip, QVBoxLayout,
+                               QWidget)
 
 from layerloom.core import units
 from layerloom.core.ledger import Ledger
+from layerloom.gui import theme
 from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
 from layerloom.gui.document import Document
 from layerloom.gui.files import FileKeeper, Prompts
+from layerloom.gui import interchange
 from layerloom.gui.graph_trail import GraphTrail
+from layerloom.gui.measure_actions import open_fit, open_measure
 from layerloom.gui.shelf import Shelf
 from layerloom.resource_paths import resource
 
@@ -46,6 +50,7 @@ class MainWindow(QMainWindow):
         self.setObjectName("main_window")
         self.setWindowIcon(QIcon(str(resource(APP_ICON))))
         self.setStyleSheet(resource(STYLE_SHEET).read_text(encoding="utf-8"))
+        QToolTip.setPalette(theme.tooltip_palette())  # hover texts are windows of their own: no style sheet
         self.settings = settings if settings is not None else house_settings()
         self.document = Document(parent=self)
         self.prompts = prompts if prompts is not None else Prompts(self)
@@ -79,6 +84,9 @@ class MainWindow(QMainWindow):
         self.resize(1400, 860)  # first run; a saved geometry replaces it below
         self.shelf.findings.block_chosen.connect(self.canvas.center_on)
         self.canvas.message.connect(self.say)
+        self.canvas.settings_wanted.connect(self._settings_wanted)
+        self.block_settings.finished.connect(self.canvas.setFocus)
+        self.depth_ledger.remember_choices(self.settings)
 
         self._build_status_bar()
         self._build_menus()
@@ -95,6 +103,8 @@ class MainWindow(QMainWindow):
         self.files.start(list(files))
         self._refresh_title()
         self._refresh_totals()
+        self.shelf.parts.remember_folds(self.settings)
+        self.canvas.setFocus()  # typing starts Quick add at once
 
     def _dock(self, title: str, name: str, widget, area) -> QDockWidget:
         dock = QDockWidget(title, self)
@@ -125,8 +135,10 @@ class MainWindow(QMainWindow):
         file_menu.addSeparator()
         self._action(file_menu, "Save", f.save, Key.Save)
         self._action(file_menu, "Save as…", f.save_as, Key.SaveAs)
+        self._action(file_menu, "Import…", lambda: interchange.import_into(self), name="import")
         export = file_menu.addMenu("Export")
         self._action(export, "PyTorch module…", self.export_module, name="export_module")
+        self._action(export, "ONNX file…", lambda: interchange.export_onnx_file(self), name="export_onnx")
         self._action(export, "Canvas as PNG…", lambda: self.export_picture("png"), name="export_png")
         self._action(export, "Canvas as SVG…", lambda: self.export_picture("svg"), name="export_svg")
         file_menu.addSeparator()
@@ -142,11 +154,14 @@ class MainWindow(QMainWindow):
         self._action(edit, "Copy", c.copy, Key.Copy)
         self._action(edit, "Paste", c.paste, Key.Paste)
         self._action(edit, "Duplicate", c.duplicate, "Ctrl+D")
-        self._action(edit, "Delete", c.delete_selection, Key.Delete)
+        self._action(edit, "Delete", lambda: c.delete_selection(bridge=True), Key.Delete)
+        self._action(edit, "Delete without bridging", lambda: c.delete_selection(bridge=False), "Shift+Del",
+                     name="delete_unbridged")
         self._action(edit, "Select all", c.select_all, Key.SelectAll)
         self._action(edit, "Rename block", c.rename_selected, "F2", name="rename")
         edit.addSeparator()
         self._action(edit, "Quick add…", lambda: c.quick_add(), "Ctrl+K", name="quick_add")
+        self._action(edit, "Wire into selection from…", c.wire_into_selection, "Ctrl+I", name="wire_into")
 
         motif = bar.addMenu("&Motif")
         self._action(motif, "Make motif…", lambda: c.make_motif(), "Ctrl+G", name="make_motif")
@@ -158,6 +173,11 @@ class MainWindow(QMainWindow):
         self._action(view, "Zoom in", c.zoom_in, Key.ZoomIn)
         self._action(view, "Zoom out", c.zoom_out, Key.ZoomOut)
         self._action(view, "Fit to view", c.fit_all, "Ctrl+0")
+        self._action(view, "Actual size (100 %)", c.actual_size, "Ctrl+1", name="actual_size")
+        self._action(view, "Zoom to selection", c.zoom_to_selection, "Ctrl+2", name="zoom_to_selection")
+        fold = self._action(view, "Fold norm and activation into cards", c.set_fold, name="fold")
+        fold.setCheckable(True)
+        fold.setChecked(c.canvas_scene.fold)
         self._action(view, "Tidy", c.tidy, "Ctrl+L")
         view.addSeparator()
         view.addAction(self.shelf_dock.toggleViewAction())
@@ -171,6 +191,9 @@ class MainWindow(QMainWindow):
                      name="baseline_from_file")
         self._action(design, "Clear baseline", self.depth_ledger.clear_baseline, name="clear_baseline")
         self._action(design, "Export ledger as CSV…", lambda: self.depth_ledger.export_csv(), name="export_csv")
+        design.addSeparator()
+        self._action(design, "Measure on this machine…", lambda: open_measure(self), name="measure")
+        self._action(design, "Fit to budget…", lambda: open_fit(self), name="fit_to_budget")
         self.shelf_dock.toggleViewAction().setText("Shelf (Parts, Findings)")
 
     def _fill_recent(self) -> None:
@@ -247,12 +270,24 @@ class MainWindow(QMainWindow):
         self.findings_button.setFlat(True)
         self.findings_button.setCursor(Qt.CursorShape.PointingHandCursor)
         self.findings_button.clicked.connect(self.show_findings)
+        self.zoom_label = QLabel()
+        self.zoom_label.setObjectName("zoom")
+        self.zoom_label.setMinimumWidth(self.zoom_label.fontMetrics().horizontalAdvance("4000 %"))
+        self.canvas.zoom_changed.connect(lambda z: self.zoom_label.setText(f"{z * 100:.0f} %"))
+        bar.addPermanentWidget(self.zoom_label)
         bar.addPermanentWidget(self.totals_label)
         bar.addPermanentWidget(self.findings_button)
 
     def _on_change(self, change) -> None:
         if change.reinfers:
             self._refresh_totals()
+        if "name" in change.fields:
+            self._refresh_title()
+
+    def _settings_wanted(self) -> None:
+        """Enter on a selected block: the keys go to its first setting in Block settings."""
+        self.settings_dock.show()
+        self.block_settings.focus_first()
 
     def _refresh_totals(self) -> None:
         design = self.document.design

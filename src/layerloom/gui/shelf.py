@@ -5,13 +5,16 @@ A kind's tile carries its name as MIME type ``KIND_MIME`` (UTF-8); a motif's til
 ``library:<key>`` (a motif of the library, defined in the design when dropped) or ``design:<name>``
 (a motif the open design defines) as ``MOTIF_MIME``. The canvas accepts both as drops. The filter
 box keeps the tiles whose title, name or family contains the typed text (``1x1`` also finds ``1×1``).
+Families are placed like words on a line and wrap to further rows (the shelf scrolls vertically),
+so every family, Motifs included, can be reached at any width; clicking a family's heading folds
+its tiles away.
 """
 from __future__ import annotations
 
 from PySide6.QtCore import QMimeData, QPoint, QSize, Qt
 from PySide6.QtGui import QDrag, QPainter, QPen, QPixmap
 from PySide6.QtWidgets import (QApplication, QFrame, QGridLayout, QHBoxLayout, QLabel, QLineEdit, QScrollArea,
-                               QTabWidget, QVBoxLayout, QWidget)
+                               QTabWidget, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core.kinds import KINDS
 from layerloom.core.motif_library import LIBRARY
@@ -21,10 +24,11 @@ from layerloom.gui.canvas.glyphs import glyph_for
 from layerloom.core.design import Design
 from layerloom.gui.document import Document
 from layerloom.gui.findings_list import FindingsList
+from layerloom.gui.flow_layout import FlowLayout
 
 FAMILY_ORDER = ("Ends", "Convolution", "Norm & activation", "Pooling & resizing", "Joins", "Dense", "Plumbing")
 """Families left to right in the order data usually meets them; other families follow."""
-HIDDEN_KINDS = {"Motif"}  # an instance needs a motif of the design; it is added from the motif, not the shelf
+HIDDEN_KINDS = {"Motif", "Unmapped"}  # an instance needs a motif of the design; an unmapped operation comes from import
 TILE_ROWS = 3
 GLYPH_PX = 16
 
@@ -148,23 +152,44 @@ def motif_tiles(design) -> list[MotifTile]:
 
 
 class FamilyGroup(QWidget):
-    """A family's heading above its tiles, laid out in columns of :data:`TILE_ROWS`."""
+    """A family's heading above its tiles, laid out in columns of :data:`TILE_ROWS`; clicking the
+    heading folds the tiles away (and back)."""
 
     def __init__(self, family: str, tiles: list[DragTile], parent=None):
         super().__init__(parent)
-        heading = QLabel(family)
-        heading.setObjectName("family_heading")
+        self.family = family
+        self.heading = QToolButton()
+        self.heading.setObjectName("family_heading")
+        self.heading.setText(family.replace("&", "&&"))  # a lone & would mark a shortcut key
+        self.heading.setCheckable(True)
+        self.heading.setChecked(True)
+        self.heading.setAutoRaise(True)
+        self.heading.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
+        self.heading.setArrowType(Qt.ArrowType.DownArrow)
+        self.heading.setToolTip(f"Fold or unfold {family}")
+        self.heading.toggled.connect(self._unfold)
         self.tiles = tiles
         self._shown_text = ""
-        self.grid = QGridLayout()
+        self.body = QWidget()
+        self.grid = QGridLayout(self.body)
+        self.grid.setContentsMargins(0, 0, 0, 0)
         self.grid.setSpacing(4)
         col = QVBoxLayout(self)
-        col.setContentsMargins(0, 0, 12, 0)
-        col.setSpacing(4)
-        col.addWidget(heading)
-        col.addLayout(self.grid)
+        col.setContentsMargins(0, 0, 0, 0)
+        col.setSpacing(2)
+        col.addWidget(self.heading, 0, Qt.AlignmentFlag.AlignLeft)
+        col.addWidget(self.body)
         col.addStretch(1)
         self.show_matching("")
+
+    @property
+    def folded(self) -> bool:
+        return not self.heading.isChecked()
+
+    def _unfold(self, on: bool) -> None:
+        self.heading.setArrowType(Qt.ArrowType.DownArrow if on else Qt.ArrowType.RightArrow)
+        self.body.setVisible(on)
+        self.updateGeometry()
 
     def set_tiles(self, tiles: list[DragTile]) -> None:
         """Replace the tiles (the Motifs group, when the design's motifs change)."""
@@ -210,16 +235,15 @@ class PartsPanel(QWidget):
 
         strip = QWidget()
         strip.setObjectName("parts_strip")
-        row = QHBoxLayout(strip)
-        row.setContentsMargins(0, 0, 0, 0)
-        for g in self.groups:
-            row.addWidget(g)
-        row.addWidget(self.motif_group)
-        row.addWidget(self.empty)
-        row.addStretch(1)
+        flow = FlowLayout(strip, spacing=14)
+        flow.setContentsMargins(0, 0, 0, 0)
+        for g in (*self.groups, self.motif_group):
+            flow.addWidget(g)
+        flow.addWidget(self.empty)
         self.scroll = scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         scroll.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
         scroll.setWidget(strip)
 
@@ -243,6 +267,14 @@ class PartsPanel(QWidget):
     def refresh_motifs(self) -> None:
         self.motif_group.set_tiles(motif_tiles(self.document.design))
         self.apply_filter(self.filter.text())
+
+    def remember_folds(self, settings) -> None:
+        """Fold the families folded last time (kept in ``settings``) and keep each change."""
+        folded = set(settings.value("parts/folded", [], type=list) or [])
+        for group in (*self.groups, self.motif_group):
+            group.heading.setChecked(group.family not in folded)
+            group.heading.toggled.connect(lambda _on: settings.setValue(
+                "parts/folded", [g.family for g in (*self.groups, self.motif_group) if g.folded]))
 
     def apply_filter(self, text: str) -> None:
         shown = sum(g.show_matching(text) for g in (*self.groups, self.motif_group))

@@ -6,7 +6,9 @@ Sizes are scene pixels unless a name says otherwise.
 """
 from __future__ import annotations
 
-from PySide6.QtGui import QColor, QFont
+from PySide6.QtGui import QColor, QFont, QPalette
+
+from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH
 
 # ----- colours
 CANVAS = QColor("#f4f5f2")  # the canvas behind everything
@@ -29,6 +31,16 @@ NOTE = QColor("#8a9199")
 BADGE_TEXT = QColor("#ffffff")
 
 SEVERITY_COLOURS = {"error": ERROR, "warning": WARNING, "note": NOTE}
+
+
+def tooltip_palette() -> QPalette:
+    """Hover texts: dark text on a card-white ground with the card edge colour around it."""
+    p = QPalette()
+    p.setColor(QPalette.ColorRole.ToolTipBase, CARD)
+    p.setColor(QPalette.ColorRole.ToolTipText, TEXT)
+    p.setColor(QPalette.ColorRole.Window, CARD)
+    p.setColor(QPalette.ColorRole.WindowText, TEXT)
+    return p
 
 
 def _font(point_size: float, weight: QFont.Weight = QFont.Weight.Normal, family: str = "") -> QFont:
@@ -58,8 +70,6 @@ def badge_font() -> QFont:
 
 
 # ----- block card metrics (scene pixels)
-CARD_WIDTH = 158.0
-CARD_HEIGHT = 54.0
 CARD_RADIUS = 5.0
 NOTCH_DEPTH = 6.0  # how far a port notch cuts into the card
 NOTCH_HALF = 6.0  # half the notch's height along the edge
@@ -83,3 +93,5 @@ TEXT_MIN_DETAIL = 0.3  # below this zoom level text is not drawn
 SHAPE_MIN_DETAIL = 0.08  # below this, cards are plain rectangles and wires hairlines
 ZOOM_MIN, ZOOM_MAX = 0.04, 4.0
 READABLE_ZOOM = 0.6  # a design opens at no smaller zoom than this (Fit to view may go further)
+READABLE_PX = 9.6  # the least on-screen text size (pixels, em) a card keeps far out: below, it
+#                    draws only its name and output shape that large; the view adds stage summaries

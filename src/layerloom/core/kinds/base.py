@@ -68,7 +68,10 @@ class Kind:
     settings_by_key: dict[str, Setting]
     defaults: dict[str, Any]
     view = False  # output aliases the input (no new activation memory)
+    keeps: tuple[str, ...] = ()  # what its backward pass keeps, see backward_keeps
     scriptable = True  # accepted by torch.jit.script once exported
+    verifiable = True  # its export computes the block (False: a placeholder the user fills in)
+    torch_helper = ""  # source of a helper class its torch_layer needs, written once into the export
 
     def input_count(self, s: dict) -> int:
         return 1
@@ -93,6 +96,12 @@ class Kind:
 
     def summary(self, s: dict) -> str:
         return ""
+
+    def backward_keeps(self, s: dict) -> tuple[str, ...]:
+        """Tensors a training step keeps for this block's backward pass (what PyTorch's autograd
+        saves, weights aside): ``"inputs"`` (every input), ``"output"``, ``"indices"`` (one int64
+        per output element, max pooling) and ``"mask"`` (one output-sized tensor, dropout)."""
+        return self.keeps
 
     def torch_layer(self, s: dict, ins: tuple[Shape, ...], out: Shape) -> str | None:
         raise NotImplementedError(self.name)

@@ -53,6 +53,7 @@ def _conv_summary(k, s, out=None, extra="") -> str:
 @register
 class Conv2d(Kind):
     name, title, family = "Conv2d", "Convolution", "Convolution"
+    keeps = ("inputs",)
     stem = "conv"
     settings = (OUT, pair_setting("kernel", 3, "Kernel"), STRIDE, padding_setting(1), DILATION, GROUPS, BIAS)
 
@@ -90,6 +91,7 @@ class Pointwise(Kind):
     """A 1×1 convolution: keeps height and width (at stride 1), sets channels to its filter count."""
 
     name, title, family = "Pointwise", "1×1 convolution", "Convolution"
+    keeps = ("inputs",)
     stem = "pw"
     settings = (OUT, STRIDE, GROUPS, BIAS)
 
@@ -126,6 +128,7 @@ class Depthwise(Kind):
     """A depthwise convolution: one filter (or ``multiplier`` filters) per input channel."""
 
     name, title, family = "Depthwise", "Depthwise convolution", "Convolution"
+    keeps = ("inputs",)
     stem = "dw"
     settings = (pair_setting("kernel", 3, "Kernel"), STRIDE, padding_setting(1), DILATION,
                 int_setting("multiplier", 1, "Channel multiplier", maximum=64,
@@ -163,6 +166,7 @@ class ConvTranspose2d(Kind):
     """A transposed convolution; output size (H−1)·s − 2p + d(k−1) + output padding + 1."""
 
     name, title, family = "ConvTranspose2d", "Transposed convolution", "Convolution"
+    keeps = ("inputs",)
     stem = "upconv"
     settings = (OUT, pair_setting("kernel", 2, "Kernel"), pair_setting("stride", 2, "Stride"),
                 pair_setting("padding", 0, "Padding", minimum=0),

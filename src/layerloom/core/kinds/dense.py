@@ -35,6 +35,7 @@ class Flatten(Kind):
 @register
 class Linear(Kind):
     name, title, family = "Linear", "Linear (fully connected)", "Dense"
+    keeps = ("inputs",)
     stem = "fc"
     settings = (int_setting("out_features", 1000, "Out features"),
                 bool_setting("bias", True, "Bias"),
@@ -69,6 +70,7 @@ class Linear(Kind):
 @register
 class Dropout(Kind):
     name, title, family = "Dropout", "Dropout", "Dense"
+    keeps = ("mask",)
     settings = (Setting("p", "float", 0.5, "Drop probability", 0.0, 1.0),)
     view = True
 
@@ -82,6 +84,7 @@ class Dropout(Kind):
 @register
 class Softmax(Kind):
     name, title, family = "Softmax", "Softmax (over channels)", "Dense"
+    keeps = ("output",)
 
     def cost(self, s, ins, out):
         return Cost(0, 0, 0, 3 * out.elements)

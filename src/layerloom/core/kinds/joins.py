@@ -66,6 +66,7 @@ class Multiply(Join):
     """Element-wise product; a C×1×1 input broadcasts over H×W (a squeeze-and-excite gate)."""
 
     name, title = "Multiply", "Multiply (gate)"
+    keeps = ("inputs",)
     stem = "gate"
     settings = ()
 

@@ -14,6 +14,7 @@ from layerloom.core.settings import Setting, bool_setting
 class BatchNorm2d(Kind):
     name, title, family = "BatchNorm2d", "Batch norm", "Norm & activation"
     stem = "bn"
+    keeps = ("inputs",)
     settings = (Setting("eps", "float", 1e-5, "Epsilon", 0.0, 1.0),
                 bool_setting("affine", True, "Learned scale and shift"))
 
@@ -37,6 +38,7 @@ class Activation(Kind):
 
     family = "Norm & activation"
     module = ""
+    keeps = ("inputs",)
 
     def cost(self, s, ins, out):
         return Cost(0, 0, 0, out.elements)
@@ -48,13 +50,16 @@ class Activation(Kind):
         return f"nn.{self.module}()"
 
 
-def _activation(kind_name: str, title: str) -> None:
-    register(type(kind_name, (Activation,), {"name": kind_name, "title": title, "module": kind_name}))
+def _activation(kind_name: str, title: str, keeps: str) -> None:
+    register(type(kind_name, (Activation,), {"name": kind_name, "title": title, "module": kind_name,
+                                             "keeps": (keeps,)}))
 
 
-for _name, _title in (("ReLU", "ReLU"), ("ReLU6", "ReLU6"), ("GELU", "GELU"), ("SiLU", "SiLU (swish)"),
-                      ("Sigmoid", "Sigmoid"), ("Tanh", "Tanh"), ("Hardswish", "Hard swish")):
-    _activation(_name, _title)
+# what PyTorch's autograd keeps for each one's backward (checked with saved_tensors_hooks)
+for _name, _title, _keeps in (("ReLU", "ReLU", "output"), ("ReLU6", "ReLU6", "inputs"), ("GELU", "GELU", "inputs"),
+                              ("SiLU", "SiLU (swish)", "inputs"), ("Sigmoid", "Sigmoid", "output"),
+                              ("Tanh", "Tanh", "output"), ("Hardswish", "Hard swish", "inputs")):
+    _activation(_name, _title, _keeps)
 
 
 @register

@@ -14,6 +14,7 @@ from layerloom.core.shapes import Shape
 class Pool(Kind):
     family = "Pooling & resizing"
     module = ""
+    keeps = ("inputs",)
     settings = (pair_setting("kernel", 2, "Kernel"), pair_setting("stride", 2, "Stride"),
                 pair_setting("padding", 0, "Padding", minimum=0, help="at most half the kernel"),
                 bool_setting("ceil_mode", False, "Ceil mode", help="round the output size up instead of down"))
@@ -50,6 +51,7 @@ class Pool(Kind):
 @register
 class MaxPool2d(Pool):
     name, title, module, word = "MaxPool2d", "Max pooling", "MaxPool2d", "max"
+    keeps = ("inputs", "indices")
     stem = "maxpool"
 
 
@@ -78,6 +80,10 @@ class AdaptiveAvgPool2d(Pool):
         (oh, ow), x = pair(s["output"]), ins[0]
         kh, kw_ = -(-x[1] // oh), -(-x[2] // ow)
         return kh, kw_, max(x[1] // oh, 1), max(x[2] // ow, 1)
+
+    def backward_keeps(self, s):
+        """Global pooling is a mean, whose backward needs only the input's size."""
+        return () if pair(s["output"]) == (1, 1) else self.keeps
 
     def summary(self, s):
         return "global" if pair(s["output"]) == (1, 1) else f"to {pair_text(s['output'])}"

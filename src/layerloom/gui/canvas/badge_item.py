@@ -34,7 +34,10 @@ class BadgeItem(QGraphicsItem):
             above = port < n_in / 2 or n_in == 1  # upper ports above their wire, lower ones below
             self._rect = QRectF(-w - 2.0, y - h - 6.0 if above else y + 6.0, w, h)
         else:
-            self._rect = QRectF(W - w - 8.0, -h / 2, w, h)  # riding the card's top edge
+            if hasattr(parent, "card"):  # a chip's badge rides its card's top edge, above the chip
+                self._rect = QRectF(0.0, -parent.y() - h / 2, w, h)
+            else:
+                self._rect = QRectF(W - w - 8.0, -h / 2, w, h)  # riding the card's top edge
         self.setToolTip("\n".join(f"{f.code}: {f.message}" for f in findings))
         self.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
         self.setAcceptHoverEvents(True)

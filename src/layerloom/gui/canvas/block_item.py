@@ -1,5 +1,8 @@
 """A block on the canvas: a plain card with notched ports, a glyph, two lines of text and a cost bar.
 A motif instance's card has a second edge behind it and a third line: the MACs of all its repeats.
+A card may hold chips (folded norm and activation blocks, :mod:`layerloom.gui.canvas.chips`) on its
+second line. Far out, where its text would be too small to read, a card draws only its name and
+output shape, at :data:`theme.READABLE_PX` on screen, as long as they fit in it.
 
 The item holds only what it draws (texts, port counts, status, cost share); the canvas scene sets
 that state from the design and its analysis. ``paint`` only draws.
@@ -7,6 +10,7 @@ that state from the design and its analysis. ``paint`` only draws.
 from __future__ import annotations
 
 from functools import lru_cache
+from math import ceil
 from typing import NamedTuple
 
 from PySide6.QtCore import QPointF, QRectF, Qt
@@ -41,6 +45,7 @@ class CardState(NamedTuple):
     status: str  # "", "note", "warning" or "error"
     cost_share: float  # 0..1, rounded to a pixel of the bar
     cost: str = ""  # a third line (a motif instance's MACs), or none
+    chips: tuple = ()  # labels of the chips on the second line, in data-flow order
 
 
 def port_y(index: int, count: int) -> float:
@@ -77,6 +82,30 @@ def font(which: str) -> QFont:
     return f
 
 
+@lru_cache(maxsize=256)
+def sized_font(which: str, pixels: int) -> QFont:
+    """Theme font ``which`` at ``pixels`` pixels (em), for far-out text."""
+    f = QFont(font(which))
+    f.setPixelSize(max(int(pixels), 1))
+    return f
+
+
+def pixel_size(which: str) -> float:
+    """The em size in pixels of theme font ``which`` at 100 %."""
+    f = font(which)
+    return f.pixelSize() if f.pixelSize() > 0 else f.pointSizeF() * metrics(which).fontDpi() / 72.0
+
+
+class TextLine(NamedTuple):
+    """One line of text as a card draws it at some zoom (scene units): what the readability test measures."""
+
+    shown: str  # the text drawn (elided when it did not fit)
+    full: str  # the whole text
+    pixels: float  # em size in scene pixels
+    font: QFont
+    origin: QPointF  # baseline start
+
+
 @lru_cache(maxsize=4096)
 def advance(which: str, text: str) -> float:
     """Width of ``text`` in the theme font ``which`` (remembered: the same shapes recur everywhere)."""
@@ -91,6 +120,26 @@ def metrics(which: str) -> QFontMetricsF:
     return m
 
 
+def far_zoom() -> float:
+    """Below this zoom a card's title would be smaller than :data:`theme.READABLE_PX` on screen."""
+    return theme.READABLE_PX / pixel_size("title")
+
+
+def summary_zoom() -> float:
+    """Below this zoom a card has no room for both its name and its shape at a readable size."""
+    return theme.READABLE_PX * 2 * LINE_STEP / (H - 4)
+
+
+LINE_STEP = 1.2  # far-out lines are this many em apart
+CHIP_RISE = 10.5  # a chip's top sits this far above the second line's baseline
+CHIP_HEIGHT = 14.0
+ARROW = 9.0  # room for the ▸ before each chip
+
+
+def chip_width(label: str) -> float:
+    return advance("detail", label) + 6.0
+
+
 class BlockItem(QGraphicsItem):
     """One block's card. Its position is the card's top-left corner, as stored in the design."""
 
@@ -101,6 +150,9 @@ class BlockItem(QGraphicsItem):
         self.state = state
         self._title = self._detail = self._cost = ""
         self._shape_row = DETAIL_BASE
+        self.chip_items: list = []  # ChipItems (children), set by the scene, placed by the card
+        self._chip_x: list[float] = []  # left edge of each chip on the second line
+        self._far: tuple[float, list[TextLine]] | None = None  # zoom and lines last laid out far out
         self._texts()
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsMovable | QGraphicsItem.GraphicsItemFlag.ItemIsSelectable
                       | QGraphicsItem.GraphicsItemFlag.ItemSendsScenePositionChanges)
@@ -112,8 +164,18 @@ class BlockItem(QGraphicsItem):
         if state == self.state:
             return
         self.state = state
+        self._far = None
         self._texts()
         self.update()
+
+    def set_chips(self, items: list) -> None:
+        """The chip items of this card, in data-flow order (they are placed on its second line)."""
+        self.chip_items = items
+        self._place_chips()
+
+    def _place_chips(self) -> None:
+        for item, x in zip(self.chip_items, self._chip_x):
+            item.setPos(x, DETAIL_BASE - CHIP_RISE)
 
     def _texts(self) -> None:
         """Elide the texts once; the output shape shares the second line, or moves up beside the
@@ -129,7 +191,9 @@ class BlockItem(QGraphicsItem):
             self._cost = metrics("figure").elidedText(s.cost, ELIDE, detail_room - shape_w)
             return
         title_w = advance("title", s.title)
-        detail_w = advance("detail", s.detail)
+        widths = [chip_width(label) for label in s.chips]
+        chips_w = sum(ARROW + w for w in widths)
+        detail_w = advance("detail", s.detail) + chips_w
         self._shape_row = DETAIL_BASE
         if detail_w + shape_w > detail_room and title_w + shape_w <= room:
             self._shape_row = TITLE_BASE
@@ -138,7 +202,37 @@ class BlockItem(QGraphicsItem):
         if self._shape_row == TITLE_BASE:
             room -= shape_w
         self._title = s.title if title_w <= room else metrics("title").elidedText(s.title, ELIDE, room)
-        self._detail = s.detail if detail_w <= detail_room else metrics("detail").elidedText(s.detail, ELIDE, detail_room)
+        text_room = max(detail_room - chips_w, 24.0)
+        self._detail = s.detail if detail_w <= detail_room else metrics("detail").elidedText(s.detail, ELIDE, text_room)
+        x = theme.PADDING + advance("detail", self._detail)
+        self._chip_x = []
+        for w in widths:
+            self._chip_x.append(x + ARROW)
+            x += ARROW + w
+        self._place_chips()
+
+    def far_lines(self, zoom: float) -> list[TextLine]:
+        """The lines a card draws at ``zoom`` below :func:`far_zoom`: its name and, when there is
+        room for both, its output shape, each at :data:`theme.READABLE_PX` on screen; none when even
+        the name no longer fits in the card's height (the view shows stage summaries there)."""
+        if self._far is not None and self._far[0] == zoom:
+            return self._far[1]
+        px = ceil(theme.READABLE_PX / zoom)
+        step = px * LINE_STEP
+        lines: list[TextLine] = []
+        room = W - 2 * theme.PADDING
+        texts = [("title", self.state.title)]
+        shape = self.state.shape or (self.state.detail if self.state.kind == "Input" else "")  # an Input's is its detail
+        if shape and 2 * step + 4 <= H:
+            texts.append(("figure", shape))
+        if step + 4 <= H:
+            top = (H - step * len(texts)) / 2
+            for i, (which, text) in enumerate(texts):
+                f = sized_font(which, px)
+                shown = QFontMetricsF(f).elidedText(text, ELIDE, room)
+                lines.append(TextLine(shown, text, float(px), f, QPointF(theme.PADDING, top + step * i + px)))
+        self._far = (zoom, lines)
+        return lines
 
     # ----- geometry
     def boundingRect(self) -> QRectF:
@@ -210,7 +304,11 @@ class BlockItem(QGraphicsItem):
             painter.drawRect(track)
             painter.setBrush(theme.COST_BAR)
             painter.drawRect(QRectF(track.left(), track.top(), max(track.width() * s.cost_share, 1.5), track.height()))
-        if lod < theme.TEXT_MIN_DETAIL:
+        if lod < far_zoom():
+            painter.setPen(theme.TEXT)
+            for line in self.far_lines(lod):
+                painter.setFont(line.font)
+                painter.drawText(line.origin, line.shown)
             return
         painter.save()
         painter.translate(theme.PADDING, 9.0)
@@ -225,6 +323,8 @@ class BlockItem(QGraphicsItem):
         painter.setPen(theme.TEXT_MUTED)
         painter.setFont(font("detail"))
         painter.drawText(QPointF(theme.PADDING, detail_base), self._detail)
+        for x in self._chip_x:
+            painter.drawText(QPointF(x - ARROW + 1.0, detail_base), "▸")
         if s.cost:
             painter.setFont(font("figure"))
             painter.drawText(QPointF(theme.PADDING, cost_base), self._cost)

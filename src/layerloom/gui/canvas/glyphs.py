@@ -210,6 +210,24 @@ def _motif(s: float) -> QPainterPath:
     return p
 
 
+def _unmapped(s: float) -> QPainterPath:
+    """An unmapped operation: a dashed frame (a gap to fill in) around a small diamond."""
+    p = QPainterPath()
+    n = 4
+    for i in range(n):
+        a, b = s * i / n, s * (i + 0.6) / n
+        for x0, y0, x1, y1 in ((a, 0, b, 0), (s, a, s, b), (s - a, s, s - b, s), (0, s - a, 0, s - b)):
+            p.moveTo(x0, y0)
+            p.lineTo(x1, y1)
+    c, r = s / 2, s / 5
+    p.moveTo(c, c - r)
+    p.lineTo(c + r, c)
+    p.lineTo(c, c + r)
+    p.lineTo(c - r, c)
+    p.closeSubpath()
+    return p
+
+
 def _unknown(s: float) -> QPainterPath:
     p = QPainterPath()
     p.addEllipse(QPointF(s / 2, s / 2), s / 2, s / 2)
@@ -219,7 +237,7 @@ def _unknown(s: float) -> QPainterPath:
 BY_KIND = {"Pointwise": _pointwise, "Depthwise": _depthwise, "ConvTranspose2d": _transposed,
            "BatchNorm2d": _norm, "Upsample": _upsample, "Add": _add, "Multiply": _multiply, "Concat": _concat,
            "Flatten": _flatten, "Linear": _linear, "Dropout": _dropout, "Softmax": _softmax,
-           "Identity": _identity, "Input": _input, "Output": _output}
+           "Identity": _identity, "Input": _input, "Output": _output, "Unmapped": _unmapped}
 """Kinds with a glyph of their own; the others take their family's."""
 
 BY_FAMILY = {"Convolution": _grid, "Norm & activation": _activation, "Pooling & resizing": _pool,

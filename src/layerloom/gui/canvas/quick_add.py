@@ -1,94 +1,137 @@
-"""Quick add: a small popup at the cursor where typing part of a kind's name narrows a list.
+"""Quick add: a small popup on the canvas where typing narrows a list of choices.
 
-Enter (or a click) picks the highlighted kind and emits ``chosen(kind name)``; Escape closes.
-It is a plain child widget of the canvas view, never an item in the scene.
+What it lists comes from a ``provider(text) → [(label, value), …]``, best first (the canvas offers
+kinds and motifs, see :mod:`layerloom.core.quick_add_words`, or block names when wiring). Enter (or a
+click) picks the highlighted line and emits ``chosen(value)``; Escape closes. The list is as tall
+as its lines (up to :data:`ROWS`) and as wide as its longest line, so no text is cut, and the popup
+stays inside the view: beside the selected block when there is one (never over it), else at the
+cursor. It is a
+plain child widget of the canvas view, never an item in the scene.
 """
 from __future__ import annotations
 
-from PySide6.QtCore import QEvent, Qt, Signal
+from PySide6.QtCore import QEvent, QRect, Qt, Signal
 from PySide6.QtGui import QPalette
-from PySide6.QtWidgets import QFrame, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout
+from PySide6.QtWidgets import QAbstractItemView, QFrame, QLabel, QLineEdit, QListWidget, QListWidgetItem, QVBoxLayout
 
-from layerloom.core.kinds import KINDS
 from layerloom.gui import theme
 
-ROWS = 8
-
-
-def kind_matches(text: str) -> list[str]:
-    """Kind names whose name or title contains ``text`` (case-insensitive); prefix matches first."""
-    t = text.strip().lower()
-    names = [k for k, spec in KINDS.items() if k != "Motif" or t]
-    if not t:
-        return names
-    hits = [k for k in names if t in k.lower() or t in KINDS[k].title.lower()]
-    return sorted(hits, key=lambda k: (not (k.lower().startswith(t) or KINDS[k].title.lower().startswith(t)),
-                                       hits.index(k)))
+ROWS = 10  # lines shown before the list scrolls
+MIN_WIDTH = 240
+GAP = 12  # pixels between the popup and the block it opens beside
 
 
 class QuickAdd(QFrame):
-    """The popup. ``chosen`` carries a kind name; ``closed`` fires however it ends."""
+    """The popup. ``chosen`` carries the value of the line picked; ``closed`` fires however it ends."""
 
-    chosen = Signal(str)
+    chosen = Signal(object)
     closed = Signal()
 
-    def __init__(self, parent):
+    def __init__(self, parent, provider, placeholder: str = "Add a block: type a kind",
+                 empty_text: str = "no match — try conv, bn, 1x1, add, gap, se"):
         super().__init__(parent)
+        self.provider = provider
         self.setObjectName("quickAdd")
         self.setFrameShape(QFrame.Shape.StyledPanel)
         self.setAutoFillBackground(True)
         self.edit = QLineEdit(self)
-        self.edit.setPlaceholderText("Add a block: type a kind")
+        self.edit.setPlaceholderText(placeholder)
         self.edit.setClearButtonEnabled(True)
         self.list = QListWidget(self)
         self.list.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.list.setUniformItemSizes(True)
+        self.list.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.list.setVerticalScrollMode(QAbstractItemView.ScrollMode.ScrollPerItem)
         palette = self.list.palette()
         palette.setColor(QPalette.ColorRole.Highlight, theme.ACCENT)
         palette.setColor(QPalette.ColorRole.HighlightedText, theme.CARD)
         self.list.setPalette(palette)
+        self.empty = QLabel(empty_text)
+        self.empty.setObjectName("muted")
+        self.empty.setContentsMargins(4, 2, 4, 2)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.setSpacing(3)
         layout.addWidget(self.edit)
         layout.addWidget(self.list)
+        layout.addWidget(self.empty)
         self.edit.textChanged.connect(self._filter)
         self.edit.installEventFilter(self)
         self.list.itemClicked.connect(lambda item: self._pick(item))
-        self.setFixedWidth(240)
-        self._filter("")
+        self._anchor = QRect()  # view rectangle to open beside (empty: a point, its top-left)
 
+    # ----- opening
     def open_at(self, x: int, y: int, text: str = "") -> None:
-        """Show at view point (x, y), kept inside the view, with ``text`` already typed."""
-        parent = self.parentWidget()
-        self.adjustSize()
-        x = max(0, min(x, parent.width() - self.width()))
-        y = max(0, min(y, parent.height() - self.height()))
-        self.move(x, y)
+        """Show with its top-left at view point (x, y), kept inside the view, ``text`` already typed."""
+        self._open(QRect(x, y, 0, 0), text)
+
+    def open_beside(self, rect: QRect, text: str = "") -> None:
+        """Show to the right of view rectangle ``rect`` (a selected card); with no room there, below
+        it, else to its left; always inside the view."""
+        self._open(rect, text)
+
+    def _open(self, anchor: QRect, text: str) -> None:
+        self._anchor = anchor
+        self.edit.blockSignals(True)
         self.edit.setText(text)
+        self.edit.blockSignals(False)
         self._filter(text)
         self.show()
         self.raise_()
         self.edit.setFocus(Qt.FocusReason.PopupFocusReason)
 
+    def _place(self) -> None:
+        view = self.parentWidget().rect()
+        a, w, h = self._anchor, self.width(), self.height()
+        if a.width() and a.right() + GAP + w <= view.right():  # to the right, level with the card
+            x, y = a.right() + GAP, a.top()
+        elif a.width() and a.bottom() + GAP + h <= view.bottom():  # below it, off the row it ends
+            x, y = a.right() - w, a.bottom() + GAP
+        elif a.width():
+            x, y = a.left() - GAP - w, a.top()
+        else:
+            x, y = a.x(), a.y()
+        self.move(max(0, min(x, view.width() - w)), max(0, min(y, view.height() - h)))
+
+    # ----- the list
     def _filter(self, text: str) -> None:
         self.list.clear()
-        for name in kind_matches(text):
-            item = QListWidgetItem(f"{KINDS[name].title}   ·  {name}" if KINDS[name].title != name else name)
-            item.setData(Qt.ItemDataRole.UserRole, name)
+        lines = self.provider(text)
+        for label, value in lines:
+            item = QListWidgetItem(label)
+            item.setData(Qt.ItemDataRole.UserRole, value)
             self.list.addItem(item)
-        if self.list.count():
+        if lines:
             self.list.setCurrentRow(0)
-        rows = min(max(self.list.count(), 1), ROWS)
-        self.list.setFixedHeight(rows * (self.list.sizeHintForRow(0) if self.list.count() else 18) + 6)
+        self.list.setVisible(bool(lines))
+        self.empty.setVisible(not lines)
+        self._fit(lines)
+
+    def _fit(self, lines) -> None:
+        """Make the list exactly as tall as its lines (up to ROWS) and as wide as the longest one."""
+        n = len(lines)
+        row = self.list.sizeHintForRow(0) if n else self.list.fontMetrics().height() + 4
+        frame = 2 * self.list.frameWidth()
+        scrolls = n > ROWS
+        bar = self.list.verticalScrollBar().sizeHint().width() if scrolls else 0
+        widest = max((self.list.fontMetrics().horizontalAdvance(label) for label, _ in lines), default=0)
+        inner = max(widest + 16 + bar + frame, self.empty.sizeHint().width() + 12, MIN_WIDTH - 8)
+        limit = max(self.parentWidget().width() - 16, MIN_WIDTH)
+        self.setFixedWidth(min(inner + 8, limit))
+        self.list.setFixedHeight(min(n, ROWS) * row + frame)
         self.adjustSize()
+        self._place()
+
+    def labels(self) -> list[str]:
+        """The lines shown, in order."""
+        return [self.list.item(i).text() for i in range(self.list.count())]
 
     def _pick(self, item) -> None:
         if item is None:
             return
-        name = item.data(Qt.ItemDataRole.UserRole)
+        value = item.data(Qt.ItemDataRole.UserRole)
         self.dismiss()
-        self.chosen.emit(name)
+        self.chosen.emit(value)
 
     def dismiss(self) -> None:
         if self.isVisible():

@@ -7,6 +7,11 @@ re-infers, shapes, badges and cost bars are read from the document's results for
 (inside a motif: as in one use of it) and only items whose picture differs are updated. Opening
 another graph rebuilds the items. Wires attached to a moving block are marked dirty and rebuilt
 once per event-loop pass.
+
+With Fold on (:attr:`CanvasScene.fold`), a norm and an activation right after a convolution or
+Linear are chips inside its card (:mod:`layerloom.core.folding`): :attr:`CanvasScene.blocks` maps
+their ids to :class:`ChipItem` s, the wires inside a card are not drawn, and the card's wires start
+at the card. Wires are routed around the cards in their way (:mod:`layerloom.core.wire_route`).
 """
 from __future__ import annotations
 
@@ -16,28 +21,19 @@ from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
 from PySide6.QtWidgets import QGraphicsItem, QGraphicsScene
 
 from layerloom.core import edits, units
+from layerloom.core.edits import port_counts
 from layerloom.core.findings import SEVERITY_RANK
+from layerloom.core.folding import chip_label, chips_of, fold_groups
 from layerloom.core.kinds import KINDS
 from layerloom.core.mends import mends_for
 from layerloom.core.settings import SettingError
+from layerloom.core.stage_rows import stage_groups
+from layerloom.core.wire_route import Obstacles, route
 from layerloom.gui import theme
 from layerloom.gui.canvas.badge_item import BadgeItem
 from layerloom.gui.canvas.block_item import CARD_RECT, H, W, BlockItem, CardState
+from layerloom.gui.canvas.chips import ChipItem
 from layerloom.gui.canvas.wire_item import WireItem
-
-
-def port_counts(design, block) -> tuple[int, int]:
-    """Input and output port counts of ``block`` (a motif instance takes its motif's)."""
-    kind = KINDS.get(block.kind)
-    if block.kind == "Motif":
-        motif = design.motifs.get(block.settings.get("motif"))
-        if motif is None:
-            return 1, 1
-        ins, outs = motif.ports()
-        return len(ins), len(outs)
-    if kind is None:
-        return 1, 1
-    return kind.input_count(block.settings), kind.output_count(block.settings)
 
 
 class ParamValue(int):
@@ -77,6 +73,11 @@ def detail_text(block, motif=None) -> str:
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
 
 
+def _rect(item: BlockItem) -> tuple:
+    p = item.pos()
+    return (p.x(), p.y(), p.x() + W, p.y() + H)
+
+
 def _overview_flags(item, on: bool) -> None:
     """An item drawn by the overview paints nothing itself (Qt then skips it while painting)."""
     item.setFlag(NO_CONTENTS, on)
@@ -90,8 +91,13 @@ class CanvasScene(QGraphicsScene):
     def __init__(self, document, parent=None):
         super().__init__(parent)
         self.document = document
-        self.blocks: dict[str, BlockItem] = {}
-        self.wires: dict = {}  # Wire → WireItem
+        self.blocks: dict = {}  # block id → BlockItem (a card) or ChipItem (folded into a card)
+        self.wires: dict = {}  # Wire → WireItem, for the wires drawn (not those inside a card)
+        self.fold = True  # norms and activations after a convolution are chips of its card
+        self.folds: dict[str, str] = {}  # chip id → its card's id
+        self._chips: dict[str, list[str]] = {}  # card id → chip ids
+        self.obstacles = Obstacles()  # card rectangles the wires go around
+        self._stages: list | None = None  # (key, card ids) per stage, made on demand
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
         self._dirty_wires: set = set()
@@ -99,7 +105,7 @@ class CanvasScene(QGraphicsScene):
         self._syncing_selection = False
         self._total_macs = 0
         self.overview = False  # far out, the view draws every item at once (see set_overview)
-        self._ov_lines: dict = {}  # Wire → chord, kept while in overview
+        self._ov_lines: dict = {}  # Wire → its lines, kept while in overview
         self._ov_rects: dict = {}  # colour rgba → (colour, {block id → card rect})
         self._ov_where: dict = {}  # block id → colour rgba of the group holding it
         self._ov_valid = False
@@ -130,6 +136,7 @@ class CanvasScene(QGraphicsScene):
         finally:
             self._syncing_selection = False
         self.blocks, self.wires, self.badges, self._findings = {}, {}, {}, {}
+        self.folds, self._chips, self.obstacles = {}, {}, Obstacles()
         self._dirty_wires.clear()
         self._sync_topology()
         self._refresh_results()
@@ -158,10 +165,13 @@ class CanvasScene(QGraphicsScene):
             self._sync_topology()
         for bid in change.moved.get(key, ()):
             item = self.blocks.get(bid)
-            if item is not None:
+            if isinstance(item, BlockItem):
                 x, y = graph.blocks[bid].position
                 if item.pos() != QPointF(x, y):
                     item.setPos(x, y)
+        if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
+            self._stages = None
+            self._dirty_wires.update(self.wires)
         for bid in change.renamed.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
@@ -172,31 +182,67 @@ class CanvasScene(QGraphicsScene):
         if key in change.moved or key in change.topology:
             self.grow_to_fit()
 
+    def set_fold(self, on: bool) -> None:
+        """Show norms and activations after a convolution as chips of its card (on) or as cards."""
+        if on != self.fold:
+            self.fold = on
+            self.rebuild()
+
+    def card_of(self, block_id: str) -> str:
+        """The id of the card that shows ``block_id`` (itself, or the card it is a chip of)."""
+        return self.folds.get(block_id, block_id)
+
+    def _drop(self, bid: str) -> None:
+        item = self.blocks.pop(bid)
+        self.badges.pop(bid, None)
+        self._findings.pop(bid, None)
+        self.obstacles.drop(bid)
+        if isinstance(item, ChipItem):
+            item.setParentItem(None)
+        self.removeItem(item)
+
     def _sync_topology(self) -> None:
         self._ov_valid = False
+        self._stages = None
         design = self.design
         graph = self.graph
-        for bid in [b for b in self.blocks if b not in graph.blocks]:
-            self.removeItem(self.blocks.pop(bid))
-            self.badges.pop(bid, None)
-            self._findings.pop(bid, None)
-        for w in [w for w in self.wires if w not in graph.wires]:
+        old = self.folds
+        folds = fold_groups(graph) if self.fold else {}
+        regrouped = {b for b in old.keys() | folds.keys() if old.get(b) != folds.get(b)}
+        for bid in [b for b in self.blocks if b not in graph.blocks or b in regrouped]:
+            if isinstance(self.blocks[bid], ChipItem):
+                self._drop(bid)
+        for bid in [b for b in self.blocks if b not in graph.blocks or b in regrouped]:
+            self._drop(bid)
+        self.folds, self._chips = folds, chips_of(folds)
+        for w in [w for w in self.wires if w not in graph.wires or folds.get(w.src, w.src) == folds.get(w.dst, w.dst)]:
             self.removeItem(self.wires.pop(w))
             self._dirty_wires.discard(w)
         for bid, block in graph.blocks.items():
-            if bid not in self.blocks:
+            if bid not in self.blocks and bid not in folds:
                 n_in, n_out = port_counts(design, block)
                 detail = detail_text(block, graph if graph.key else None)
                 item = BlockItem(bid, CardState(block.kind, block.name, detail, "", n_in, n_out, "", 0.0),
                                  self._block_moved)
                 item.setPos(*block.position)
                 self.blocks[bid] = item
+                self.obstacles.put(bid, _rect(item))
                 self._adopt(item)
+        for card, chips in self._chips.items():
+            for bid in chips:
+                if bid not in self.blocks:
+                    block = graph.blocks[bid]
+                    state = CardState(block.kind, block.name, "", "", 1, 1, "", 0.0, chips=(chip_label(block.kind),))
+                    self.blocks[bid] = ChipItem(bid, self.blocks[card], state)
+                    if self.overview:
+                        _overview_flags(self.blocks[bid], True)
+            self.blocks[card].set_chips([self.blocks[b] for b in chips])
         for w in graph.wires:
-            if w not in self.wires:
+            if w not in self.wires and folds.get(w.src, w.src) != folds.get(w.dst, w.dst):
                 item = self.wires[w] = WireItem(w)
                 self._adopt(item)
                 self._dirty_wires.add(w)
+        self._dirty_wires.update(self.wires)  # cards came or went: routes may change
 
     def _refresh_results(self) -> None:
         """Read shapes, findings and MAC shares for the graph shown; update items whose picture differs.
@@ -215,12 +261,18 @@ class CanvasScene(QGraphicsScene):
             n_in, n_out = port_counts(design, block)
             found = tuple(by_block.get(bid, ()))
             status = found[0].severity if found else ""
-            share = round(r.cost.macs / total, 2) if (r is not None and total) else 0.0
+            chips = self._chips.get(bid, ())
+            macs = r.cost.macs if r is not None else 0
+            macs += sum(results[c].cost.macs for c in chips if results.get(c) is not None)
+            share = round(macs / total, 2) if (r is not None and total) else 0.0
             detail = detail_text(block, motif)
-            shape = str(r.outs[0]) if r is not None and r.outs else ""
+            last = results.get(chips[-1]) if chips else r
+            shape = str(last.outs[0]) if last is not None and last.outs else ""
             cost = "" if block.kind != "Motif" else f"{units.count(r.cost.macs)} MACs" if r is not None else "MACs unknown"
+            labels = tuple(chip_label(graph.blocks[c].kind) for c in chips) if bid not in self.folds else (
+                chip_label(block.kind),)
             state = CardState(block.kind, block.name, detail, "" if shape == detail else shape, n_in, n_out, status,
-                              share, cost)
+                              share, cost, labels)
             if (n_in, n_out) != (old.n_in, old.n_out):
                 self._dirty_wires.update(graph.in_wires[bid] + graph.out_wires[bid])
             if block.kind == "Motif":
@@ -228,6 +280,7 @@ class CanvasScene(QGraphicsScene):
             item.set_state(state)
             if found != self._findings.get(bid, ()):
                 self._set_badges(item, found)
+        self._stages = None
         for w, item in self.wires.items():
             r = results.get(w.src)
             carried = r.outs[w.src_port] if r is not None and w.src_port < len(r.outs) else None
@@ -251,7 +304,8 @@ class CanvasScene(QGraphicsScene):
         self._findings[item.block_id] = found
         groups: dict = {}
         for f in found:
-            port = f.port if f.port is not None and f.port < item.state.n_in else None
+            chip = isinstance(item, ChipItem)
+            port = f.port if f.port is not None and f.port < item.state.n_in and not chip else None
             groups.setdefault(port, []).append(f)
         self.badges[item.block_id] = [
             BadgeItem(item, port, sorted(fs, key=lambda f: SEVERITY_RANK[f.severity]), self)
@@ -277,34 +331,51 @@ class CanvasScene(QGraphicsScene):
             _overview_flags(item, on)
 
     def overview_shapes(self) -> tuple[list, list]:
-        """Wire chords, and (colour, card rectangles) groups: selection, error, warning, plain. Kept
+        """Wire lines, and (colour, card rectangles) groups: selection, error, warning, plain. Kept
         up to date piece by piece while blocks move; made again after other changes."""
         if not self._ov_valid:
-            self._ov_lines = {w: item.chord for w, item in self.wires.items()}
+            self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
-            for bid, item in self.blocks.items():
+            for bid, item in self.cards():
                 status = item.state.status
                 colour = (theme.ACCENT if item.isSelected() else
                           theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE)
                 self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
                 self._ov_where[bid] = colour.rgba()
             self._ov_valid = True
-        return list(self._ov_lines.values()), [(c, list(r.values())) for c, r in self._ov_rects.values()]
+        return [ln for lines in self._ov_lines.values() for ln in lines], [(c, list(r.values())) for c, r in self._ov_rects.values()]
+
+    def chips_of(self, card: str) -> list:
+        """Ids of the chips in ``card`` (none when it holds none or Fold is off)."""
+        return self._chips.get(card, [])
+
+    def cards(self):
+        """``(block id, BlockItem)`` for every card (chips excluded)."""
+        return ((b, i) for b, i in self.blocks.items() if isinstance(i, BlockItem))
+
+    def stages(self) -> list:
+        """``(resolution, card ids)`` per stage of the graph shown (see core.stage_rows), top → bottom."""
+        if self._stages is None:
+            results = self.document.results()
+            shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
+            self._stages = stage_groups(self.graph, shapes, self.folds)
+        return self._stages
 
     def _overview_stale(self, *args) -> None:
         self._ov_valid = False
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
+        item = self.blocks[block_id]
         if self._ov_valid and block_id in self._ov_where:
-            item = self.blocks[block_id]
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
+        self.obstacles.put(block_id, _rect(item))
         g = self.graph
-        ws = g.in_wires.get(block_id)
-        if ws is None:
+        if g.in_wires.get(block_id) is None:
             return
-        self._dirty_wires.update(ws)
-        self._dirty_wires.update(g.out_wires[block_id])
+        for bid in (block_id, *self._chips.get(block_id, ())):
+            self._dirty_wires.update(w for w in g.in_wires[bid] if w in self.wires)
+            self._dirty_wires.update(w for w in g.out_wires[bid] if w in self.wires)
         if not self._flush_queued:
             self._flush_queued = True
             QTimer.singleShot(0, self, self.flush_wires)
@@ -312,13 +383,16 @@ class CanvasScene(QGraphicsScene):
     def flush_wires(self) -> None:
         """Re-route every dirty wire once."""
         self._flush_queued = False
-        blocks = self.blocks
+        blocks, folds, obstacles = self.blocks, self.folds, self.obstacles
         for w in self._dirty_wires:
             item = self.wires.get(w)
             if item is not None:
-                item.set_geometry(blocks[w.src].output_pos(w.src_port), blocks[w.dst].input_pos(w.dst_port))
+                src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
+                a = blocks[src].output_pos(w.src_port if src == w.src else 0)
+                b = blocks[dst].input_pos(w.dst_port)
+                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)))
                 if self._ov_valid:
-                    self._ov_lines[w] = item.chord
+                    self._ov_lines[w] = item.lines
         self._dirty_wires.clear()
 
     # ----- selection, both ways
@@ -327,7 +401,7 @@ class CanvasScene(QGraphicsScene):
             return
         self._syncing_selection = True
         try:
-            self.document.select([i.block_id for i in self.selectedItems() if isinstance(i, BlockItem)])
+            self.document.select([i.block_id for i in self.selectedItems() if isinstance(i, (BlockItem, ChipItem))])
         finally:
             self._syncing_selection = False
 
@@ -338,7 +412,7 @@ class CanvasScene(QGraphicsScene):
         try:
             wanted = set(ids)
             for item in self.selectedItems():
-                if not isinstance(item, BlockItem) or item.block_id not in wanted:
+                if getattr(item, "block_id", None) not in wanted:
                     item.setSelected(False)
             for bid in ids:
                 item = self.blocks.get(bid)

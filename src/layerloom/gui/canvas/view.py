@@ -9,18 +9,24 @@ items.
 """
 from __future__ import annotations
 
-from PySide6.QtCore import QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
+from PySide6.QtCore import QEvent, QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
 from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QTransform
-from PySide6.QtWidgets import QGraphicsView, QMenu
+from PySide6.QtWidgets import QGraphicsView, QMenu, QToolTip
 
 from layerloom.core import clipboard, edits, motif_ops
 from layerloom.core.motif_library import BY_KEY, library_edit
+from layerloom.core.quick_add_words import choices, rank
 from layerloom.core.graph import Wire
 from layerloom.core.kinds import KINDS
-from layerloom.core.layout import COLUMN, tidy_positions
+from layerloom.core.layout import COLUMN, tidy_layout
+from layerloom.core.settings import SettingError
 from layerloom.gui import theme
-from layerloom.gui.canvas.block_item import H, W, BlockItem
+from layerloom.gui.canvas import stage_summary
+from layerloom.gui.canvas.block_item import H, W, BlockItem, summary_zoom
 from layerloom.gui.canvas.block_item import font as block_font
+from layerloom.gui.canvas import context_menus, tooltips
+from layerloom.gui.canvas.arrow_keys import neighbour
+from layerloom.gui.canvas.chips import ChipItem
 from layerloom.gui.canvas.name_editor import NameEditor
 from layerloom.gui.canvas.quick_add import QuickAdd
 from layerloom.gui.canvas.scene import CanvasScene
@@ -32,14 +38,18 @@ KIND_MIME = "application/x-layerloom-kind"
 MOTIF_MIME = "application/x-layerloom-motif"
 """Drag-and-drop type of a motif from Parts; the data is ``library:<key>`` or ``design:<name>`` in UTF-8."""
 
+ARROWS = {Qt.Key.Key_Left: "left", Qt.Key.Key_Right: "right", Qt.Key.Key_Up: "up", Qt.Key.Key_Down: "down"}
 PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down and right
 ZOOM_STEP = 1.25
 
 
 class CanvasView(QGraphicsView):
-    """The canvas for ``document``. ``message`` carries a refusal or hint for a status line."""
+    """The canvas for ``document``. ``message`` carries a refusal or hint for a status line;
+    ``settings_wanted`` asks for the keyboard to go to Block settings (Enter on a selected block)."""
 
     message = Signal(str)
+    settings_wanted = Signal()
+    zoom_changed = Signal(float)  # the zoom (1.0 = 100 %) after any change of it
 
     def __init__(self, document, parent=None):
         super().__init__(parent)
@@ -65,11 +75,18 @@ class CanvasView(QGraphicsView):
         self._space = False
         self._draft: DraftWire | None = None
         self._draft_from: tuple[str, int] | None = None
-        self._quick = QuickAdd(self)
+        self._quick = QuickAdd(self, self._add_lines)
         self._quick.hide()
         self._quick.chosen.connect(self._quick_chosen)
+        self._quick.closed.connect(self._refocus)
         self._quick_spot = QPointF()
         self._quick_source: tuple[str, int] | None = None
+        self._quick_wire: Wire | None = None  # Quick add inserts on this wire
+        self._quick_into: str | None = None  # … or wires the new block into this one
+        self._wire_pick = QuickAdd(self, self._source_lines, "Wire from: type a block's name", "no block by that name")
+        self._wire_pick.hide()
+        self._wire_pick.chosen.connect(self._wire_from)
+        self._wire_pick.closed.connect(self._refocus)
         self._names = NameEditor(self)
         self._names.committed.connect(self._rename)
         self._paste_text, self._paste_count = "", 0
@@ -100,8 +117,19 @@ class CanvasView(QGraphicsView):
     def _sync_overview(self) -> None:
         """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
         self.canvas_scene.set_overview(self.transform().m11() < theme.SHAPE_MIN_DETAIL)
+        self.zoom_changed.emit(self.transform().m11())
 
     def drawForeground(self, painter, rect: QRectF) -> None:
+        scene = self.canvas_scene
+        if self.shows_stage_summaries():
+            self._draw_overview(painter)
+            stage_summary.draw(painter, self)
+
+    def shows_stage_summaries(self) -> bool:
+        """Whether cards are too small here to show name and shape, so stage rows are labelled."""
+        return self.transform().m11() < summary_zoom()
+
+    def _draw_overview(self, painter) -> None:
         scene = self.canvas_scene
         if not scene.overview:
             return
@@ -131,10 +159,32 @@ class CanvasView(QGraphicsView):
 
     def fit_all(self) -> None:
         """Show every block (never magnified beyond 1.25×)."""
-        rect = self.canvas_scene.itemsBoundingRect()
+        self._fit(self.canvas_scene.itemsBoundingRect())
+
+    def zoom_to_selection(self) -> None:
+        """Show the selected blocks as large as fits (a chip shows its card), or all when none is."""
+        scene = self.canvas_scene
+        rect = QRectF()
+        for bid in self.document.selection:
+            item = scene.blocks.get(scene.card_of(bid))
+            if item is not None:
+                rect = rect.united(item.sceneBoundingRect())
+        self._fit(rect if not rect.isEmpty() else scene.itemsBoundingRect())
+
+    def actual_size(self) -> None:
+        """Zoom to 100 % about the middle of the view."""
+        centre = self.mapToScene(self.viewport().rect().center())
+        self.resetTransform()
+        self.centerOn(centre)
+
+    def _fit(self, rect: QRectF) -> None:
+        """Fit ``rect`` with a margin (never above 1.25×), leaving room above it for stage labels."""
         if rect.isEmpty():
             return
         self.fitInView(rect.adjusted(-40, -40, 40, 40), Qt.AspectRatioMode.KeepAspectRatio)
+        if self.shows_stage_summaries():
+            room = stage_summary.top_room() / self.transform().m11()
+            self.fitInView(rect.adjusted(-40, -40 - room, 40, 40), Qt.AspectRatioMode.KeepAspectRatio)
         if self.transform().m11() > 1.25:
             self.resetTransform()
             self.scale(1.25, 1.25)
@@ -143,13 +193,18 @@ class CanvasView(QGraphicsView):
 
     def show_start(self) -> None:
         """How a design first appears: all of it when that is readable, else its input end (data
-        flows left → right) at the smallest zoom whose text can still be read."""
-        self.fit_all()
+        flows left → right) at the smallest zoom whose text can still be read. The zoom is chosen
+        before it is set: fitting a large design first would switch every item to the overview and
+        back (a tenth of a second at 2,000 blocks)."""
         rect = self.canvas_scene.itemsBoundingRect()
-        if rect.isEmpty() or self.transform().m11() >= theme.READABLE_ZOOM:
+        if rect.isEmpty():
             return
-        self.resetTransform()
-        self.scale(theme.READABLE_ZOOM, theme.READABLE_ZOOM)
+        room = self.viewport().rect().adjusted(2, 2, -2, -2)  # fitInView's own margin
+        framed = rect.adjusted(-40, -40, 40, 40)
+        if min(room.width() / framed.width(), room.height() / framed.height()) >= theme.READABLE_ZOOM:
+            self.fit_all()
+            return
+        self.setTransform(QTransform.fromScale(theme.READABLE_ZOOM, theme.READABLE_ZOOM))
         half_width = self.viewport().width() / theme.READABLE_ZOOM / 2
         self.centerOn(rect.left() - 40 + half_width, rect.center().y())
 
@@ -283,25 +338,82 @@ class CanvasView(QGraphicsView):
         super().mouseDoubleClickEvent(event)
 
     def contextMenuEvent(self, event) -> None:
-        """A badge offers its mends; elsewhere the motif commands for the selection."""
+        """A badge offers its mends; a block, a wire and the empty canvas their own menus
+        (:mod:`layerloom.gui.canvas.context_menus`)."""
         super().contextMenuEvent(event)
         if event.isAccepted():
             return
-        item = self._block_at(event.pos())
-        if item is not None and item.block_id not in self.document.selection:
-            self.document.select([item.block_id])
-        self.motif_menu().exec(event.globalPos())
+        self.context_menu_at(event.pos()).exec(event.globalPos())
         event.accept()
 
-    def motif_menu(self) -> QMenu:
-        """Make motif, Open motif, Expand and Back, each enabled when it applies."""
-        menu = QMenu(self)
+    def context_menu_at(self, view_pos: QPoint) -> QMenu:
+        """The menu for what is under ``view_pos`` (a block is selected first, unless it already is)."""
+        item = self._block_at(view_pos)
+        if item is not None:
+            bid = self._chip_at(view_pos) or item.block_id
+            if bid not in self.document.selection:
+                self.document.select([bid])
+            return context_menus.block_menu(self, bid)
+        wire = self._wire_at(view_pos)
+        if wire is not None:
+            return context_menus.wire_menu(self, wire)
+        return context_menus.canvas_menu(self, view_pos)
+
+    def _card_item(self, block_id: str) -> BlockItem:
+        """The card showing ``block_id`` (its own, or the card it is a chip of)."""
+        return self.canvas_scene.blocks[self.canvas_scene.card_of(block_id)]
+
+    def _chip_at(self, view_pos: QPoint) -> str | None:
+        """The block id of a chip under ``view_pos`` (a folded norm or activation), if any."""
+        item = self.itemAt(view_pos)
+        return item.block_id if isinstance(item, ChipItem) else None
+
+    def _wire_at(self, view_pos: QPoint) -> Wire | None:
+        """The wire under ``view_pos`` when no block is above it."""
+        for item in self.items(view_pos):
+            if isinstance(item, WireItem):
+                return item.wire
+            if isinstance(item, BlockItem) or item.parentItem() is not None:
+                return None
+        return None
+
+    def viewportEvent(self, event) -> bool:  # noqa: N802 (Qt naming)
+        """Hover texts for blocks and wires, made when asked for (see :mod:`tooltips`)."""
+        if event.type() == QEvent.Type.ToolTip:
+            text = self.tip_at(event.pos())
+            if text:
+                QToolTip.showText(event.globalPos(), text, self.viewport())
+            else:
+                QToolTip.hideText()
+            return True
+        return super().viewportEvent(event)
+
+    def tip_at(self, view_pos: QPoint) -> str:
+        """The hover text at ``view_pos``: a badge's own, a block's or a wire's ("" for none)."""
+        items = self.items(view_pos)
+        if items and items[0].toolTip() and not isinstance(items[0], BlockItem):
+            return items[0].toolTip()
+        item = self._block_at(view_pos)
+        if item is not None:
+            bid = self._chip_at(view_pos) or item.block_id
+            return tooltips.block_tip(self.document, bid, self.canvas_scene.total_macs())
+        wire = self._wire_at(view_pos)
+        return tooltips.wire_tip(self.document, wire) if wire is not None else ""
+
+    def motif_menu(self, menu: QMenu | None = None, applicable_only: bool = False) -> QMenu:
+        """Make motif, Open motif, Expand and Back, each enabled when it applies (added to ``menu``;
+        with ``applicable_only``, only those that apply)."""
+        menu = menu if menu is not None else QMenu(self)
         instance = self._selected_instance()
         for text, slot, enabled in (("Make motif…", self.make_motif, bool(self.document.selection)),
                                     ("Open motif", self.open_motif, instance is not None),
                                     ("Expand motif", self.expand_motif, instance is not None),
-                                    ("Back", self.document.back, len(self.document.trail) > 1)):
-            menu.addAction(text, slot).setEnabled(enabled)
+                                    ("Back", lambda: self.document.back(), len(self.document.trail) > 1)):
+            if applicable_only and not enabled:
+                continue
+            action = menu.addAction(text, slot)
+            action.setEnabled(enabled)
+            action.setObjectName("menu_" + text.lower().rstrip("…").replace(" ", "_"))
         return menu
 
     def _commit_moves(self) -> None:
@@ -345,7 +457,7 @@ class CanvasView(QGraphicsView):
             self.message.emit(f"{design.blocks[target.block_id].name} takes no input")
             return
         try:
-            edit = edits.connect(design, Wire(src, src_port, target.block_id, port))
+            edit = edits.replace_wire(design, Wire(src, src_port, target.block_id, port))
         except edits.EditError as e:
             self.message.emit(str(e))
             return
@@ -355,7 +467,13 @@ class CanvasView(QGraphicsView):
     def keyPressEvent(self, event) -> None:
         key, mods = event.key(), event.modifiers()
         if key in (Qt.Key.Key_Delete, Qt.Key.Key_Backspace):
-            self.delete_selection()
+            self.delete_selection(bridge=not mods & Qt.KeyboardModifier.ShiftModifier)
+        elif key in (Qt.Key.Key_Return, Qt.Key.Key_Enter) and self.document.selection:
+            self.settings_wanted.emit()
+        elif key == Qt.Key.Key_I and mods & Qt.KeyboardModifier.ControlModifier:
+            self.wire_into_selection()
+        elif key in ARROWS and not mods & ~Qt.KeyboardModifier.KeypadModifier and self.document.graph.blocks:
+            self.step_selection(ARROWS[key])
         elif key == Qt.Key.Key_F2:
             self.rename_selected()
         elif key == Qt.Key.Key_Space and not event.isAutoRepeat():
@@ -406,16 +524,21 @@ class CanvasView(QGraphicsView):
             super().dragMoveEvent(event)
 
     def dropEvent(self, event) -> None:
+        """A part dropped on a wire goes on that wire; elsewhere it lands where it was dropped."""
         data = event.mimeData()
         if not self._ours(event):
             super().dropEvent(event)
             return
         event.acceptProposedAction()
-        spot = self.mapToScene(event.position().toPoint())
+        point = event.position().toPoint()
+        spot = self.mapToScene(point)
+        wire = self._wire_at(point)
         if data.hasFormat(MOTIF_MIME):
-            self.add_motif(bytes(data.data(MOTIF_MIME)).decode("utf-8"), spot)
+            choice = (KINDS["Motif"].name, {}, bytes(data.data(MOTIF_MIME)).decode("utf-8"))
         else:
-            self.add_kind(bytes(data.data(KIND_MIME)).decode("utf-8"), spot)
+            choice = (bytes(data.data(KIND_MIME)).decode("utf-8"), {}, "")
+        self.add_choice(*choice, spot, wire=wire, from_selection=True)
+        self.activateWindow()
 
     def _selected_source(self) -> tuple[str, int] | None:
         """The one selected block's first output, if exactly one block with an output is selected."""
@@ -423,33 +546,25 @@ class CanvasView(QGraphicsView):
         item = self.canvas_scene.blocks.get(sel[0]) if len(sel) == 1 else None
         return (item.block_id, 0) if item is not None and item.state.n_out else None
 
-    def add_kind(self, kind: str, centre: QPointF, source: tuple[str, int] | None = None,
-                 from_selection: bool = True, settings: dict | None = None, before: edits.Edit | None = None,
-                 name: str | None = None) -> str | None:
-        """Add a block of ``kind`` centred at scene point ``centre`` as one edit (after the operations
-        of ``before``, if given), wired from ``source`` (or from the one selected block when
-        ``from_selection``); selects it and returns its id."""
-        spec = KINDS.get(kind)
-        if spec is None:
-            self.message.emit(f"there is no block kind {kind!r}")
-            return None
-        takes_input = kind == "Motif" or spec.input_count(spec.defaults) > 0
-        if source is None and from_selection and takes_input:
-            source = self._selected_source()
-        design = self.document.design
-        edit, bid = edits.add_block(design, kind, settings or {}, graph=self.document.graph_key, name=name,
-                                    position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
-                                    inputs=[source] if source is not None and takes_input else ())
-        if before is not None:
-            edit = edits.Edit(before.label, before.ops + edit.ops)
-        if self.canvas_scene.apply(edit):
-            self.document.select([bid])
-            return bid
-        return None
+    def add_choice(self, kind: str, settings: dict, motif: str, spot: QPointF, *, source=None, wire: Wire | None = None,
+                   into: str | None = None, from_selection: bool = False) -> str | None:
+        """Add a block of ``kind`` (or, with ``motif`` ``library:<key>``/``design:<name>``, an instance
+        of that motif) centred at ``spot``: on ``wire`` when given (wired both sides), else wired from
+        ``source`` (or the selected block when ``from_selection``) and into block ``into``. One edit;
+        the new block is selected and shown, and the keys go back to the canvas."""
+        before, name = None, None
+        if motif:
+            found = self._motif_parts(motif)
+            if found is None:
+                return None
+            before, motif_name = found
+            settings, name = {"motif": motif_name, "repeat": 1}, self.document.graph.fresh_name(motif_name)
+        if wire is not None and wire in self.document.graph.wires:
+            return self._insert_on_wire(wire, kind, settings, spot, before, name)
+        return self.add_kind(kind, spot, source, from_selection, settings, before, name, into=into)
 
-    def add_motif(self, payload: str, centre: QPointF) -> str | None:
-        """Add an instance of a motif from Parts: ``library:<key>`` defines the library motif in the
-        design and adds an instance of it, as one edit; ``design:<name>`` adds an instance."""
+    def _motif_parts(self, payload: str):
+        """``(edit defining it or None, motif name)`` for a motif payload; None (with a message) if unknown."""
         source, _, name = payload.partition(":")
         design, before = self.document.design, None
         if source == "library" and name in BY_KEY:
@@ -461,39 +576,198 @@ class CanvasView(QGraphicsView):
         if name == self.document.graph_key:
             self.message.emit(f"motif {name} cannot contain itself")
             return None
-        return self.add_kind("Motif", centre, settings={"motif": name, "repeat": 1}, before=before,
-                             name=self.document.graph.fresh_name(name))
+        return before, name
 
-    def quick_add(self, text: str = "", at: QPoint | None = None, source: tuple[str, int] | None = None) -> None:
-        """Open Quick add at the cursor (or view point ``at``); the block chosen lands there, wired
-        from ``source`` or else from the one selected block (then placed to its right)."""
-        if at is None:
-            at = self.mapFromGlobal(QCursor.pos())
-            if not self.viewport().rect().contains(at):
-                at = self.viewport().rect().center()
-        self._quick_spot = self.mapToScene(at)
-        self._quick_source = source
-        self._quick.open_at(at.x(), at.y(), text)
+    def _insert_on_wire(self, wire: Wire, kind: str, settings: dict, spot: QPointF, before, name) -> str | None:
+        try:
+            edit = edits.insert_on_wire(self.document.design, wire, [(kind, settings)], self.document.graph_key,
+                                        position=(round(spot.x() - W / 2), round(spot.y() - H / 2)), name=name)
+        except (edits.EditError, SettingError) as e:
+            self.message.emit(str(e))
+            return None
+        if before is not None:
+            edit = edits.Edit(before.label, before.ops + edit.ops)
+        return self._added(edit, edits.added_blocks(edit)[-1])
 
-    def _quick_chosen(self, kind: str) -> None:
-        spot, source = self._quick_spot, self._quick_source
-        self._quick_source = None
-        if source is None:
+    def add_kind(self, kind: str, centre: QPointF, source: tuple[str, int] | None = None,
+                 from_selection: bool = True, settings: dict | None = None, before: edits.Edit | None = None,
+                 name: str | None = None, into: str | None = None) -> str | None:
+        """Add a block of ``kind`` centred at scene point ``centre`` as one edit (after the operations
+        of ``before``, if given), wired from ``source`` (or from the one selected block when
+        ``from_selection``) and into input 0 of block ``into``; selects it and returns its id."""
+        spec = KINDS.get(kind)
+        if spec is None:
+            self.message.emit(f"there is no block kind {kind!r}")
+            return None
+        takes_input = kind == "Motif" or spec.input_count(spec.defaults) > 0
+        if source is None and from_selection and takes_input:
             source = self._selected_source()
-            if source is not None:
-                item = self.canvas_scene.blocks[source[0]]
-                spot = item.pos() + QPointF(COLUMN + W / 2, H / 2)
-        self.add_kind(kind, spot, source, from_selection=False)
-        self.setFocus()
+        design = self.document.design
+        try:
+            edit, bid = edits.add_block(design, kind, settings or {}, graph=self.document.graph_key, name=name,
+                                        position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
+                                        inputs=[source] if source is not None and takes_input else ())
+        except (edits.EditError, SettingError) as e:
+            self.message.emit(str(e))
+            return None
+        if into is not None:
+            edit = edits.Edit(edit.label, edit.ops + (edits.AddWire(self.document.graph_key, Wire(bid, 0, into, 0)),))
+        if before is not None:
+            edit = edits.Edit(before.label, before.ops + edit.ops)
+        return self._added(edit, bid)
+
+    def _added(self, edit: edits.Edit, bid: str) -> str | None:
+        """Apply an edit that adds block ``bid``; select it, bring it into view, keys back to the canvas."""
+        if not self.canvas_scene.apply(edit):
+            return None
+        self.document.select([bid])
+        if bid in self.canvas_scene.blocks:
+            self.ensureVisible(self._card_item(bid).sceneBoundingRect(), 60, 40)
+        self._refocus()
+        return bid
+
+    def _refocus(self) -> None:
+        """Give the keys back to the canvas (after Quick add, a drop, Block settings)."""
+        if self.isVisible():
+            self.setFocus(Qt.FocusReason.OtherFocusReason)
+
+    def add_motif(self, payload: str, centre: QPointF) -> str | None:
+        """Add an instance of a motif from Parts: ``library:<key>`` defines the library motif in the
+        design and adds an instance of it, as one edit; ``design:<name>`` adds an instance."""
+        return self.add_choice("Motif", {}, payload, centre, from_selection=True)
+
+    # ----- Quick add
+    def _add_lines(self, text: str) -> list:
+        """Quick add's lines: kinds and motifs matching ``text`` (a motif cannot go inside itself)."""
+        own = [m for m in self.document.design.motifs if m != self.document.graph_key]
+        return [(c.label, c) for c in choices(text, own)]
+
+    def quick_add(self, text: str = "", at: QPoint | None = None, source: tuple[str, int] | None = None,
+                  wire: Wire | None = None, into: str | None = None) -> None:
+        """Open Quick add: on ``wire`` (the block chosen goes on it), at view point ``at`` (the block
+        lands there, wired from ``source``), or beside the one selected block (the block goes to its
+        right, wired from it); else at the cursor. ``into``: wire the new block into that block."""
+        if wire is None and at is None and source is None:
+            picked = [i.wire for i in self.canvas_scene.selectedItems() if isinstance(i, WireItem)]
+            wire = picked[0] if len(picked) == 1 and not self.document.selection else None
+        self._quick_source, self._quick_wire, self._quick_into = source, wire, into
+        picked = self.document.selection
+        sel = picked if len(picked) == 1 and at is None and wire is None and source is None else None
+        if wire is not None:
+            mid = self._wire_middle(wire)
+            self._quick_spot = mid
+            self._quick.open_at(self.mapFromScene(mid).x() + 12, self.mapFromScene(mid).y() + 12, text)
+        elif sel is not None:
+            card = self._card_item(sel[0])
+            self.ensureVisible(card.sceneBoundingRect(), 60, 40)  # scrolled away: bring it back first
+            self._quick_spot = card.pos() + QPointF(COLUMN + W / 2, H / 2)
+            self._quick.open_beside(self.mapFromScene(card.sceneBoundingRect()).boundingRect(), text)
+        else:
+            if at is None:
+                at = self.mapFromGlobal(QCursor.pos())
+                if not self.viewport().rect().contains(at):
+                    at = self.viewport().rect().center()
+            self._quick_spot = self.mapToScene(at)
+            self._quick.open_at(at.x(), at.y(), text)
+
+    def _wire_middle(self, wire: Wire) -> QPointF:
+        """The middle of a wire as drawn (a wire inside a folded card: between its two ends)."""
+        item = self.canvas_scene.wires.get(wire)
+        if item is not None:
+            return item._path.pointAtPercent(0.5)
+        a, b = self._card_item(wire.src), self._card_item(wire.dst)
+        return (a.sceneBoundingRect().center() + b.sceneBoundingRect().center()) / 2
+
+    def _quick_chosen(self, choice) -> None:
+        source, wire, into = self._quick_source, self._quick_wire, self._quick_into
+        self._quick_source = self._quick_wire = self._quick_into = None
+        from_selection = source is None and wire is None and into is None
+        self.add_choice(choice.kind, dict(choice.settings), choice.motif, self._quick_spot, source=source, wire=wire,
+                        into=into, from_selection=from_selection)
+
+    def insert_beside(self, block_id: str, before: bool) -> None:
+        """Quick add for a block before (on the wire into input 1) or after (on the first wire out)
+        ``block_id``; with no such wire, the new block is wired to it and placed beside it."""
+        graph = self.document.graph
+        wires = [w for w in (graph.in_wires if before else graph.out_wires)[block_id]
+                 if (w.dst_port if before else w.src_port) == 0]
+        if wires:
+            self.quick_add(wire=wires[0])
+            return
+        card = self._card_item(block_id)
+        spot = card.pos() + QPointF((-COLUMN if before else COLUMN) + W / 2, H / 2)
+        self.quick_add(at=self.mapFromScene(card.pos()), source=None if before else (block_id, 0),
+                       into=block_id if before else None)
+        self._quick_spot = spot  # the new card lands a column before or after, level with it
+
+    # ----- wiring from the keyboard
+    def _source_lines(self, text: str) -> list:
+        """Blocks that can feed the selected one (an output, and not downstream of it: no loops),
+        best match first, each with the shape it gives."""
+        graph, target = self.document.graph, self._wire_target()
+        downstream, todo = {target}, [target]
+        while todo:
+            for w in graph.out_wires.get(todo.pop(), ()):
+                if w.dst not in downstream:
+                    downstream.add(w.dst)
+                    todo.append(w.dst)
+        items = self.canvas_scene.blocks
+        blocks = [b for b in graph.blocks.values() if b.id not in downstream and items[b.id].state.n_out]
+        shown = rank(text, blocks, lambda b: ((b.name,),)) if text.strip() else blocks
+        return [(f"{b.name}   · {items[b.id].state.shape or items[b.id].state.detail}", b.id) for b in shown]
+
+    def _wire_target(self) -> str | None:
+        sel = self.document.selection
+        return sel[0] if len(sel) == 1 and sel[0] in self.canvas_scene.blocks else None
+
+    def wire_into_selection(self) -> None:
+        """Ask (by typing a name) which block to wire into the selected block's first free input
+        (its last input when all are taken: that wire is replaced)."""
+        target = self._wire_target()
+        if target is None or not self.canvas_scene.blocks[target].state.n_in:
+            self.message.emit("select one block that takes an input, then Ctrl+I to wire into it")
+            return
+        card = self._card_item(target)
+        self._wire_pick.open_beside(self.mapFromScene(card.sceneBoundingRect()).boundingRect())
+
+    def _wire_from(self, source: str) -> None:
+        target = self._wire_target()
+        if target is None or source not in self.document.graph.blocks:
+            return
+        graph, item = self.document.graph, self.canvas_scene.blocks[target]
+        taken = {w.dst_port for w in graph.in_wires[target]}
+        port = next((p for p in range(item.state.n_in) if p not in taken), item.state.n_in - 1)
+        try:
+            edit = edits.replace_wire(graph, Wire(source, 0, target, port))
+        except edits.EditError as e:
+            self.message.emit(str(e))
+            return
+        self.canvas_scene.apply(edit)
+        self._refocus()
 
     # ----- selection and edits
+    def step_selection(self, direction: str) -> None:
+        """Select the nearest block in ``direction`` (``left``, ``right``, ``up``, ``down``) from the one
+        selected, and bring it into view; with none selected, the first block."""
+        scene = self.canvas_scene
+        sel = [b for b in self.document.selection if b in scene.blocks]
+        if len(sel) != 1:
+            target = next(iter(self.document.graph.blocks))
+        else:  # from card to card; a chip moves as its card
+            centres = {bid: (i.pos().x(), i.pos().y()) for bid, i in scene.cards()}
+            target = neighbour(centres, scene.card_of(sel[0]), direction)
+        if target is not None:
+            self.document.select([target])
+            self.ensureVisible(self._card_item(target).sceneBoundingRect(), 60, 40)
+
     def select_all(self) -> None:
         self.document.select(list(self.document.graph.blocks))
 
-    def delete_selection(self) -> None:
-        """Delete the selected blocks (with their wires) and the selected wires, as one edit."""
+    def delete_selection(self, bridge: bool = True) -> None:
+        """Delete the selected blocks (with their wires) and the selected wires, as one edit. With
+        ``bridge``, what fed a removed one-in, one-out block is wired on to what it fed."""
         design = self.document.graph
-        ids = [i.block_id for i in self.canvas_scene.selectedItems() if isinstance(i, BlockItem)]
+        ids = [b for b in self.document.selection if b in design.blocks]  # cards and chips
         gone = set(ids)
         wires = [i.wire for i in self.canvas_scene.selectedItems()
                  if isinstance(i, WireItem) and i.wire.src not in gone and i.wire.dst not in gone]
@@ -501,12 +775,17 @@ class CanvasView(QGraphicsView):
             return
         ops = tuple(op for w in wires for op in edits.disconnect(design, w).ops)
         if ids:
-            edit = edits.remove_blocks(design, ids)
+            remove = edits.remove_bridging if bridge else (lambda d, b, graph: edits.remove_blocks(d.graph(graph), b))
+            edit = remove(self.document.design, ids, graph=self.document.graph_key)
             label = edit.label
             ops += edit.ops
         else:
             label = "Remove wire" if len(wires) == 1 else "Remove wires"
         self.canvas_scene.apply(edits.Edit(label, ops))
+
+    def remove_wire(self, wire: Wire) -> None:
+        if wire in self.document.graph.wires:
+            self.canvas_scene.apply(edits.disconnect(self.document.graph, wire))
 
     def copy(self) -> dict | None:
         """Copy the selected blocks and the wires among them to the clipboard as JSON text."""
@@ -540,22 +819,44 @@ class CanvasView(QGraphicsView):
         if ids and self.canvas_scene.apply(edit):
             self.document.select(ids)
 
+    def tidy_layout(self, fold: bool | None = None):
+        """The stage-row layout of the graph shown, with its shapes, for this view's size."""
+        results = self.document.results()
+        shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
+        size = self.viewport().size()
+        return tidy_layout(self.document.graph, shapes, self.canvas_scene.fold if fold is None else fold,
+                           (float(size.width()), float(size.height())))
+
     def tidy(self) -> None:
-        """Lay the graph shown out left → right with Tidy, as one undoable edit, and show it all."""
+        """Lay the graph shown out in stage rows with Tidy, as one undoable edit, and show it all."""
         design = self.document.graph
-        changed = {b: p for b, p in tidy_positions(design).items() if tuple(design.blocks[b].position) != p}
+        changed = {b: p for b, p in self.tidy_layout().positions.items() if tuple(design.blocks[b].position) != p}
         if changed:
             self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
         self.fit_all()
+
+    def set_fold(self, on: bool) -> None:
+        """Fold norms and activations into their convolution's card (on) or show each as a card. A
+        design laid out by Tidy is tidied again for the new look (one undoable edit)."""
+        scene = self.canvas_scene
+        if on == scene.fold:
+            return
+        graph = self.document.graph
+        was_tidy = all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(scene.fold).positions.items())
+        scene.set_fold(on)
+        if was_tidy:
+            self.tidy()
 
     def rename_selected(self) -> None:
         sel = self.document.selection
         if len(sel) == 1 and sel[0] in self.canvas_scene.blocks:
             self._start_rename(self.canvas_scene.blocks[sel[0]])
 
-    def _start_rename(self, item: BlockItem) -> None:
+    def _start_rename(self, item) -> None:
+        """Edit the name in place: over a card's title, or over a chip."""
         self.ensureVisible(item.sceneBoundingRect(), 20, 20)
-        rect = self.mapFromScene(item.mapToScene(item.title_rect())).boundingRect()
+        local = item.title_rect() if isinstance(item, BlockItem) else item.boundingRect()
+        rect = self.mapFromScene(item.mapToScene(local)).boundingRect()
         rect.setHeight(max(rect.height(), self._names.sizeHint().height()))
         rect.setWidth(max(rect.width(), 120))
         font = QFont(block_font("title"))

@@ -1,4 +1,6 @@
-"""A wire on the canvas: a left → right curve whose stroke width grows with the channel count.
+"""A wire on the canvas: a left → right curve whose stroke width grows with the channel count, or,
+when cards stand in the way, a route around them (corner points from :mod:`layerloom.core.wire_route`)
+drawn with rounded corners.
 
 The path, its padded bounding rect and the label's place are computed in
 :meth:`WireItem.set_geometry` (after ``prepareGeometryChange()``), the stroked hit shape on the
@@ -36,6 +38,22 @@ def curve(a: QPointF, b: QPointF) -> QPainterPath:
     return p
 
 
+CORNER = 10.0  # radius of a routed wire's rounded corners
+
+
+def routed(points) -> QPainterPath:
+    """A path through corner ``points`` (each turn rounded)."""
+    pts = [QPointF(x, y) for x, y in points]
+    p = QPainterPath(pts[0])
+    for prev, corner, nxt in zip(pts, pts[1:], pts[2:]):
+        into, out = QLineF(corner, prev), QLineF(corner, nxt)
+        r_in, r_out = min(CORNER, into.length() / 2), min(CORNER, out.length() / 2)
+        p.lineTo(into.pointAt(r_in / into.length()) if into.length() else corner)
+        p.quadTo(corner, out.pointAt(r_out / out.length()) if out.length() else corner)
+    p.lineTo(pts[-1])
+    return p
+
+
 class WireItem(QGraphicsItem):
     """One wire; lives in scene coordinates (its own position stays at the origin)."""
 
@@ -47,22 +65,27 @@ class WireItem(QGraphicsItem):
         self.width = theme.WIRE_MIN_WIDTH
         self.known = False
         self._path = QPainterPath()
-        self._chord = QLineF()
+        self._lines: list[QLineF] = []
         self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
         self._label_rect = QRectF()
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
-    def set_geometry(self, a: QPointF, b: QPointF) -> None:
-        """Route the wire from ``a`` to ``b``; width and label follow :attr:`carried`."""
+    def set_geometry(self, a: QPointF, b: QPointF, points=None) -> None:
+        """Draw the wire from ``a`` to ``b`` as a curve, or through corner ``points`` when given;
+        width and label follow :attr:`carried`."""
         shape = self.carried
         self.prepareGeometryChange()
         self.known = shape is not None
         self.label = str(shape) if shape is not None else ""
         self.width = stroke_width(shape[0] if shape is not None else None)
-        self._path = curve(a, b)
-        self._chord = QLineF(a, b)
+        if points:
+            self._path = routed(points)
+            self._lines = [QLineF(*p, *q) for p, q in zip(points, points[1:])]
+        else:
+            self._path = curve(a, b)
+            self._lines = [QLineF(a, b)]
         self._hit = None  # stroked on first use (hit tests), then kept until the path changes
         bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
         if self.label:
@@ -76,9 +99,9 @@ class WireItem(QGraphicsItem):
         self._bounds = bounds
 
     @property
-    def chord(self) -> QLineF:
-        """The straight line between the wire's ends (what is drawn far out)."""
-        return self._chord
+    def lines(self) -> list[QLineF]:
+        """Straight lines along the wire (what is drawn far out): its chord, or its route's legs."""
+        return self._lines
 
     def boundingRect(self) -> QRectF:
         return self._bounds
@@ -94,7 +117,7 @@ class WireItem(QGraphicsItem):
         lod = option.levelOfDetailFromTransform(painter.worldTransform())
         if lod < theme.SHAPE_MIN_DETAIL:  # far out: a hairline between the ends
             painter.setPen(theme.WIRE)
-            painter.drawLine(self._chord)
+            painter.drawLines(self._lines)
             return
         selected = bool(option.state & SELECTED)
         colour = theme.ACCENT if selected else (theme.WIRE if self.known else theme.WIRE_UNKNOWN)

@@ -1,0 +1,75 @@
+"""Open a design file and analyse it: read, parse, schema check, build, full shape + cost pass and
+the ledger totals, against PyTorch building the same network on the meta device and running it
+under FlopCounterMode (the way to get the same numbers from torch itself).
+
+Target (PRODUCT.md): open + full pass ≥ 100× faster than torch's pass, reading and validating the
+file counted. Prints each phase, so a slow one shows. Figures of one run on a shared machine are
+noisy: compare the ratio, and the yardstick printed first.
+
+Run: PYTHONPATH=src:benchmarks python benchmarks/open_speed.py
+"""
+from __future__ import annotations
+
+import json
+import tempfile
+import time
+from pathlib import Path
+
+from core_speed import machine_speed, torch_pass
+from synthetic import residual_stack
+
+from layerloom.core import fileformat, schema_check
+from layerloom.core.ledger import Ledger
+
+REPEAT = 15
+
+
+def phases(path: Path) -> dict[str, float]:
+    """Milliseconds of each phase of one open + pass (best of ``REPEAT`` for each)."""
+    best: dict[str, float] = {}
+    for _ in range(REPEAT):
+        t0 = time.perf_counter()
+        text = path.read_bytes().decode("utf-8")
+        data = json.loads(text)
+        t1 = time.perf_counter()
+        schema_check.first_error(data)
+        t2 = time.perf_counter()
+        design = fileformat._build(data)
+        t3 = time.perf_counter()
+        Ledger(design.analysis()).totals
+        t4 = time.perf_counter()
+        for name, ms in (("read + JSON", t1 - t0), ("schema", t2 - t1), ("build", t3 - t2), ("pass + ledger", t4 - t3)):
+            best[name] = min(best.get(name, 1e9), ms * 1000)
+    return best
+
+
+def open_and_pass(path: Path) -> float:
+    """Milliseconds of ``load`` + a full pass + ledger totals, as a user's open does (best of ``REPEAT``)."""
+    times = []
+    for _ in range(REPEAT):
+        t = time.perf_counter()
+        Ledger(fileformat.load(path).analysis()).totals
+        times.append(time.perf_counter() - t)
+    return min(times) * 1000
+
+
+def main() -> None:
+    print(f"this machine: an empty million-step Python loop takes {machine_speed():.0f} ms "
+          "(a recent laptop: about 15 ms)")
+    with tempfile.TemporaryDirectory() as folder:
+        for n in (500, 2000):
+            design = residual_stack(n)
+            path = Path(folder) / f"synthetic-{n}.loom"
+            fileformat.save(design, path)
+            fileformat.load(path)  # warm: the schema is compiled once per process
+            ours = open_and_pass(path)
+            split = phases(path)
+            theirs = torch_pass(design)
+            print(f"  {len(design.blocks):5d} blocks ({path.stat().st_size // 1024} KiB): open + pass + ledger "
+                  f"{ours:6.2f} ms   torch {theirs:8.1f} ms   ratio {theirs / ours:5.0f}× (target ≥ 100×)")
+            print("        " + "   ".join(f"{k} {v:.2f}" for k, v in split.items()) + " (ms, each best of "
+                  f"{REPEAT})")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,118 @@
+"""Wire routes around cards: a wire goes straight (the canvas draws a curve) when no other card
+stands between its ends; otherwise it leaves its notch, turns onto a free lane above or below the
+cards in the way (for a wire back to the left, such as a row's return wire, the lane between two
+rows), runs along it and turns down or up into the destination's notch. Scene pixels, no Qt.
+
+>>> cards = Obstacles({"a": (0, 0, 100, 50), "mid": (150, 0, 250, 50), "b": (300, 0, 400, 50)})
+>>> route((101, 25), (299, 25), cards, ("a", "b"))
+((101, 25), (117.0, 25), (117.0, -14.0), (283.0, -14.0), (283.0, 25), (299, 25))
+>>> route((101, 25), (149, 25), cards, ("a", "mid")) is None   # nothing between: straight
+True
+"""
+from __future__ import annotations
+
+from collections import defaultdict
+
+STUB = 16.0  # a routed wire runs this far straight out of (and into) its notch before it turns
+CLEAR = 14.0  # room kept between a lane and a card's edge
+BUCKET = 256.0  # width of the vertical strips the obstacle index sorts cards into
+
+Rect = tuple  # (left, top, right, bottom)
+Point = tuple  # (x, y)
+
+
+class Obstacles:
+    """Card rectangles by key, indexed by vertical strips so a route looks only at nearby cards."""
+
+    def __init__(self, rects: dict | None = None):
+        self.rects: dict = {}
+        self._strips: dict[int, set] = defaultdict(set)
+        for key, rect in (rects or {}).items():
+            self.put(key, rect)
+
+    def _span(self, rect: Rect) -> range:
+        return range(int(rect[0] // BUCKET), int(rect[2] // BUCKET) + 1)
+
+    def put(self, key, rect: Rect) -> None:
+        """Add or move card ``key`` to ``rect``."""
+        old = self.rects.get(key)
+        if old is not None:
+            for i in self._span(old):
+                self._strips[i].discard(key)
+        self.rects[key] = rect
+        for i in self._span(rect):
+            self._strips[i].add(key)
+
+    def drop(self, key) -> None:
+        old = self.rects.pop(key, None)
+        if old is not None:
+            for i in self._span(old):
+                self._strips[i].discard(key)
+
+    def between(self, left: float, right: float, skip=()) -> list[Rect]:
+        """Rectangles reaching into the strip ``left`` ≤ x ≤ ``right`` (except the keys in ``skip``)."""
+        keys = set()
+        for i in range(int(left // BUCKET), int(right // BUCKET) + 1):
+            keys |= self._strips.get(i, set())
+        rects = self.rects
+        return [r for k in keys if k not in skip for r in (rects[k],) if r[0] < right and r[2] > left]
+
+
+def _crosses_h(rects, y: float, left: float, right: float) -> bool:
+    """Whether a horizontal lane at ``y`` from ``left`` to ``right`` comes within CLEAR of a card."""
+    c = CLEAR - 0.5
+    return any(r[0] - c < right and r[2] + c > left and r[1] - c < y < r[3] + c for r in rects)
+
+
+def _crosses_v(rects, x: float, y0: float, y1: float) -> bool:
+    """Whether a vertical run at ``x`` between ``y0`` and ``y1`` touches a card."""
+    top, bottom = min(y0, y1), max(y0, y1)
+    return any(r[0] - 2.0 < x < r[2] + 2.0 and r[1] < bottom and r[3] > top for r in rects)
+
+
+def route(a: Point, b: Point, obstacles: Obstacles, ends=()) -> tuple | None:
+    """Corner points of a wire from output point ``a`` to input point ``b``, or None when it may go
+    straight; ``ends`` are the keys of the two cards it joins (never obstacles to it)."""
+    ax, ay = a
+    bx, by = b
+    forward = bx - ax > 2 * STUB
+    x0, x1 = ax + STUB, bx - STUB
+    lo, hi = min(x0, x1), max(x0, x1)
+    near = obstacles.between(lo - CLEAR, hi + CLEAR, ends)
+    if forward:
+        top, bottom = min(ay, by) - 4.0, max(ay, by) + 4.0
+        if not any(r[0] < bx and r[2] > ax and r[1] < bottom and r[3] > top for r in near):
+            return None
+    target = ay if forward else (ay + by) / 2
+    lanes = sorted({y for r in near for y in (r[1] - CLEAR, r[3] + CLEAR)} | {target},
+                   key=lambda y: (abs(y - target), y))
+    first = None
+    for y in lanes:
+        if _crosses_h(near, y, lo, hi):
+            continue
+        if first is None:
+            first = y
+        if not _crosses_v(near, x0, ay, y) and not _crosses_v(near, x1, y, by):
+            first = y
+            break
+    y = first if first is not None else min((r[1] for r in near), default=ay) - CLEAR
+    return ((ax, ay), (x0, ay), (x0, y), (x1, y), (x1, by), (bx, by))
+
+
+def polyline_crosses(points, rect: Rect) -> bool:
+    """Whether the polyline through ``points`` passes through the inside of ``rect`` (for tests and
+    checks: a route may touch a card's edge where it enters its notch, never cross it)."""
+    left, top, right, bottom = rect
+    for (xa, ya), (xb, yb) in zip(points, points[1:]):
+        if ya == yb:
+            if top < ya < bottom and min(xa, xb) < right and max(xa, xb) > left:
+                return True
+        elif xa == xb:
+            if left < xa < right and min(ya, yb) < bottom and max(ya, yb) > top:
+                return True
+        else:  # a straight segment: sample it
+            for i in range(1, 32):
+                x, y = xa + (xb - xa) * i / 32, ya + (yb - ya) * i / 32
+                if left < x < right and top < y < bottom:
+                    return True
+    return False

@@ -1,0 +1,110 @@
+"""Stage summaries: far out, where cards can no longer show their name and output shape, the view
+labels each stage row at a readable size: its name, its output shape and its share of the MACs
+("stage 3 · 512×28×28 · 22 % MACs"), just above the top-left card of the stage.
+
+Labels are drawn in viewport pixels (they keep their size whatever the zoom); :func:`labels` gives
+their text and on-screen rectangles, which is what the view paints and what tests measure.
+"""
+from __future__ import annotations
+
+from typing import NamedTuple
+
+from PySide6.QtCore import QRectF, Qt
+from PySide6.QtGui import QFont, QFontMetricsF
+
+from layerloom.gui import theme
+from layerloom.gui.canvas.block_item import H, W, sized_font
+
+LABEL_PX = 12  # em size of a stage label, viewport pixels
+PAD = 4.0  # room around a label's text inside its plate
+LIFT = 3.0  # a label's plate ends this far above its stage's top card
+
+
+class StageLabel(NamedTuple):
+    text: str
+    rect: QRectF  # viewport pixels
+    pixels: int  # em size of the text, viewport pixels
+
+
+def label_font() -> QFont:
+    """The labels' font (shared: do not modify)."""
+    return sized_font("title", LABEL_PX)
+
+
+def stage_texts(scene) -> list[tuple[str, QRectF]]:
+    """``(text, scene rectangle of the stage's cards)`` per stage of the graph shown."""
+    results = scene.document.results()
+    total = scene.total_macs()
+    out = []
+    number = 0
+    for key, cards in scene.stages():
+        items = [scene.blocks[c] for c in cards if c in scene.blocks]
+        if not items:
+            continue
+        if all(i.state.kind == "Input" for i in items):
+            name = "input"
+        elif key == "point":
+            name = "head"
+        else:
+            number += 1
+            name = f"stage {number}"
+        members = [*cards, *(chip for c in cards for chip in scene.chips_of(c))]
+        macs = sum(results[b].cost.macs for b in members if results.get(b) is not None)
+        share = f"{100 * macs / total:.0f} % MACs" if total else "no MACs"
+        handed = _stage_output(scene, results, set(cards), (scene.chips_of(cards[-1]) or cards)[-1])
+        shape = str(handed) if handed is not None else "shape unknown"
+        left = min(i.pos().x() for i in items)
+        top = min(i.pos().y() for i in items)
+        right = max(i.pos().x() for i in items) + W
+        bottom = max(i.pos().y() for i in items) + H
+        out.append((f"{name} · {shape} · {share}", QRectF(left, top, right - left, bottom - top)))
+    return out
+
+
+def _stage_output(scene, results, cards: set, last: str):
+    """What a stage hands on: the largest tensor on a wire leaving it (a ResNet stage hands on its
+    last unit's output, not the narrower 1×1 that opens the next stage), else its last block's output."""
+    best = None
+    for w in scene.graph.wires:
+        if scene.card_of(w.src) in cards and scene.card_of(w.dst) not in cards:
+            r = results.get(w.src)
+            shape = r.outs[w.src_port] if r is not None and w.src_port < len(r.outs) else None
+            if shape is not None and (best is None or shape.elements > best.elements):
+                best = shape
+    if best is None:
+        r = results.get(last)
+        best = r.outs[0] if r is not None and r.outs else None
+    return best
+
+
+def labels(view) -> list[StageLabel]:
+    """Each stage's label as the view draws it now (viewport pixels)."""
+    fm = QFontMetricsF(label_font())
+    out = []
+    for text, rect in stage_texts(view.canvas_scene):
+        corner = view.mapFromScene(rect.topLeft())
+        w, h = fm.horizontalAdvance(text) + 2 * PAD, fm.height() + PAD
+        out.append(StageLabel(text, QRectF(corner.x(), corner.y() - LIFT - h, w, h), LABEL_PX))
+    return out
+
+
+def draw(painter, view) -> None:
+    """Paint every stage label over the view (called from its foreground, in scene coordinates)."""
+    found = labels(view)
+    if not found:
+        return
+    painter.save()
+    painter.resetTransform()
+    painter.setFont(label_font())
+    for label in found:
+        painter.setPen(Qt.PenStyle.NoPen)
+        painter.setBrush(theme.LABEL_BACK)
+        painter.drawRoundedRect(label.rect, 3.0, 3.0)
+        painter.setPen(theme.TEXT)
+        painter.drawText(label.rect.adjusted(PAD, 0, 0, 0), Qt.AlignmentFlag.AlignVCenter, label.text)
+    painter.restore()
+
+
+def top_room() -> float:
+    """Viewport pixels a label needs above its stage's cards (fit to view keeps them in sight)."""
+    return QFontMetricsF(label_font()).height() + PAD + LIFT + 2.0

@@ -1,0 +1,48 @@
+"""Import contract: ``layerloom check`` on a valid file imports neither numpy (only the ledger and
+the commands that use it need it) nor jsonschema (only a broken file needs its words), and reading
+a design and its whole pass import no numpy, since a process's start-up is most of the time of a
+check. Checked in a fresh interpreter."""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+SAMPLE = Path(__file__).resolve().parents[1] / "samples" / "fastener_sorter.loom"
+
+
+def _run(code: str) -> subprocess.CompletedProcess:
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys.path if p)}
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
+
+
+def test_check_of_a_valid_file_imports_no_numpy_nor_jsonschema():
+    done = _run("import sys; from layerloom.cli import main; "
+                f"code = main(['check', {str(SAMPLE)!r}]); "
+                "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('numpy', 'jsonschema')); "
+                "assert code == 0 and not heavy, (code, heavy)")
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert "well formed" in done.stdout
+
+
+def test_loading_and_finding_import_no_numpy():
+    """Reading a file, the whole pass and the findings are plain Python; numpy comes with the Ledger."""
+    done = _run("import sys, layerloom; "
+                f"d = layerloom.load({str(SAMPLE)!r}); found = d.findings(); "
+                "assert d.analysis().live_profile() and 'numpy' not in sys.modules, sorted(sys.modules)")
+    assert done.returncode == 0, done.stderr[-2000:]
+
+
+def test_ledger_still_comes_from_the_package():
+    done = _run("import sys, layerloom; assert 'numpy' not in sys.modules; "
+                "from layerloom import Ledger; assert 'numpy' in sys.modules and Ledger.__name__ == 'Ledger'")
+    assert done.returncode == 0, done.stderr[-2000:]
+
+
+def test_a_broken_file_still_gets_jsonschemas_words(tmp_path):
+    broken = tmp_path / "broken.loom"
+    broken.write_text(SAMPLE.read_text(encoding="utf-8").replace('"batch": 1', '"batch": "one"', 1), encoding="utf-8")
+    done = _run(f"from layerloom.cli import main; raise SystemExit(main(['check', {str(broken)!r}]))")
+    assert done.returncode == 2
+    assert "batch: 'one' is not of type 'integer'" in done.stderr
