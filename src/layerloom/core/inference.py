@@ -171,8 +171,9 @@ class GraphInference:
         another is a loop; a walk through each member is named, in linear time)."""
         g = self.graph
         members = set(stuck)
-        succ = {b: [w.dst for w in g.out_wires[b] if w.dst in members] for b in stuck}
-        pred = {b: [w.src for w in g.in_wires[b] if w.src in members] for b in stuck}
+        rank = {b: i for i, b in enumerate(stuck)}  # wires in block order, not in the order they were drawn
+        succ = {b: sorted({w.dst for w in g.out_wires[b] if w.dst in members}, key=rank.__getitem__) for b in stuck}
+        pred = {b: sorted({w.src for w in g.in_wires[b] if w.src in members}, key=rank.__getitem__) for b in stuck}
         found = []
         for group in _strong_groups(stuck, succ):
             root = group[0]
@@ -212,9 +213,19 @@ class GraphInference:
         found: list[Finding] = []
         old = self.results.get(bid)
         result = None
-        if bid in self.stuck:
+        if bid in self.stuck:  # no shapes on a loop, but its wiring faults are still named
             self.results[bid] = None
-            self.findings.pop(bid, None)
+            try:
+                s = self.resolved_settings(blk) if self.params is not None else s
+                motif = self._motif(blk) if kind_name == "Motif" else None
+                self._gather(blk, len(motif.ports()[0]) if motif is not None else kind.input_count(s),
+                             g.in_wires[bid], found)
+            except Stop:
+                pass
+            if found:
+                self.findings[bid] = found
+            else:
+                self.findings.pop(bid, None)
             return old is not None
         try:
             if self.params is not None:
