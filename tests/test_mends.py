@@ -269,3 +269,27 @@ def test_a_block_on_a_loop_still_names_its_wiring_faults_and_loop_names_follow_b
         assert sum(f.severity == "error" for f in d.findings()) <= errors, m.label
         d.apply(undo)
     assert d.findings() == parse(dumps(d)).findings()
+
+
+def test_findings_and_loop_mends_do_not_depend_on_the_order_wires_were_drawn():
+    """Two wires to inputs a Sigmoid does not have, drawn port 3 first: listed by port, as after a
+    reload. A loop through an Input, an Add and an Output: the loop mend removes no wire whose
+    removal would leave more errors than the loop hid."""
+    from layerloom.core.fileformat import parse
+
+    d = Design()
+    x = d.input(3, 8, 8)
+    g = d.add("Sigmoid", x)
+    d.add("Output", g)
+    d.connect(x, g, 2)
+    d.connect(x, g, 1)
+    assert d.findings() == parse(dumps(d)).findings()
+    a = d.add("Add", x, g)
+    out = d.add("Output", a)
+    d.connect(out, x, 0)
+    errors = sum(f.severity == "error" for f in d.findings())
+    for f in [f for f in d.findings() if f.code == "graph.cycle"]:
+        for m in mends_for(d, f):
+            undo = d.apply(m.edit)
+            assert sum(f.severity == "error" for f in d.findings()) <= errors, m.label
+            d.apply(undo)

@@ -284,7 +284,7 @@ class GraphInference:
     def _gather(self, blk, n_in, wires, found):
         """Input shapes of a block with several ports (or odd wiring); None if any is unknown."""
         by_port: list[list] = [[] for _ in range(n_in)]
-        for w in wires:
+        for w in sorted(wires, key=lambda w: (w.dst_port, w.src, w.src_port)):  # not in the order drawn
             if w.dst_port < n_in:
                 by_port[w.dst_port].append(w)
             else:
