@@ -141,3 +141,19 @@ def test_a_file_without_positions_opens_laid_out_in_stage_rows(tmp_path):
     kept = load(SAMPLES[0])  # a file with positions keeps them
     saved = json.loads(SAMPLES[0].read_text())["blocks"]
     assert [tuple(b["position"]) for b in saved] == [tuple(b.position) for b in kept.blocks.values()]
+
+
+def test_the_branches_of_a_multi_branch_unit_stack_above_and_below_the_main_line_in_one_row():
+    d = Design("branches")
+    x = d.add("Conv2d", d.input(16, 32, 32), out_channels=32, kernel=3, padding=1)
+    a = d.add("Pointwise", x, out_channels=8)
+    b = d.add("Conv2d", d.add("Pointwise", x, out_channels=8), out_channels=8, kernel=3, padding=1)
+    c = d.add("Pointwise", d.add("MaxPool2d", x, kernel=3, stride=1, padding=1), out_channels=8)
+    join = d.add("Concat", a, b, c)
+    d.add("Output", join)
+    lay = tidy_layout(d, fold=False, view=(2400.0, 700.0))  # wide enough for one line
+    row = next(r for r in lay.rows if join in r.cards)
+    assert {a, b, c, x} <= set(row.cards) and len(lay.rows) == 1  # every branch keeps the stage's 32×32
+    main_y = lay.positions[join][1]
+    assert lay.positions[x][1] == lay.positions[b][1] == main_y  # the longest branch is the main line
+    assert lay.positions[a][1] < main_y < lay.positions[c][1]  # the others above and below it

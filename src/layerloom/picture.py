@@ -80,6 +80,7 @@ def draw_picture(design, out: str | Path, size=(1280, 800), tidy: bool = False, 
         painter = QPainter()
         ok = painter.begin(gen)
         if ok:
+            view.canvas_scene.set_caching(False)  # shapes and text in the SVG, not bitmaps of cards
             view.render(painter)
             ok = painter.end()
     view.close()

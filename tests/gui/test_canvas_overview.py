@@ -25,18 +25,24 @@ def long_chain(n: int = 60) -> tuple[Design, list[str]]:
     return d, ids
 
 
-def colours(view) -> dict:
-    _, groups = view.canvas_scene.overview_shapes()
-    return {c.name(): rects for c, rects in groups}
-
-
-def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
+def chain_view(qtbot):
+    """The long chain in a shown 900×500 canvas: (design, block ids, document, view)."""
     d, ids = long_chain()
     doc = Document(d)
     view = CanvasView(doc)
     qtbot.addWidget(view)
     view.resize(900, 500)
     view.show()
+    return d, ids, doc, view
+
+
+def colours(view) -> dict:
+    _, groups = view.canvas_scene.overview_shapes()
+    return {c.name(): rects for c, rects in groups}
+
+
+def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
+    d, ids, doc, view = chain_view(qtbot)
     scene = view.canvas_scene
     view.resetTransform()
     assert not scene.overview
@@ -62,4 +68,33 @@ def test_far_out_items_stop_painting_and_the_view_draws_them(qtbot):
     assert not scene.overview and not any(item.flags() & NO_CONTENTS for item in scene.items())
     # qtbot keeps only a weak reference: close the view before this test's last reference to it goes,
     # so no paint is pending when the garbage collector frees it
+    view.close()
+
+
+def test_far_out_a_dragged_card_is_drawn_live_over_the_still_picture(qtbot):
+    d, ids, doc, view = chain_view(qtbot)
+    view.fit_all()
+    scene = view.canvas_scene
+    assert scene.overview
+    view.viewport().repaint()
+    still = scene.overview_revision
+    item = scene.blocks[ids[20]]
+    item.setPos(item.pos() + QPointF(0, 300))
+    scene.flush_wires()
+    assert scene.moving == {ids[20]} and scene.overview_revision == still + 1  # the still part drops it once
+    for step in range(3):  # further drag steps leave the still picture alone
+        item.setPos(item.pos() + QPointF(10, 0))
+        scene.flush_wires()
+    assert scene.overview_revision == still + 1
+    live_lines, live_rects = scene.overview_shapes(moving=True)
+    attached = [w for w in scene.wires if ids[20] in (w.src, w.dst)]
+    assert len(attached) == 2 and len(live_lines) == sum(len(scene.wires[w].lines) for w in attached)
+    assert [len(r) for _, r in live_rects if r] == [1]  # itself and its two wires
+    still_lines, _ = scene.overview_shapes(moving=False)
+    assert len(still_lines) + len(live_lines) == len(scene.overview_shapes()[0])
+    doc.apply(edits.move(d, {ids[20]: (item.pos().x(), item.pos().y())}))  # the drop, as one edit
+    assert not scene.moving
+    # an edit that moves cards (an undo, Tidy) leaves none of them drawn live
+    doc.apply(edits.move(d, {b: (x + 5, y) for b, (x, y) in ((b, d.blocks[b].position) for b in ids)}))
+    assert not scene.moving
     view.close()

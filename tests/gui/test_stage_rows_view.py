@@ -4,11 +4,11 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
-from PySide6.QtCore import QRectF, Qt
+from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtTest import QTest
 
 from layerloom import Design
-from layerloom.core import fileformat
+from layerloom.core import edits, fileformat
 from layerloom.core.wire_route import polyline_crosses
 from layerloom.gui.canvas import stage_summary
 from layerloom.gui.canvas.badge_item import BadgeItem
@@ -118,17 +118,29 @@ def folded_design():
     return d, c, bn, act, f, bad
 
 
-def test_chips_sit_inside_their_card_select_their_block_and_carry_their_findings(qtbot, tmp_path):
-    d, c, bn, act, f, bad = folded_design()
+def folded_window(qtbot, tmp_path):
+    """A 1280×800 window on :func:`folded_design`, tidied: (window, canvas, document, its design,
+    the ids of conv, bn, act, fc and the faulty bn)."""
+    d, *ids = folded_design()
     window = window_on(qtbot, tmp_path, d)
-    canvas, scene, doc = window.canvas, window.canvas.canvas_scene, window.document
-    d = doc.design
+    return window, window.canvas, window.document, window.document.design, ids
+
+
+def test_chips_sit_inside_their_card_select_their_block_and_carry_their_findings(qtbot, tmp_path):
+    window, canvas, doc, d, (c, bn, act, f, bad) = folded_window(qtbot, tmp_path)
+    scene = canvas.canvas_scene
     assert isinstance(scene.blocks[bn], ChipItem) and isinstance(scene.blocks[act], ChipItem)
     card = scene.blocks[c]
     assert card.state.chips == ("BN", "ReLU6") and [i.block_id for i in card.chip_items] == [bn, act]
     for chip in card.chip_items:  # inside the card
         assert card.sceneBoundingRect().contains(chip.sceneBoundingRect())
     assert card.state.shape == "16×16×16"  # the card's output is its last chip's (Conv2d size formula)
+    before = {b: d.blocks[b].position for b in (c, bn, act)}
+    doc.select([c])
+    card.setPos(card.pos() + QPointF(0, 500))  # dragged: its chips go with it, in the design too
+    canvas._commit_moves()
+    assert all(d.blocks[b].position == (x, y + 500) for b, (x, y) in before.items())
+    doc.undo_stack.undo()
     press(qtbot, window, "actual_size")
     canvas.centerOn(card)
     chip = scene.blocks[act]
@@ -168,3 +180,33 @@ def test_zoom_to_selection_and_the_zoom_readout(qtbot, tmp_path):
     assert window.zoom_label.text() == "100 %"
     window.close()
 
+
+def test_a_selected_chip_is_renamed_deleted_and_chained_from_like_a_block(qtbot, tmp_path):
+    window, canvas, doc, d, (c, bn, act, f, bad) = folded_window(qtbot, tmp_path)
+    doc.select([act])
+    canvas.rename_selected()  # F2 on a chip edits its name over the chip
+    assert canvas._names.isVisible()
+    canvas._names.hide()
+    canvas.setFocus()
+    QTest.keyClicks(canvas, "dropout")  # Quick add from a chip: wired from it, placed right of its card
+    QTest.keyClick(canvas._quick.edit, Qt.Key.Key_Return)
+    (drop,) = [b.id for b in d.blocks.values() if b.kind == "Dropout"]
+    assert any(w.src == act and w.dst == drop for w in d.wires)
+    assert d.blocks[drop].position[0] > d.blocks[c].position[0] + W
+    doc.select([bn])
+    canvas.setFocus()
+    steps = doc.undo_stack.count()
+    QTest.keyClick(canvas, Qt.Key.Key_Delete)
+    assert bn not in d.blocks and doc.undo_stack.count() == steps + 1
+    window.close()
+
+
+def test_unfolding_blocks_that_share_their_cards_place_gives_them_places(qtbot, tmp_path):
+    window, canvas, doc, d, (c, bn, act, f, bad) = folded_window(qtbot, tmp_path)
+    x, y = d.blocks[c].position
+    moved = (x + 37, y + 11)  # the user moved the card (no longer Tidy's layout); its chips share its place
+    doc.apply(edits.move(d, {c: moved, bn: moved, act: moved}))
+    canvas.set_fold(False)
+    places = [tuple(b.position) for b in d.blocks.values()]
+    assert len(set(places)) == len(places) and doc.undo_stack.undoText() == "Tidy"
+    window.close()

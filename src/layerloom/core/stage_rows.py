@@ -19,6 +19,7 @@ top-left corner.
 """
 from __future__ import annotations
 
+from bisect import bisect_right
 from dataclasses import dataclass, field
 from itertools import count
 
@@ -169,22 +170,57 @@ def _slots(order, preds, stage_of, column, main) -> dict:
     return slot
 
 
-def _extent(columns: list[tuple[int, int]], k: int) -> tuple[float, float, int]:
-    """Width and height of a stage whose columns (min slot, max slot) wrap every ``k`` columns."""
-    height, lines = 0.0, 0
-    for i in range(0, len(columns), k):
-        chunk = columns[i:i + k]
-        top, bottom = min(c[0] for c in chunk), max(c[1] for c in chunk)
-        height += (bottom - top) * STACK + CARD_HEIGHT
-        lines += 1
-    width = (min(k, len(columns)) - 1) * COLUMN + CARD_WIDTH
-    return width, height, lines
+def _cuts(cards: list, preds: dict, column: dict) -> list[int]:
+    """Column boundaries (after column i) that at most one wire of the stage crosses: a line breaks
+    best there, between units rather than inside one."""
+    n = max(column[c] for c in cards) + 1
+    diff = [0] * (n + 1)
+    inside = set(cards)
+    for c in cards:
+        for p in preds[c]:
+            if p in inside and column[p] < column[c]:
+                diff[column[p]] += 1
+                diff[column[c]] -= 1
+    cuts, crossing = [], 0
+    for i in range(n - 1):
+        crossing += diff[i]
+        if crossing <= 1:
+            cuts.append(i)
+    return cuts
 
 
-def _wrap(stage_columns: list[list[tuple[int, int]]], view) -> int:
+def _breaks(n: int, k: int, cuts: list[int]) -> list[tuple[int, int]]:
+    """Lines ``(first column, end column)`` of a stage of ``n`` columns, at most ``k`` per line,
+    each ending at a cut when there is one in its second half."""
+    lines, start = [], 0
+    while start < n:
+        end = start + k
+        if end < n:
+            j = bisect_right(cuts, end - 1) - 1
+            if j >= 0 and cuts[j] + 1 >= start + max(1, (k + 1) // 2):
+                end = cuts[j] + 1
+        end = min(end, n)
+        lines.append((start, end))
+        start = end
+    return lines
+
+
+def _extent(columns: tuple[list[int], list[int], list[int]], k: int) -> tuple[float, float, int]:
+    """Width and height of a stage whose columns (lists of min and max slot, and its cuts) wrap
+    at most every ``k`` columns."""
+    lows, highs, cuts = columns
+    height, widest = 0.0, 0
+    lines = _breaks(len(lows), k, cuts)
+    for a, b in lines:
+        height += (max(highs[a:b]) - min(lows[a:b])) * STACK + CARD_HEIGHT
+        widest = max(widest, b - a)
+    return (widest - 1) * COLUMN + CARD_WIDTH, height, len(lines)
+
+
+def _wrap(stage_columns: list[tuple[list[int], list[int], list[int]]], view) -> int:
     """Columns per line that show the whole layout largest in ``view`` (capped at 100 %: then
     the fewest wraps)."""
-    longest = max((len(c) for c in stage_columns), default=1)
+    longest = max((len(c[0]) for c in stage_columns), default=1)
     candidates = set(range(1, min(longest, 16) + 1)) | {longest}
     k = 16.0
     while k < longest:
@@ -192,6 +228,9 @@ def _wrap(stage_columns: list[list[tuple[int, int]]], view) -> int:
         k *= 1.15
     best, best_score = longest, -1.0
     for k in sorted(candidates, reverse=True):
+        fewest = sum(-(-len(c[0]) // k) for c in stage_columns)  # a stage needs at least ⌈n / k⌉ lines
+        if view[1] / (fewest * (CARD_HEIGHT + ROW_GAP) - ROW_GAP + 2 * FIT_MARGIN) <= best_score:
+            continue  # too tall to beat the best already found
         width = height = 0.0
         lines = 0
         for cols in stage_columns:
@@ -242,26 +281,29 @@ def stage_layout(graph, shapes: dict, folds: dict, view=VIEW) -> StageLayout:
     spans = []
     for cards in members:
         n = max(column[c] for c in cards) + 1
-        cols = [(0, 0)] * n
-        seen = [False] * n
+        lows, highs = [1 << 30] * n, [-(1 << 30)] * n  # each column gets a card (longest-path columns)
         for c in cards:
-            lo, hi = cols[column[c]]
-            s = slot[c]
-            cols[column[c]] = (min(lo, s), max(hi, s)) if seen[column[c]] else (s, s)
-            seen[column[c]] = True
-        spans.append(cols)
+            i, s = column[c], slot[c]
+            lows[i], highs[i] = min(lows[i], s), max(highs[i], s)
+        spans.append((lows, highs, _cuts(cards, preds, column)))
     k = _wrap(spans, view)
     lay = StageLayout(stage_of={c: index[stage_of[c]] for c in order})
     y = 0.0
-    for i, (cards, cols) in enumerate(zip(members, spans)):
-        for start in range(0, len(cols), k):
-            chunk = cols[start:start + k]
-            top = min(c[0] for c in chunk)
-            line = sorted((c for c in cards if start <= column[c] < start + k), key=lambda c: (column[c], slot[c]))
+    for i, (cards, (lows, highs, cuts)) in enumerate(zip(members, spans)):
+        lines = _breaks(len(lows), k, cuts)
+        line_of = [0] * len(lows)
+        for j, (a, b) in enumerate(lines):
+            line_of[a:b] = [j] * (b - a)
+        by_line: dict[int, list[str]] = {}
+        for c in cards:
+            by_line.setdefault(line_of[column[c]], []).append(c)
+        for j, (start, end) in enumerate(lines):
+            top = min(lows[start:end])
+            line = sorted(by_line[j], key=lambda c: (column[c], slot[c]))
             for c in line:
                 lay.positions[c] = ((column[c] - start) * COLUMN, y + (slot[c] - top) * STACK)
-            height = (max(c[1] for c in chunk) - top) * STACK + CARD_HEIGHT
-            right = (len(chunk) - 1) * COLUMN + CARD_WIDTH
+            height = (max(highs[start:end]) - top) * STACK + CARD_HEIGHT
+            right = (end - start - 1) * COLUMN + CARD_WIDTH
             lay.rows.append(Row(i, stages[i].key, tuple(line), (0.0, y, right, y + height)))
             y += height + ROW_GAP
     for chip, card in folds.items():

@@ -15,47 +15,61 @@ from collections import defaultdict
 
 STUB = 16.0  # a routed wire runs this far straight out of (and into) its notch before it turns
 CLEAR = 14.0  # room kept between a lane and a card's edge
-BUCKET = 256.0  # width of the vertical strips the obstacle index sorts cards into
+BUCKET = 256.0  # side of the square cells the obstacle index sorts cards into
+REACH = 160.0  # a route first looks for a lane among the cards this far above and below its ends
 
 Rect = tuple  # (left, top, right, bottom)
 Point = tuple  # (x, y)
 
 
 class Obstacles:
-    """Card rectangles by key, indexed by vertical strips so a route looks only at nearby cards."""
+    """Card rectangles by key, indexed in square cells so a route looks only at nearby cards."""
 
     def __init__(self, rects: dict | None = None):
         self.rects: dict = {}
-        self._strips: dict[int, set] = defaultdict(set)
+        self._cells: dict[tuple[int, int], set] = defaultdict(set)
         for key, rect in (rects or {}).items():
             self.put(key, rect)
 
-    def _span(self, rect: Rect) -> range:
-        return range(int(rect[0] // BUCKET), int(rect[2] // BUCKET) + 1)
+    @staticmethod
+    def _cells_of(left: float, top: float, right: float, bottom: float):
+        return [(i, j) for i in range(int(left // BUCKET), int(right // BUCKET) + 1)
+                for j in range(int(top // BUCKET), int(bottom // BUCKET) + 1)]
 
     def put(self, key, rect: Rect) -> None:
         """Add or move card ``key`` to ``rect``."""
-        old = self.rects.get(key)
-        if old is not None:
-            for i in self._span(old):
-                self._strips[i].discard(key)
+        self.drop(key)
         self.rects[key] = rect
-        for i in self._span(rect):
-            self._strips[i].add(key)
+        for cell in self._cells_of(*rect):
+            self._cells[cell].add(key)
 
     def drop(self, key) -> None:
         old = self.rects.pop(key, None)
         if old is not None:
-            for i in self._span(old):
-                self._strips[i].discard(key)
+            for cell in self._cells_of(*old):
+                self._cells[cell].discard(key)
 
-    def between(self, left: float, right: float, skip=()) -> list[Rect]:
-        """Rectangles reaching into the strip ``left`` ≤ x ≤ ``right`` (except the keys in ``skip``)."""
+    def blocked(self, left: float, top: float, right: float, bottom: float, skip=()) -> bool:
+        """Whether any rectangle (except the keys in ``skip``) reaches into the given area."""
+        rects, cells = self.rects, self._cells
+        for cell in self._cells_of(left, top, right, bottom):
+            for k in cells.get(cell, ()):
+                r = rects[k]
+                if r[0] < right and r[2] > left and r[1] < bottom and r[3] > top and k not in skip:
+                    return True
+        return False
+
+    def within(self, left: float, top: float, right: float, bottom: float, skip=()) -> list[Rect]:
+        """Rectangles reaching into the given area (except the keys in ``skip``)."""
         keys = set()
-        for i in range(int(left // BUCKET), int(right // BUCKET) + 1):
-            keys |= self._strips.get(i, set())
+        cells = self._cells
+        for cell in self._cells_of(left, top, right, bottom):
+            found = cells.get(cell)
+            if found:
+                keys |= found
         rects = self.rects
-        return [r for k in keys if k not in skip for r in (rects[k],) if r[0] < right and r[2] > left]
+        return [r for k in keys if k not in skip for r in (rects[k],)
+                if r[0] < right and r[2] > left and r[1] < bottom and r[3] > top]
 
 
 def _crosses_h(rects, y: float, left: float, right: float) -> bool:
@@ -78,25 +92,37 @@ def route(a: Point, b: Point, obstacles: Obstacles, ends=()) -> tuple | None:
     forward = bx - ax > 2 * STUB
     x0, x1 = ax + STUB, bx - STUB
     lo, hi = min(x0, x1), max(x0, x1)
-    near = obstacles.between(lo - CLEAR, hi + CLEAR, ends)
-    if forward:
-        top, bottom = min(ay, by) - 4.0, max(ay, by) + 4.0
-        if not any(r[0] < bx and r[2] > ax and r[1] < bottom and r[3] > top for r in near):
-            return None
+    if forward and not obstacles.blocked(ax, min(ay, by) - 4.0, bx, max(ay, by) + 4.0, ends):
+        return None
     target = ay if forward else (ay + by) / 2
+    reach = REACH
+    while True:  # look at the cards within reach above and below; further when no lane is found there
+        top, bottom = min(ay, by) - reach, max(ay, by) + reach
+        near = obstacles.within(lo - CLEAR, top, hi + CLEAR, bottom, ends)
+        y = _lane(near, target, x0, x1, ay, by, top, bottom)
+        if y is not None or len(near) == len(obstacles.rects):
+            break
+        reach *= 2
+    if y is None:
+        y = min((r[1] for r in near), default=ay) - CLEAR
+    return ((ax, ay), (x0, ay), (x0, y), (x1, y), (x1, by), (bx, by))
+
+
+def _lane(near, target, x0, x1, ay, by, top, bottom) -> float | None:
+    """The free lane nearest ``target`` (both turns clear of cards too, if any such lane exists),
+    within ``top``..``bottom``; None when there is none there."""
+    lo, hi = min(x0, x1), max(x0, x1)
     lanes = sorted({y for r in near for y in (r[1] - CLEAR, r[3] + CLEAR)} | {target},
                    key=lambda y: (abs(y - target), y))
     first = None
     for y in lanes:
-        if _crosses_h(near, y, lo, hi):
+        if not top < y < bottom or _crosses_h(near, y, lo, hi):
             continue
+        if not _crosses_v(near, x0, ay, y) and not _crosses_v(near, x1, y, by):
+            return y
         if first is None:
             first = y
-        if not _crosses_v(near, x0, ay, y) and not _crosses_v(near, x1, y, by):
-            first = y
-            break
-    y = first if first is not None else min((r[1] for r in near), default=ay) - CLEAR
-    return ((ax, ay), (x0, ay), (x0, y), (x1, y), (x1, by), (bx, by))
+    return first
 
 
 def polyline_crosses(points, rect: Rect) -> bool:

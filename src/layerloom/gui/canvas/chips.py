@@ -8,8 +8,8 @@ and view ask of a block item (``block_id``, ``state``, ports at its card's edges
 from __future__ import annotations
 
 from PySide6.QtCore import QRectF, Qt
-from PySide6.QtGui import QPainterPath, QPen
-from PySide6.QtWidgets import QGraphicsItem, QStyle
+from PySide6.QtGui import QPen
+from PySide6.QtWidgets import QGraphicsItem, QGraphicsRectItem, QStyle
 
 from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import CHIP_HEIGHT, CardState, chip_width, far_zoom, font
@@ -17,25 +17,31 @@ from layerloom.gui.canvas.block_item import CHIP_HEIGHT, CardState, chip_width, 
 SELECTED = QStyle.StateFlag.State_Selected
 
 
-class ChipItem(QGraphicsItem):
-    """The chip of block ``block_id``, a child of its card's item."""
+class ChipItem(QGraphicsRectItem):
+    """The chip of block ``block_id``, a child of its card's item. Its rectangle (Qt's own bounding
+    rect and hit shape, no Python call per frame) is the chip; ``paint`` draws it."""
 
     def __init__(self, block_id: str, card, state: CardState):
         super().__init__(card)
         self.block_id = block_id
         self.card = card
         self.state = state
-        self.width = chip_width(state.chips[0] if state.chips else "")
+        self.width = 0.0
+        self._size()
+        self.setPen(QPen(Qt.PenStyle.NoPen))
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(1.0)
 
     def set_state(self, state: CardState) -> None:
         if state == self.state:
             return
-        self.prepareGeometryChange()
         self.state = state
-        self.width = chip_width(state.chips[0] if state.chips else "")
+        self._size()
         self.update()
+
+    def _size(self) -> None:
+        self.width = chip_width(self.label)
+        self.setRect(QRectF(0, 0, self.width, CHIP_HEIGHT))
 
     @property
     def label(self) -> str:
@@ -48,14 +54,9 @@ class ChipItem(QGraphicsItem):
     def output_pos(self, port: int):
         return self.card.output_pos(0)
 
-    # ----- geometry and drawing
-    def boundingRect(self) -> QRectF:
-        return QRectF(-2.0, -2.0, self.width + 4.0, CHIP_HEIGHT + 4.0)
-
-    def shape(self) -> QPainterPath:
-        p = QPainterPath()
-        p.addRect(QRectF(0, 0, self.width, CHIP_HEIGHT))
-        return p
+    def title_rect(self) -> QRectF:
+        """Where its name is edited in place: over the chip."""
+        return self.rect()
 
     def paint(self, painter, option, widget=None) -> None:
         if option.levelOfDetailFromTransform(painter.worldTransform()) < far_zoom():
@@ -69,7 +70,7 @@ class ChipItem(QGraphicsItem):
             pen = QPen(theme.CARD_EDGE, theme.OUTLINE)
         painter.setPen(pen)
         painter.setBrush(theme.CARD)
-        rect = QRectF(0, 0, self.width, CHIP_HEIGHT)
+        rect = self.rect().adjusted(0.5, 0.5, -0.5, -0.5)  # the outline inside the item's rectangle
         painter.drawRoundedRect(rect, CHIP_HEIGHT / 2, CHIP_HEIGHT / 2)
         painter.setPen(theme.TEXT)
         painter.setFont(font("detail"))

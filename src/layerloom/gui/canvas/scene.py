@@ -73,6 +73,12 @@ def detail_text(block, motif=None) -> str:
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
 
 
+def _overview_colour(item: BlockItem):
+    """A card's outline far out: error or warning, else the plain edge (the selection is drawn over it)."""
+    status = item.state.status
+    return theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE
+
+
 def _rect(item: BlockItem) -> tuple:
     p = item.pos()
     return (p.x(), p.y(), p.x() + W, p.y() + H)
@@ -97,7 +103,7 @@ class CanvasScene(QGraphicsScene):
         self.folds: dict[str, str] = {}  # chip id → its card's id
         self._chips: dict[str, list[str]] = {}  # card id → chip ids
         self.obstacles = Obstacles()  # card rectangles the wires go around
-        self._stages: list | None = None  # (key, card ids) per stage, made on demand
+        self._stages: dict | None = None  # stages and their labels, made on demand (see stage_cache)
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
         self._dirty_wires: set = set()
@@ -109,13 +115,16 @@ class CanvasScene(QGraphicsScene):
         self._ov_rects: dict = {}  # colour rgba → (colour, {block id → card rect})
         self._ov_where: dict = {}  # block id → colour rgba of the group holding it
         self._ov_valid = False
+        self.overview_revision = 0  # grows whenever the overview's still part may have changed
+        self.moving: set[str] = set()  # cards dragged since the last change of the document
+        self._bulk = False  # while an edit moves most cards at once
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
         document.replaced.connect(self.rebuild)
         document.graph_changed.connect(self.rebuild)
         document.selection_changed.connect(self._select_from_document)
         self.selectionChanged.connect(self._select_to_document)
-        self.selectionChanged.connect(self._overview_stale)
+        self.selectionChanged.connect(self._selection_seen)
         self.rebuild()
 
     @property
@@ -161,17 +170,32 @@ class CanvasScene(QGraphicsScene):
     # ----- following the model
     def _on_changed(self, change) -> None:
         key, graph = self.document.graph_key, self.graph
+        self.overview_revision += 1
         if key in change.topology:
             self._sync_topology()
-        for bid in change.moved.get(key, ()):
-            item = self.blocks.get(bid)
-            if isinstance(item, BlockItem):
-                x, y = graph.blocks[bid].position
-                if item.pos() != QPointF(x, y):
-                    item.setPos(x, y)
+        many = len(change.moved.get(key, ())) * 4 > len(self.blocks)  # most cards move (Tidy): in bulk
+        self._bulk = many
+        try:
+            for bid in change.moved.get(key, ()):
+                item = self.blocks.get(bid)
+                if isinstance(item, BlockItem):
+                    x, y = graph.blocks[bid].position
+                    if item.pos() != QPointF(x, y):
+                        item.setPos(x, y)
+        finally:
+            self._bulk = False
+        if many:
+            self.obstacles = Obstacles({b: _rect(i) for b, i in self.cards()})
+            self._ov_valid = False
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
             self._stages = None
-            self._dirty_wires.update(self.wires)
+            if many:  # every route may change
+                self._dirty_wires.update(self.wires)
+            for bid in () if many else change.moved[key]:
+                item = self.blocks.get(bid)
+                if isinstance(item, BlockItem):
+                    self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
+                                             if isinstance(i, WireItem))
         for bid in change.renamed.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
@@ -179,6 +203,7 @@ class CanvasScene(QGraphicsScene):
         if change.reinfers:
             self._refresh_results()
         self.flush_wires()
+        self.moving.clear()  # cards set where the document says are still again (after the wires follow)
         if key in change.moved or key in change.topology:
             self.grow_to_fit()
 
@@ -203,6 +228,7 @@ class CanvasScene(QGraphicsScene):
 
     def _sync_topology(self) -> None:
         self._ov_valid = False
+        self.overview_revision += 1
         self._stages = None
         design = self.design
         graph = self.graph
@@ -248,6 +274,7 @@ class CanvasScene(QGraphicsScene):
         """Read shapes, findings and MAC shares for the graph shown; update items whose picture differs.
         Inside a motif the MAC shares are of one use of it."""
         self._ov_valid = False
+        self.overview_revision += 1
         design, graph = self.design, self.graph
         motif = graph if graph.key else None
         results = self.document.results()
@@ -330,24 +357,57 @@ class CanvasScene(QGraphicsScene):
         for item in items:
             _overview_flags(item, on)
 
-    def overview_shapes(self) -> tuple[list, list]:
-        """Wire lines, and (colour, card rectangles) groups: selection, error, warning, plain. Kept
-        up to date piece by piece while blocks move; made again after other changes."""
+    def overview_shapes(self, moving: bool | None = None) -> tuple[list, list]:
+        """Wire lines, and (colour, card rectangles) groups: error, warning, plain, and the selection
+        drawn over them. Kept up to date piece by piece while blocks move; made again after other
+        changes. ``moving`` True gives what is drawn live (the cards being dragged, their wires,
+        the selection), False the still rest."""
         if not self._ov_valid:
             self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
             for bid, item in self.cards():
-                status = item.state.status
-                colour = (theme.ACCENT if item.isSelected() else
-                          theme.SEVERITY_COLOURS[status] if status in ("error", "warning") else theme.CARD_EDGE)
+                colour = _overview_colour(item)
                 self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1][bid] = CARD_RECT.translated(item.pos())
                 self._ov_where[bid] = colour.rgba()
             self._ov_valid = True
-        return [ln for lines in self._ov_lines.values() for ln in lines], [(c, list(r.values())) for c, r in self._ov_rects.values()]
+        chosen = [] if moving is False else [
+            (theme.ACCENT, [CARD_RECT.translated(i.pos()) for i in self.selectedItems() if isinstance(i, BlockItem)])]
+        if moving is None or not self.moving:
+            if moving:
+                return [], chosen
+            return ([ln for lines in self._ov_lines.values() for ln in lines],
+                    [(c, list(r.values())) for c, r in self._ov_rects.values()] + chosen)
+        dragged = self._moving_wires()
+        lines = [ln for w, ls in self._ov_lines.items() if (w in dragged) == moving for ln in ls]
+        return lines, [(c, [r for b, r in rs.items() if (b in self.moving) == moving])
+                       for c, rs in self._ov_rects.values()] + chosen
+
+    def overview_cards(self, moving: bool | None = None) -> list:
+        """``(scene rectangle, name)`` of every card far out (``moving`` as for :meth:`overview_shapes`)."""
+        self.overview_shapes()
+        blocks, dragged = self.blocks, self.moving
+        return [(r, blocks[b].state.title) for _, rs in self._ov_rects.values() for b, r in rs.items()
+                if moving is None or (b in dragged) == moving]
+
+    def _moving_wires(self) -> set:
+        g, out = self.graph, set()
+        for card in self.moving:
+            for bid in (card, *self._chips.get(card, ())):
+                out.update(g.in_wires.get(bid, ()))
+                out.update(g.out_wires.get(bid, ()))
+        return out
 
     def chips_of(self, card: str) -> list:
         """Ids of the chips in ``card`` (none when it holds none or Fold is off)."""
         return self._chips.get(card, [])
+
+    def set_caching(self, on: bool) -> None:
+        """Let cards and badges keep their picture in a device pixmap (on, for the screen) or paint
+        afresh (off: a vector picture then holds shapes and text, not bitmaps)."""
+        mode = QGraphicsItem.CacheMode.DeviceCoordinateCache if on else QGraphicsItem.CacheMode.NoCache
+        for item in [*self.blocks.values(), *(b for bs in self.badges.values() for b in bs)]:
+            if not isinstance(item, ChipItem):
+                item.setCacheMode(mode)
 
     def cards(self):
         """``(block id, BlockItem)`` for every card (chips excluded)."""
@@ -355,18 +415,38 @@ class CanvasScene(QGraphicsScene):
 
     def stages(self) -> list:
         """``(resolution, card ids)`` per stage of the graph shown (see core.stage_rows), top → bottom."""
+        return self.stage_cache("stages", self._make_stages)
+
+    def _make_stages(self) -> list:
+        results = self.document.results()
+        shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
+        return stage_groups(self.graph, shapes, self.folds)
+
+    def stage_cache(self, key: str, make):
+        """What ``make()`` returns, kept until the graph shown, its results or a position changes."""
         if self._stages is None:
-            results = self.document.results()
-            shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
-            self._stages = stage_groups(self.graph, shapes, self.folds)
-        return self._stages
+            self._stages = {}
+        if key not in self._stages:
+            self._stages[key] = make()
+        return self._stages[key]
 
     def _overview_stale(self, *args) -> None:
         self._ov_valid = False
+        self.overview_revision += 1
+
+    def _selection_seen(self) -> None:
+        """Far out the selection is drawn live over the still picture: show it where it is now."""
+        if self.overview:
+            self.update()
 
     # ----- wires following blocks
     def _block_moved(self, block_id: str) -> None:
+        if self._bulk:  # the scene re-indexes and re-routes everything once afterwards
+            return
         item = self.blocks[block_id]
+        if block_id not in self.moving:  # the still part is drawn once more without it
+            self.moving.add(block_id)
+            self.overview_revision += 1
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
         self.obstacles.put(block_id, _rect(item))
@@ -384,16 +464,41 @@ class CanvasScene(QGraphicsScene):
         """Re-route every dirty wire once."""
         self._flush_queued = False
         blocks, folds, obstacles = self.blocks, self.folds, self.obstacles
+        out_wires = self.graph.out_wires
+        for w in [*self._dirty_wires]:  # wires sharing an output: the one labelled may change
+            siblings = out_wires.get(w.src, ())
+            if len(siblings) > 1:
+                self._dirty_wires.update(x for x in siblings if x.src_port == w.src_port and x in self.wires)
+        chosen: dict = {}  # (block, port) → the wire of that output that carries the label
         for w in self._dirty_wires:
             item = self.wires.get(w)
             if item is not None:
                 src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
                 a = blocks[src].output_pos(w.src_port if src == w.src else 0)
                 b = blocks[dst].input_pos(w.dst_port)
-                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)))
+                before = item.lines
+                item.set_geometry(a, b, route((a.x(), a.y()), (b.x(), b.y()), obstacles, (src, dst)),
+                                  self._labelled(w, chosen))
                 if self._ov_valid:
                     self._ov_lines[w] = item.lines
+                if src not in self.moving and dst not in self.moving and item.lines != before:
+                    self.overview_revision += 1  # a still wire took another way
         self._dirty_wires.clear()
+
+    def _labelled(self, w, chosen: dict) -> bool:
+        """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the
+        nearest card does (they all carry the same tensor); ``chosen`` remembers the pick per output."""
+        key = (w.src, w.src_port)
+        if key not in chosen:
+            siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]
+            here = self.blocks[self.card_of(w.src)].pos()
+
+            def distance(x):
+                p = self.blocks[self.card_of(x.dst)].pos() - here
+                return (abs(p.x()) + abs(p.y()), x.dst)
+
+            chosen[key] = min(siblings, key=distance) if len(siblings) > 1 else w
+        return chosen[key] == w
 
     # ----- selection, both ways
     def _select_to_document(self) -> None:

@@ -1,20 +1,24 @@
 """Stage summaries: far out, where cards can no longer show their name and output shape, the view
 labels each stage row at a readable size: its name, its output shape and its share of the MACs
-("stage 3 · 512×28×28 · 22 % MACs"), just above the top-left card of the stage.
+("stage 3 · 512×28×28 · 22 % MACs"), just above the top-left card of the stage. Each card wide
+enough on screen keeps its name there, at :data:`theme.READABLE_PX` (see :func:`overview_names`).
 
 Labels are drawn in viewport pixels (they keep their size whatever the zoom); :func:`labels` gives
 their text and on-screen rectangles, which is what the view paints and what tests measure.
 """
 from __future__ import annotations
 
+from functools import lru_cache
 from typing import NamedTuple
 
-from PySide6.QtCore import QRectF, Qt
-from PySide6.QtGui import QFont, QFontMetricsF
+from PySide6.QtCore import QPointF, QRectF, Qt
+from PySide6.QtGui import QFont, QFontMetricsF, QStaticText, QTransform
 
 from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import H, W, sized_font
 
+NAME_PX = 10  # em size of a card's name drawn far out, viewport pixels (≥ theme.READABLE_PX)
+NAME_ROOM = 40.0  # a card narrower than this on screen shows no name (a few letters and … say nothing)
 LABEL_PX = 12  # em size of a stage label, viewport pixels
 PAD = 4.0  # room around a label's text inside its plate
 LIFT = 3.0  # a label's plate ends this far above its stage's top card
@@ -32,7 +36,12 @@ def label_font() -> QFont:
 
 
 def stage_texts(scene) -> list[tuple[str, QRectF]]:
-    """``(text, scene rectangle of the stage's cards)`` per stage of the graph shown."""
+    """``(text, scene rectangle of the stage's cards)`` per stage of the graph shown (kept by the
+    scene until the graph, its results or a position change)."""
+    return scene.stage_cache("texts", lambda: _stage_texts(scene))
+
+
+def _stage_texts(scene) -> list[tuple[str, QRectF]]:
     results = scene.document.results()
     total = scene.total_macs()
     out = []
@@ -108,3 +117,34 @@ def draw(painter, view) -> None:
 def top_room() -> float:
     """Viewport pixels a label needs above its stage's cards (fit to view keeps them in sight)."""
     return QFontMetricsF(label_font()).height() + PAD + LIFT + 2.0
+
+
+@lru_cache(maxsize=8192)
+def _name(text: str, width: int) -> QStaticText:
+    """A card's name elided to ``width`` pixels, laid out once (drawn many times)."""
+    f = sized_font("detail", NAME_PX)
+    st = QStaticText(QFontMetricsF(f).elidedText(text, Qt.TextElideMode.ElideRight, width))
+    st.prepare(QTransform(), f)
+    return st
+
+
+def overview_names(painter, view, exposed: QRectF, moving: bool | None = None) -> None:
+    """Far out, each card's name in viewport pixels at :data:`NAME_PX`, elided to the card's width
+    on screen (cards narrower than :data:`NAME_ROOM` pixels show none); ``moving`` True: only the
+    cards being dragged, False: all others."""
+    zoom = view.zoom_level()
+    width = W * zoom - 4.0
+    if width < NAME_ROOM:
+        return
+    transform = view.viewportTransform()
+    painter.save()
+    painter.resetTransform()
+    painter.setFont(sized_font("detail", NAME_PX))
+    painter.setPen(theme.TEXT)
+    down = H * zoom / 2 - NAME_PX * 0.65
+    room = int(width)
+    for rect, title in view.canvas_scene.overview_cards(moving):
+        if exposed.intersects(rect):
+            corner = transform.map(rect.topLeft())
+            painter.drawStaticText(QPointF(corner.x() + 2.0, corner.y() + down), _name(title, room))
+    painter.restore()

@@ -10,7 +10,8 @@ items.
 from __future__ import annotations
 
 from PySide6.QtCore import QEvent, QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QTransform
+from PySide6.QtGui import (QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QPixmap,
+                           QTransform)
 from PySide6.QtWidgets import QGraphicsView, QMenu, QToolTip
 
 from layerloom.core import clipboard, edits, motif_ops
@@ -22,6 +23,7 @@ from layerloom.core.layout import COLUMN, tidy_layout
 from layerloom.core.settings import SettingError
 from layerloom.gui import theme
 from layerloom.gui.canvas import stage_summary
+from layerloom.gui.canvas.stage_summary import overview_names
 from layerloom.gui.canvas.block_item import H, W, BlockItem, summary_zoom
 from layerloom.gui.canvas.block_item import font as block_font
 from layerloom.gui.canvas import context_menus, tooltips
@@ -72,6 +74,7 @@ class CanvasView(QGraphicsView):
         palette.setColor(QPalette.ColorRole.Highlight, theme.ACCENT)  # the rubber band
         self.setPalette(palette)
         self._pan_from: QPoint | None = None
+        self._ov_cache: tuple | None = None  # (key, QPixmap) of the overview last drawn
         self._space = False
         self._draft: DraftWire | None = None
         self._draft_from: tuple[str, int] | None = None
@@ -116,31 +119,63 @@ class CanvasView(QGraphicsView):
 
     def _sync_overview(self) -> None:
         """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
-        self.canvas_scene.set_overview(self.transform().m11() < theme.SHAPE_MIN_DETAIL)
+        self.canvas_scene.set_overview(self.shows_stage_summaries())
         self.zoom_changed.emit(self.transform().m11())
 
     def drawForeground(self, painter, rect: QRectF) -> None:
-        scene = self.canvas_scene
-        if self.shows_stage_summaries():
-            self._draw_overview(painter)
+        if self.canvas_scene.overview:
+            if painter.device() is self.viewport():
+                self._blit_overview(painter)
+            else:  # a picture (PNG, SVG): drawn afresh, as shapes
+                self._draw_overview(painter, rect)
             stage_summary.draw(painter, self)
+
+    def _blit_overview(self, painter) -> None:
+        """The overview of what the viewport shows, drawn once into a pixmap and kept until the
+        view's transform, size or what the scene shows changes (a still frame is one blit)."""
+        t = self.viewportTransform()
+        size = self.viewport().size()
+        key = (t.m11(), t.m22(), t.dx(), t.dy(), size.width(), size.height(), self.canvas_scene.overview_revision)
+        if self._ov_cache is None or self._ov_cache[0] != key:
+            ratio = self.viewport().devicePixelRatioF()
+            pixmap = QPixmap(size * ratio)
+            pixmap.setDevicePixelRatio(ratio)
+            pixmap.fill(Qt.GlobalColor.transparent)
+            p = QPainter(pixmap)
+            p.setTransform(t)
+            self._draw_overview(p, self.mapToScene(self.viewport().rect()).boundingRect(), moving=False)
+            p.end()
+            self._ov_cache = (key, pixmap)
+        painter.save()
+        painter.resetTransform()
+        painter.drawPixmap(0, 0, self._ov_cache[1])
+        painter.restore()
+        # the selection, and cards being dragged with their wires, drawn live on top
+        self._draw_overview(painter, self.mapToScene(self.viewport().rect()).boundingRect(), moving=True)
 
     def shows_stage_summaries(self) -> bool:
         """Whether cards are too small here to show name and shape, so stage rows are labelled."""
         return self.transform().m11() < summary_zoom()
 
-    def _draw_overview(self, painter) -> None:
-        scene = self.canvas_scene
-        if not scene.overview:
-            return
-        lines, rects = scene.overview_shapes()
-        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # specks and hairlines: no need
+    def _draw_overview(self, painter, exposed: QRectF, moving: bool | None = None) -> None:
+        """Far out, every wire and card in a few calls: cards as outlined rectangles (status and
+        selection by outline colour; specks when tiny), each with its name at a readable size
+        where the card is wide enough on screen to hold some of it."""
+        lines, rects = self.canvas_scene.overview_shapes(moving)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
         painter.setPen(QPen(theme.WIRE, 0))
         painter.drawLines(lines)
-        painter.setPen(Qt.PenStyle.NoPen)
+        specks = self.zoom_level() < theme.SHAPE_MIN_DETAIL
         for colour, group in rects:
-            painter.setBrush(colour)
+            if specks:
+                painter.setPen(Qt.PenStyle.NoPen)
+                painter.setBrush(colour)
+            else:  # the selection is an outline over its card's own rectangle
+                painter.setPen(QPen(colour, 0 if colour == theme.CARD_EDGE else 2))
+                painter.setBrush(Qt.BrushStyle.NoBrush if colour == theme.ACCENT else theme.CARD)
             painter.drawRects(group)
+        if not specks:
+            overview_names(painter, self, exposed, moving)
 
     def zoom_in(self) -> None:
         self._zoom_about_centre(ZOOM_STEP)
@@ -417,15 +452,20 @@ class CanvasView(QGraphicsView):
         return menu
 
     def _commit_moves(self) -> None:
-        """One undoable move for every selected block the drag left somewhere new."""
+        """One undoable move for every selected block the drag left somewhere new (the chips of a
+        card move with it)."""
         graph = self.document.graph
         blocks = graph.blocks
         moved = {}
         for item in self.canvas_scene.selectedItems():
             if isinstance(item, BlockItem) and item.block_id in blocks:
                 p = (item.pos().x(), item.pos().y())
-                if p != tuple(blocks[item.block_id].position):
+                x, y = blocks[item.block_id].position
+                if p != (x, y):
                     moved[item.block_id] = p
+                    for chip in self.canvas_scene.chips_of(item.block_id):
+                        cx, cy = blocks[chip].position
+                        moved[chip] = (cx + p[0] - x, cy + p[1] - y)
         if moved:
             self.canvas_scene.apply(edits.move(graph, moved))
 
@@ -837,14 +877,17 @@ class CanvasView(QGraphicsView):
 
     def set_fold(self, on: bool) -> None:
         """Fold norms and activations into their convolution's card (on) or show each as a card. A
-        design laid out by Tidy is tidied again for the new look (one undoable edit)."""
+        design laid out by Tidy is tidied again for the new look (one undoable edit), and so is one
+        whose unfolded blocks would lie under their card (they had no place of their own)."""
         scene = self.canvas_scene
         if on == scene.fold:
             return
         graph = self.document.graph
         was_tidy = all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(scene.fold).positions.items())
+        hidden = not on and any(tuple(graph.blocks[c].position) == tuple(graph.blocks[h].position)
+                                for c, h in scene.folds.items())
         scene.set_fold(on)
-        if was_tidy:
+        if was_tidy or hidden:
             self.tidy()
 
     def rename_selected(self) -> None:
@@ -934,6 +977,7 @@ class CanvasView(QGraphicsView):
 
     def save_png(self, path, scale: float = 2.0) -> bool:
         """Write a picture of the whole canvas (all blocks) to ``path`` as PNG."""
+        self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
         rect = self._picture_rect()
         image = QImage(QSize(max(int(rect.width() * scale), 1), max(int(rect.height() * scale), 1)),
                        QImage.Format.Format_ARGB32_Premultiplied)
@@ -942,12 +986,14 @@ class CanvasView(QGraphicsView):
         painter.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
         self.canvas_scene.render(painter, QRectF(image.rect()), rect)
         painter.end()
+        self._sync_overview()
         return image.save(str(path), "PNG")
 
     def save_svg(self, path) -> bool:
         """Write a picture of the whole canvas to ``path`` as SVG."""
         from PySide6.QtSvg import QSvgGenerator
 
+        self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
         rect = self._picture_rect()
         gen = QSvgGenerator()
         gen.setFileName(str(path))
@@ -958,6 +1004,9 @@ class CanvasView(QGraphicsView):
         if not painter.begin(gen):
             return False
         painter.fillRect(QRectF(0, 0, rect.width(), rect.height()), theme.CANVAS)
+        self.canvas_scene.set_caching(False)
         self.canvas_scene.render(painter, QRectF(0, 0, rect.width(), rect.height()), rect)
         painter.end()
+        self.canvas_scene.set_caching(True)
+        self._sync_overview()
         return True

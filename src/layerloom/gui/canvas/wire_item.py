@@ -72,13 +72,14 @@ class WireItem(QGraphicsItem):
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
-    def set_geometry(self, a: QPointF, b: QPointF, points=None) -> None:
+    def set_geometry(self, a: QPointF, b: QPointF, points=None, labelled: bool = True) -> None:
         """Draw the wire from ``a`` to ``b`` as a curve, or through corner ``points`` when given;
-        width and label follow :attr:`carried`."""
+        width and label follow :attr:`carried` (no label when not ``labelled``: another wire from
+        the same output already says the shape)."""
         shape = self.carried
         self.prepareGeometryChange()
         self.known = shape is not None
-        self.label = str(shape) if shape is not None else ""
+        self.label = str(shape) if shape is not None and labelled else ""
         self.width = stroke_width(shape[0] if shape is not None else None)
         if points:
             self._path = routed(points)
@@ -90,7 +91,8 @@ class WireItem(QGraphicsItem):
         bounds = self._path.boundingRect().adjusted(-self.width, -self.width, self.width, self.width)
         if self.label:
             fm = metrics("figure")
-            mid = self._path.pointAtPercent(0.5)
+            mid = (QLineF(*points[2], *points[3]).center() if points  # a routed wire: the middle of its lane
+                   else self._path.pointAtPercent(0.5))
             w, h = advance("figure", self.label) + 6.0, fm.height() + 1.0
             self._label_rect = QRectF(mid.x() - w / 2, mid.y() - self.width / 2 - h - 1.0, w, h)
             bounds = bounds.united(self._label_rect)
