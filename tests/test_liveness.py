@@ -46,3 +46,19 @@ def test_a_motif_use_frees_its_input_inside_when_it_is_the_last_reader():
     # by hand: the input (2,048) and the conv output (16,384) live together, then the conv output and
     # the result (2,048): the peak is 18,432 elements either way
     assert max(d.analysis().live_profile()) == max(flat.analysis().live_profile()) == 18_432
+
+
+def test_live_memory_does_not_depend_on_the_order_wires_were_made():
+    """A view with two wires on its port (an error) hands on one source's tensor; which one must
+    not depend on whether the wire was drawn last (in the editor) or read first (from the file)."""
+    from layerloom.core import fileformat
+
+    d = Design()
+    x = d.input(2, 4, 4)
+    a = d.add("Pointwise", x, out_channels=6)
+    v = d.add("Identity", a)
+    d.add("Output", d.add("Pointwise", d.add("Pointwise", v, out_channels=2), out_channels=2))
+    d.ledger()
+    d.connect(x, v, 0)
+    fresh = fileformat.parse(fileformat.dumps(d))
+    assert list(d.ledger().live) == list(fresh.ledger().live)

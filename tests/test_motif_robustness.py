@@ -189,3 +189,14 @@ def test_a_mend_changing_every_use_says_so_and_is_offered_only_when_harmless():
         undo = d.apply(mend.edit)
         assert not errors(d), mend.label
         d.apply(undo)
+
+
+def test_no_output_is_offered_after_a_use_of_a_motif_without_output_ports():
+    d = Design()
+    x = d.input(4, 8, 8)
+    side = d.add("ReLU", x)  # its result is used by nothing
+    d.add("Output", d.add("BatchNorm2d", x))
+    edit, inst = make_motif(d, [side], name="unused")
+    d.apply(edit)
+    f = next(f for f in d.findings() if f.code == "graph.dead_end" and f.block == inst)
+    assert mends_for(d, f) == []  # an Output wired from an output it does not have would be an error

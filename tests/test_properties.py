@@ -251,14 +251,22 @@ def _value(draw, spec, motif_names):
     return draw(st.one_of(options))
 
 
-def _settings_change(draw, d: Design, graph: str) -> tuple[str, dict]:
-    g = d.graph(graph)
-    b = g.blocks[draw(st.sampled_from(sorted(g.blocks)))]
+def _keys(b) -> list[str]:
+    """The settings of block ``b`` an edit may change (for a motif instance, also its parameters)."""
     kind = KINDS[b.kind]
-    keys = list(kind.settings_by_key)
-    if b.kind == "Motif":
-        keys += [k for k in b.settings if k not in kind.settings_by_key]  # the motif's parameters
-    assume(keys)
+    return list(kind.settings_by_key) + [k for k in b.settings if k not in kind.settings_by_key]
+
+
+def _settable(d: Design) -> dict[str, list[str]]:
+    """Graph key → ids of its blocks that have settings (graphs with none left out)."""
+    found = {key: sorted(b.id for b in d.graph(key).blocks.values() if _keys(b)) for key in [""] + sorted(d.motifs)}
+    return {key: ids for key, ids in found.items() if ids}
+
+
+def _settings_change(draw, d: Design, graph: str) -> tuple[str, dict]:
+    b = d.graph(graph).blocks[draw(st.sampled_from(_settable(d)[graph]))]
+    kind = KINDS[b.kind]
+    keys = _keys(b)
     changes = {}
     for key in draw(st.lists(st.sampled_from(keys), min_size=1, max_size=2, unique=True)):
         spec = kind.settings_by_key.get(key)
@@ -267,7 +275,7 @@ def _settings_change(draw, d: Design, graph: str) -> tuple[str, dict]:
 
 
 def settings_edit(draw, d: Design) -> edits.Edit:
-    graph = draw(st.sampled_from([""] + sorted(d.motifs)))
+    graph = draw(st.sampled_from(sorted(_settable(d))))
     bid, changes = _settings_change(draw, d, graph)
     return edits.set_settings(d, bid, changes, graph=graph)
 
@@ -309,14 +317,27 @@ def remove_edit(draw, d: Design) -> edits.Edit:
 
 
 def disconnect_edit(draw, d: Design) -> edits.Edit:
-    assume(d.wires)
     return edits.disconnect(d, draw(st.sampled_from(list(d.wires))))
 
 
 def insert_edit(draw, d: Design) -> edits.Edit:
-    assume(d.wires)
     kind = draw(st.sampled_from(ACTIVATIONS + ("BatchNorm2d", "Identity", "Pointwise")))
     return edits.insert_on_wire(d, draw(st.sampled_from(list(d.wires))), [(kind, {})])
+
+
+def _has_blocks(d: Design) -> bool:
+    return bool(d.blocks)
+
+
+USABLE = {settings_edit: lambda d: bool(_settable(d)), add_edit: _has_blocks, connect_edit: _has_blocks,
+          rename_edit: _has_blocks, move_edit: _has_blocks, field_edit: lambda d: True, remove_edit: _has_blocks,
+          disconnect_edit: lambda d: bool(d.wires), insert_edit: lambda d: bool(d.wires)}
+"""When each edit maker can draw an edit: none samples from an empty collection."""
+
+
+def draw_edit(draw, d: Design, makers) -> edits.Edit:
+    """An edit from one of ``makers`` that can act on ``d`` as it is now (``field_edit`` always can)."""
+    return draw(st.sampled_from([m for m in makers if USABLE[m](d)] or [field_edit]))(draw, d)
 
 
 KEEPING_ORDER = (settings_edit, add_edit, connect_edit, rename_edit, move_edit, field_edit)
@@ -330,7 +351,7 @@ def _totals(d: Design):
 
 def _edit_and_undo(data, d: Design, makers) -> None:
     before_text, before_costs = fileformat.dumps(d), _totals(d)
-    edit = data.draw(st.sampled_from(makers))(data.draw, d)
+    edit = draw_edit(data.draw, d, makers)
     inverse = d.apply(edit)
     _check_sound(d)
     d.apply(inverse)
@@ -363,8 +384,7 @@ def _snapshot(d: Design):
 def test_incremental_equals_fresh_load(d, data):
     d.ledger()  # results exist before the edits, so what follows is incremental
     for _ in range(data.draw(st.integers(1, 6))):
-        maker = data.draw(st.sampled_from((settings_edit,) * 4 + RESHAPING))
-        d.apply(maker(data.draw, d))
+        d.apply(draw_edit(data.draw, d, (settings_edit,) * 4 + RESHAPING))
         if data.draw(st.booleans()):
             _check_sound(d)
     fresh = fileformat.parse(fileformat.dumps(d))

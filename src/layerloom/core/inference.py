@@ -20,7 +20,6 @@ deep (``motif.too_deep``).
 """
 from __future__ import annotations
 
-import graphlib
 import heapq
 from math import prod
 from typing import NamedTuple
@@ -28,6 +27,7 @@ from typing import NamedTuple
 from layerloom.core.findings import ERROR, WARNING, Finding, Report, Stop, sort_findings
 from layerloom.core.kinds import KINDS, Cost
 from layerloom.core.liveness import Plan, live_profile
+from layerloom.core.schedule import opened_profile
 from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
 from layerloom.core.values import quote
@@ -52,6 +52,7 @@ class Result(NamedTuple):
     extra: int = 0  # transient elements inside a motif instance beyond its inputs and outputs
     extra_freed: int = 0  # the same when the instance is the last reader of its inputs (may be < 0)
     executed: "Executed | None" = None  # a motif instance: its blocks as executed
+    fields: tuple | None = None  # a motif instance: (rf, jump) of each output port (rf and jump: their join)
 
 
 class Executed(NamedTuple):
@@ -63,10 +64,12 @@ class Executed(NamedTuple):
     elements: int  # activation elements they read and write (their inputs plus outputs)
     allocated: int  # elements of the tensors they allocate (views allocate none)
     work: tuple  # ((weights, MACs, elements), count) for the blocks that compute, for the roofline
+    run: tuple = ()  # the motif run's key, to fetch one copy's inner inference (Analysis.motif_run)
+    repeat: int = 1  # copies run in series
 
     def times(self, n: int) -> "Executed":
         return Executed(self.steps * n, self.elements * n, self.allocated * n,
-                        tuple((sig, count * n) for sig, count in self.work))
+                        tuple((sig, count * n) for sig, count in self.work), self.run, self.repeat * n)
 
 
 class MotifRun(NamedTuple):
@@ -74,12 +77,12 @@ class MotifRun(NamedTuple):
 
     outs: tuple  # per output port: Shape or None
     cost: Cost
-    rf: tuple[float, float]  # receptive field of one use, from a port with rf 1 and jump 1
-    jump: tuple[float, float]
+    fields: tuple  # (rf, jump) per output port: from inputs with rf 1 and jump 1, or the run's ``given``
     extra: int  # inner peak beyond outputs, inputs kept alive by the caller
     extra_freed: int  # inner peak beyond inputs and outputs, inputs freed inside after their last use
     findings: tuple[Finding, ...]
     executed: Executed
+    inner: GraphInference  # the motif's blocks inferred for this run
 
 
 def _widen(rf: float, extent: float, jump: float) -> float:
@@ -107,8 +110,9 @@ class GraphInference:
     """Inference of one graph: the design, or a motif fed the shapes of one instance's inputs."""
 
     def __init__(self, graph, analysis: "Analysis", ports: tuple | None = None, params: dict | None = None,
-                 stack: tuple[str, ...] = ()):
+                 stack: tuple[str, ...] = (), given: tuple | None = None):
         self.graph, self.analysis, self.ports, self.params, self.stack = graph, analysis, ports, params, stack
+        self.given = given  # (rf, jump) of each input port when not rf 1 and jump 1
         self.order: list[str] = []
         self.position: dict[str, int] = {}
         self.level: dict[str, int] = {}
@@ -150,7 +154,7 @@ class GraphInference:
     # ----- order, cycles, dead ends
     def reorder(self) -> None:
         """Depth order and levels (see :meth:`_levels`, then a stable sort by level: graphlib's
-        sorter is several times slower at thousands of blocks), loops named with graphlib, and the
+        sorter is several times slower at thousands of blocks), loops named, and the
         graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks = g.blocks
@@ -206,23 +210,30 @@ class GraphInference:
         return level, [b for b in g.blocks if indeg[b]]
 
     def _cycles(self, stuck: list[str]) -> list[Finding]:
-        """Name every loop among the blocks that could not be ordered (graphlib finds each)."""
+        """Name a loop through every block that is on one (each group of blocks that reach one
+        another is a loop; a walk through each member is named, in linear time)."""
         g = self.graph
         members = set(stuck)
-        preds = {b: [w.src for w in g.in_wires[b] if w.src in members] for b in stuck}
+        rank = {b: i for i, b in enumerate(stuck)}  # wires in block order, not in the order they were drawn
+        succ = {b: sorted({w.dst for w in g.out_wires[b] if w.dst in members}, key=rank.__getitem__) for b in stuck}
+        pred = {b: sorted({w.src for w in g.in_wires[b] if w.src in members}, key=rank.__getitem__) for b in stuck}
         found = []
-        while True:
-            try:
-                graphlib.TopologicalSorter(preds).prepare()
-                return found
-            except graphlib.CycleError as e:
-                loop = e.args[1]
-            names = " → ".join(g.blocks[b].name for b in reversed(loop))
-            for b in dict.fromkeys(loop):
+        for group in _strong_groups(stuck, succ):
+            root = group[0]
+            inside = set(group)
+            if len(group) == 1 and root not in succ[root]:
+                continue  # after a loop, not on one
+            ahead = _paths(root, succ, inside)  # root → b
+            back = _paths(root, pred, inside)  # b → root, read backwards
+            for b in group:
+                if b == root:
+                    p = next(x for x in pred[root] if x in inside)
+                    walk = _walk(ahead, p) + [root]
+                else:
+                    walk = list(reversed(_walk(back, b))) + _walk(ahead, b)[1:]
+                names = " → ".join(g.blocks[x].name for x in walk)
                 found.append(Finding("graph.cycle", ERROR, b, f"{g.blocks[b].name} is on a loop of wires: {names}"))
-                preds.pop(b, None)
-            for b in preds:
-                preds[b] = [p for p in preds[b] if p in preds]
+        return found
 
     def _dead_ends(self) -> list[Finding]:
         g = self.graph
@@ -245,9 +256,19 @@ class GraphInference:
         found: list[Finding] = []
         old = self.results.get(bid)
         result = None
-        if bid in self.stuck:
+        if bid in self.stuck:  # no shapes on a loop, but its wiring faults are still named
             self.results[bid] = None
-            self.findings.pop(bid, None)
+            try:
+                s = self.resolved_settings(blk) if self.params is not None else s
+                motif = self._motif(blk) if kind_name == "Motif" else None
+                self._gather(blk, len(motif.ports()[0]) if motif is not None else kind.input_count(s),
+                             g.in_wires[bid], found)
+            except Stop:
+                pass
+            if found:
+                self.findings[bid] = found
+            else:
+                self.findings.pop(bid, None)
             return old is not None
         try:
             if self.params is not None:
@@ -259,19 +280,20 @@ class GraphInference:
                 w = wires[0]
                 r = self.results.get(w.src)
                 if r is not None and w.src_port < len(r.outs) and g.blocks[w.src].kind != "Output":
-                    ins, rf, jump = (r.outs[w.src_port],), r.rf, r.jump
+                    ins, (rf, jump) = (r.outs[w.src_port],), _field(r, w.src_port)
+                    given = None
                 else:
                     ins = None
                     if r is not None:
                         found.append(self._no_such_output(blk, w, r))
             else:
-                ins, rf, jump = self._gather(blk, n_in, wires, found)
+                ins, rf, jump, given = self._gather(blk, n_in, wires, found)
             if kind_name == "Input":
                 result = self._input(blk, s)
             elif ins is None:
                 pass
             elif motif is not None:
-                result = self._use(blk, s, motif, ins, rf, jump, found)
+                result = self._use(blk, s, motif, ins, rf, jump, given, found)
             elif kind_name == "Output":
                 result = Result(ins, ins, Cost(), rf, jump)
             else:
@@ -294,7 +316,7 @@ class GraphInference:
                     kh, kw, sh, sw = window
                     rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
                     jump = (jump[0] * sh, jump[1] * sw)
-                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None))
+                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None))
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
         self.results[bid] = result
@@ -304,19 +326,19 @@ class GraphInference:
             self.findings.pop(bid, None)
         if old is None or result is None:
             return old is not result
-        return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump
+        return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump or old.fields != result.fields
 
     def _gather(self, blk, n_in, wires, found):
         """Input shapes of a block with several ports (or odd wiring); None if any is unknown."""
         by_port: list[list] = [[] for _ in range(n_in)]
-        for w in wires:
+        for w in sorted(wires, key=lambda w: (w.dst_port, w.src, w.src_port)):  # not in the order drawn
             if w.dst_port < n_in:
                 by_port[w.dst_port].append(w)
             else:
                 found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input"
                                      f"{'s' if n_in != 1 else ''} but a wire goes to input {w.dst_port + 1}",
                                      w.dst_port, (w.dst_port + 1, n_in)))
-        ins, rf, jump, known = [], list(ONE), [float("inf")] * 2, True
+        ins, rf, jump, known, given = [], list(ONE), [float("inf")] * 2, True, []
         for port, ws in enumerate(by_port):
             if not ws:
                 found.append(Finding("port.unwired", ERROR, blk.id,
@@ -338,9 +360,11 @@ class GraphInference:
                         found.append(self._no_such_output(blk, w, r))
                     continue
                 ins.append(r.outs[w.src_port])
-                rf = [max(rf[0], r.rf[0]), max(rf[1], r.rf[1])]
-                jump = [min(jump[0], r.jump[0]), min(jump[1], r.jump[1])]
-        return (tuple(ins), tuple(rf), tuple(jump)) if known else (None, None, None)
+                r_rf, r_jump = _field(r, w.src_port)
+                given.append((r_rf, r_jump))
+                rf = [max(rf[0], r_rf[0]), max(rf[1], r_rf[1])]
+                jump = [min(jump[0], r_jump[0]), min(jump[1], r_jump[1])]
+        return (tuple(ins), tuple(rf), tuple(jump), tuple(given)) if known else (None, None, None, None)
 
     def _no_such_output(self, blk, w, r) -> Finding:
         src = self.graph.blocks[w.src]
@@ -356,7 +380,8 @@ class GraphInference:
             if k >= len(self.ports) or self.ports[k] is None:
                 return None
             shape = self.ports[k]
-        return Result((), (shape,), Cost(), ONE, ONE)
+        rf, jump = self.given[k] if self.given is not None else (ONE, ONE)
+        return Result((), (shape,), Cost(), rf, jump)
 
     def resolved_settings(self, blk) -> dict:
         """``blk``'s settings with motif parameter references replaced by this run's values."""
@@ -383,13 +408,17 @@ class GraphInference:
                        f"motifs nest at most {MAX_NESTING} deep", numbers=(len(self.stack) + 1, MAX_NESTING))
         return motif
 
-    def _use(self, blk, s, motif, ins, rf, jump, found) -> Result | None:
+    def _use(self, blk, s, motif, ins, rf, jump, given, found) -> Result | None:
+        """One use of ``motif``. With one input the run is made from rf 1 and jump 1 (and shared by
+        uses at any depth) and its fields are composed with the input's, copy after copy; with
+        several inputs the run is given each input's (rf, jump), so branches keep their own."""
         params = {**motif.params, **{k: v for k, v in s.items() if k not in ("motif", "repeat")}}
         unknown = params.keys() - motif.params.keys()
         if unknown:
             raise Stop("motif.param", f"{blk.name} sets {', '.join(sorted(unknown))}, which motif {quote(motif.name)} "
                        f"does not have (it has: {', '.join(motif.params) or 'no parameters'})")
-        run = self.analysis.motif_run(motif, ins, params, self.stack)
+        given = given if len(ins) > 1 else None
+        run = self.analysis.motif_run(motif, ins, params, self.stack, given)
         found += [f.inside(blk.id, blk.name) for f in run.findings]
         if any(o is None for o in run.outs):
             return None  # an error inside was reported; whether copies stack is unknown
@@ -400,12 +429,87 @@ class GraphInference:
             raise Stop("motif.repeat_shape", f"{blk.name} repeats motif {quote(motif.name)} ×{repeat}, but one use turns "
                        f"{came} into {shown}, so the copies cannot be stacked; use repeat 1 for the shape-changing use",
                        numbers=(str(shown), str(came)))
-        for _ in range(repeat):
-            rf = (_widen(rf[0], run.rf[0], jump[0]), _widen(rf[1], run.rf[1], jump[1]))
-            jump = (jump[0] * run.jump[0], jump[1] * run.jump[1])
+        fields = run.fields
+        if given is None:
+            for _ in range(repeat):  # each copy's fields composed onto what reaches it
+                fields = tuple(((_widen(rf[0], f_rf[0], jump[0]), _widen(rf[1], f_rf[1], jump[1])),
+                                (jump[0] * f_jump[0], jump[1] * f_jump[1])) for f_rf, f_jump in run.fields)
+                if fields:
+                    rf, jump = fields[0]
+        rf = tuple(max(f[0][a] for f in fields) for a in (0, 1)) if fields else rf
+        jump = tuple(min(f[1][a] for f in fields) for a in (0, 1)) if fields else jump
         cost = Cost(*(v * repeat for v in run.cost)) if repeat > 1 else run.cost
         executed = run.executed.times(repeat) if repeat > 1 else run.executed
-        return Result(ins, run.outs, cost, rf, jump, run.extra, run.extra_freed, executed)
+        extra = run.extra
+        if repeat > 1:  # copies after the first take an input made inside the use, freed inside it
+            extra = max(extra, run.extra_freed + sum(x.elements for x in ins))
+        return Result(ins, run.outs, cost, rf, jump, extra, run.extra_freed, executed, fields)
+
+
+def _strong_groups(nodes: list[str], succ: dict) -> list[list[str]]:
+    """Groups of nodes that all reach one another (Tarjan's algorithm, without recursion), each in
+    the order of ``nodes``."""
+    order = {v: i for i, v in enumerate(nodes)}
+    index: dict[str, int] = {}
+    low: dict[str, int] = {}
+    stack: list[str] = []
+    on: set[str] = set()
+    groups = []
+    for start in nodes:
+        if start in index:
+            continue
+        work = [(start, 0)]
+        while work:
+            v, i = work.pop()
+            if i == 0:
+                index[v] = low[v] = len(index)
+                stack.append(v)
+                on.add(v)
+            if i < len(succ[v]):
+                work.append((v, i + 1))
+                w = succ[v][i]
+                if w not in index:
+                    work.append((w, 0))
+                elif w in on:
+                    low[v] = min(low[v], index[w])
+                continue
+            if low[v] == index[v]:
+                group = []
+                while True:
+                    w = stack.pop()
+                    on.discard(w)
+                    group.append(w)
+                    if w == v:
+                        break
+                groups.append(sorted(group, key=order.__getitem__))
+            if work:
+                parent = work[-1][0]
+                low[parent] = min(low[parent], low[v])
+    return groups
+
+
+def _paths(root: str, step: dict, inside: set) -> dict:
+    """Breadth-first parents from ``root`` following ``step`` within ``inside``."""
+    parent, todo = {root: None}, [root]
+    for v in todo:
+        for w in step[v]:
+            if w in inside and w not in parent:
+                parent[w] = v
+                todo.append(w)
+    return parent
+
+
+def _walk(parent: dict, b: str) -> list[str]:
+    """The path from the root to ``b`` in a parent map."""
+    path = [b]
+    while parent[path[-1]] is not None:
+        path.append(parent[path[-1]])
+    return path[::-1]
+
+
+def _field(r: Result, port: int) -> tuple:
+    """(rf, jump) of output ``port`` of a block's result."""
+    return r.fields[port] if r.fields is not None else (r.rf, r.jump)
 
 
 def _executed(graph, inference: GraphInference) -> Executed:
@@ -483,25 +587,26 @@ class Analysis:
             self.revision += 1
         return self
 
-    def motif_run(self, motif, ins: tuple, params: dict, stack: tuple) -> MotifRun:
-        key = (motif.name, ins, tuple(sorted(params.items())))
+    def motif_run(self, motif, ins: tuple, params: dict, stack: tuple, given: tuple | None = None) -> MotifRun:
+        """``motif`` inferred for input shapes ``ins`` and parameter values ``params`` (and, when
+        given, each input's (rf, jump)); remembered until a motif changes."""
+        key = (motif.name, ins, tuple(sorted(params.items())), given)
         run = self.motif_runs.get(key)
         if run is None:
-            inner = GraphInference(motif, self, ins, params, stack + (motif.name,))
+            inner = GraphInference(motif, self, ins, params, stack + (motif.name,), given)
             inner.run()
             in_ids, out_ids = motif.ports()
             outs = tuple(inner.results[b].outs[0] if inner.results.get(b) else None for b in out_ids)
-            done = [inner.results[b] for b in out_ids if inner.results.get(b)]
-            rf = (max((r.rf[0] for r in done), default=1.0), max((r.rf[1] for r in done), default=1.0))
-            jump = (max((r.jump[0] for r in done), default=1.0), max((r.jump[1] for r in done), default=1.0))
+            fields = tuple((r.rf, r.jump) if r is not None else (ONE, ONE)
+                           for r in (inner.results.get(b) for b in out_ids))
             kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
             freed = max(live_profile(motif, inner.order, inner.results), default=0)
             ends = sum(o.elements for o in outs if o is not None)
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
             cost = _add_costs(r.cost for r in inner.results.values() if r is not None)
-            run = MotifRun(outs, cost, rf, jump, max(kept - ends, 0), freed - ends - ins_size, findings,
-                           _executed(motif, inner))
+            run = MotifRun(outs, cost, fields, max(kept - ends, 0), freed - ends - ins_size, findings,
+                           _executed(motif, inner)._replace(run=key), inner)
             self.motif_runs[key] = run
         return run
 
@@ -551,8 +656,11 @@ class Analysis:
         return self._budget[1]
 
     def live_profile(self):
-        """Live activation elements per sample at each step of :attr:`order` (a list)."""
+        """Live activation elements per sample at each step of :attr:`order`, a list (for a motif
+        use, the largest over the blocks it runs: see :mod:`layerloom.core.schedule`)."""
         top = self.refresh().top
+        if self._profile is None:
+            self._profile = opened_profile(self.design, top)
         if self._profile is None:
             if top.plan is None:
                 top.plan = Plan(self.design, top.order)

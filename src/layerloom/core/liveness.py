@@ -6,7 +6,8 @@ freed. Blocks whose kind is a view (Flatten, Dropout at inference, Identity, Out
 nothing and keep their source alive. The design's outputs, and outputs nothing reads, stay alive
 to the end. A motif instance adds its inner transient memory beyond its inputs and outputs; when
 it is the last reader of its inputs they are freed inside it as soon as the inner blocks are done
-with them. Counts are elements per sample; the ledger multiplies by batch size and bytes.
+with them; in a repeated use, every copy after the first reads a tensor made inside the use,
+which counts while that copy runs. Counts are elements per sample; the ledger multiplies by batch size and bytes.
 
 When each tensor dies depends only on the wiring, so it is worked out once per order
 (:class:`Plan`); a settings edit only adds up the sizes again (plain lists: at a few thousand
@@ -36,11 +37,14 @@ class Plan:
         death = [n] * n  # nothing reads it: it stays to the end
         read = [False] * n
         uses = []
+        position = {b: i for i, b in enumerate(order)}
         for i, bid in enumerate(order):  # in order, so a source's owner is known before it is read
             kind = blocks[bid].kind
             ins = in_wires[bid]
             if kind == "Motif":
                 uses.append(i)
+            if len(ins) > 1:  # the same answer whatever order the wires were made in
+                ins = sorted(ins, key=lambda w: (w.dst_port, position.get(w.src, n), w.src_port))
             if inputs_outside and kind == "Input":
                 owner[bid] = None
             elif kind in VIEWS and ins:

@@ -12,7 +12,7 @@ from math import gcd
 from typing import Callable, NamedTuple
 
 from layerloom.core import edits
-from layerloom.core.findings import Finding, Stop
+from layerloom.core.findings import ERROR, Finding, Stop
 from layerloom.core.graph import Wire
 from layerloom.core.inference import GraphInference
 from layerloom.core.motif_view import feed
@@ -248,6 +248,8 @@ def _mend_repeat(place: Place, finding: Finding):
 
 @mend("graph.cycle")
 def _mend_cycle(place: Place, finding: Finding):
+    """Remove a wire closing the loop: the first that leaves no more errors than now (tried on a
+    copy: blocks on and after a loop have no shapes, so their own faults show only once it is broken)."""
     g = place.graph
     reach, todo = set(), [place.block]
     while todo:
@@ -257,14 +259,28 @@ def _mend_cycle(place: Place, finding: Finding):
                 todo.append(w.dst)
     for w in g.in_wires[place.block]:
         if w.src in reach:
-            yield Mend(f"Remove the wire from {place.name(w.src)} to {place.name(place.block)}",
-                       edits.disconnect(g, w))
-            return
+            edit = edits.disconnect(g, w)
+            if _count_errors_after(place.design, edit) <= _count_errors_after(place.design, None):
+                yield Mend(f"Remove the wire from {place.name(w.src)} to {place.name(place.block)}", edit)
+                return
+
+
+def _count_errors_after(design, edit) -> int:
+    """Error findings of a copy of ``design`` with ``edit`` applied (None: as it is)."""
+    from layerloom.core import fileformat
+
+    trial = fileformat.parse(fileformat.dumps(design))
+    if edit is not None:
+        trial.apply(edit)
+    return sum(f.severity == ERROR for f in trial.findings())
 
 
 @mend("graph.dead_end")
 def _mend_dead_end(place: Place, finding: Finding):
     b = place.graph.blocks[place.block]
+    motif = place.design.motifs.get(b.settings["motif"]) if b.kind == "Motif" else None
+    if motif is not None and not motif.ports()[1]:
+        return  # a use of a motif with no output port has nothing to wire an Output to
     spot = edits.clear_spot((o.position for o in place.graph.blocks.values()), (b.position[0] + 220.0, b.position[1]))
     edit, _ = edits.add_block(place.design, "Output", graph=place.graph.key, inputs=[(b.id, 0)], position=spot)
     yield Mend(f"Add an Output after {b.name}", edit)

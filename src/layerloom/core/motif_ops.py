@@ -4,7 +4,8 @@
   place; each distinct outside output feeding the selection becomes an input port, each inside
   output used outside becomes an output port.
 - :func:`expand` dissolves one instance into plain blocks (``repeat`` copies in series), with
-  parameter values written into the settings.
+  parameter values written into the settings, in the instance's place in the block order (which
+  breaks ties in depth order, so the figures stay the same).
 - :func:`expose` turns one setting of a block inside a motif into a parameter (its current value
   becomes the default, so nothing changes until an instance sets it).
 
@@ -78,7 +79,9 @@ def make_motif(design, block_ids, name: str | None = None, graph: str = "") -> t
     passed = {p: {"param": p} for p in used}
     instance_edit, instance = edits.add_block(design, "Motif", {"motif": name, "repeat": 1, **passed}, graph=graph,
                                               name=g.fresh_name(name), position=(sum(xs) / len(xs), middle))
-    ops += list(edits.remove_blocks(g, chosen).ops) + list(instance_edit.ops)
+    first = list(g.blocks).index(chosen[0])  # the use takes the place of the first block in the block order
+    placed = [instance_edit.ops[0]._replace(index=first), *instance_edit.ops[1:]]
+    ops += list(edits.remove_blocks(g, chosen).ops) + placed
     ops += [AddWire(graph, Wire(src, port, instance, k)) for k, (src, port) in enumerate(sources)]
     ops += [AddWire(graph, Wire(instance, results.index((w.src, w.src_port)), w.dst, w.dst_port)) for w in wires_out]
     return Edit(f"Make motif {name}", tuple(ops)), instance
@@ -118,6 +121,7 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
     left = min((b.position[0] for b in inner), default=0)
     ops: list = list(edits.remove_blocks(g, [instance_id]).ops)
     names = {b.name for b in g.blocks.values() if b.id != instance_id}
+    place = list(g.blocks).index(instance_id)  # the blocks take the use's place in the block order
     for r in range(repeat):
         ids = {}
         for b in inner:
@@ -127,7 +131,8 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
             name = base if base not in names else g.fresh_name(base, names)
             names.add(name)
             pos = (x0 + (b.position[0] - left) + r * span, y0 + b.position[1])
-            ops.append(AddBlock(graph, bid, b.kind, name, _written(design, motif, b, params, graph), pos))
+            ops.append(AddBlock(graph, bid, b.kind, name, _written(design, motif, b, params, graph), pos, place))
+            place += 1
 
         def outer(src: str, port: int, dst: str):
             if src in in_ids:

@@ -31,7 +31,7 @@ class Target(NamedTuple):
 
     def to_data(self) -> dict:
         return {"name": self.name, "gmacs_per_second": self.macs_per_second / 1e9,
-                "gbytes_per_second": self.bytes_per_second / 1e9, "overhead_us": self.overhead * 1e6,
+                "gbytes_per_second": self.bytes_per_second / 1e9, "overhead_us": round(self.overhead * 1e6, 9),
                 "assumptions": self.assumptions}
 
     @staticmethod
@@ -39,7 +39,7 @@ class Target(NamedTuple):
         """Inverse of :meth:`to_data`; raises ValueError naming a missing or non-positive field."""
         try:
             t = Target(str(data["name"]), float(data["gmacs_per_second"]) * 1e9,
-                       float(data["gbytes_per_second"]) * 1e9, float(data.get("overhead_us", 0.0)) * 1e-6,
+                       float(data["gbytes_per_second"]) * 1e9, float(data.get("overhead_us", 0.0)) / 1e6,
                        str(data.get("assumptions", "")))
         except KeyError as e:
             raise ValueError(f"target is missing {quote(e.args[0])}") from None

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from PySide6.QtGui import QColor, QFont, QPalette
 
-from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH
+from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH  # noqa: F401  (the card size lives in the core)
 
 # ----- colours
 CANVAS = QColor("#f4f5f2")  # the canvas behind everything
