@@ -205,7 +205,7 @@ def to_data(design: Design) -> dict:
     data: dict[str, Any] = {"format": FORMAT, "version": VERSION, "name": design.name, "batch": design.batch,
                             "dtype": design.dtype, "notes": design.notes}
     if design.budget:
-        data["budget"] = design.budget
+        data["budget"] = check_budget(design.budget)  # written as it reads back (a latency limit as a float)
     if design.target is not None:
         data["target"] = design.target.to_data()
     if design.baseline is not None:

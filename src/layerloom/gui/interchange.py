@@ -173,8 +173,7 @@ class ImportOutcome(QObject):
 
     @Slot()
     def ended(self) -> None:
-        if isValid(self.window):
-            self.window.import_job = None
+        self.window.import_job = None  # a Python attribute: fine even when the window is gone
         self.deleteLater()
 
 
