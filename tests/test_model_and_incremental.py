@@ -121,3 +121,13 @@ def test_incremental_results_equal_a_fresh_pass():
 def test_docstring_examples_run(module):
     result = doctest.testmod(importlib.import_module(module))
     assert result.attempted > 0 and result.failed == 0
+
+
+def test_renaming_away_from_a_name_ending_in_a_non_ascii_digit():
+    """'²' and 'stem_²' are digits to str.isdigit but not to int(): freeing such a name must not
+    fail (found by the long property profile: renaming input_1 to '²', then away from it)."""
+    d = Design()
+    x = d.input(3, 8, 8)
+    for name in ("²", "stem_²", "stem_٣", "input_1"):
+        d.apply(edits.rename(d, x, name))
+    assert d.blocks[x].name == "input_1"

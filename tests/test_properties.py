@@ -285,7 +285,8 @@ def _any_block(draw, g) -> str:
 
 
 def add_edit(draw, d: Design) -> edits.Edit:
-    kind = draw(st.sampled_from(sorted(set(KINDS) - {"Input", "Motif"})))
+    # Unmapped comes only from import, its traced shapes and input count set together
+    kind = draw(st.sampled_from(sorted(set(KINDS) - {"Input", "Motif", "Unmapped"})))
     edit, _ = edits.add_block(d, kind, {}, inputs=[(_any_block(draw, d), 0)])
     return edit
 

@@ -76,7 +76,7 @@ def _remove_stale(folder: Path, key: str) -> None:
         pid = name[len(PREFIX) + len(key) + 1:].split("-")[0]
         try:
             old = time.time() - os.stat(folder / name).st_mtime > STALE_AFTER_S
-            if old or not (pid.isdigit() and _alive(int(pid))):
+            if old or not (pid.isascii() and pid.isdigit() and _alive(int(pid))):
                 os.unlink(folder / name)
         except OSError:
             pass

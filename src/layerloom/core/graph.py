@@ -137,7 +137,7 @@ class Graph:
             return
         del self._names[name]
         stem, _, n = name.rpartition("_")
-        if n.isdigit() and self._next.get(stem, 1) > int(n) >= 1:
+        if n.isascii() and n.isdigit() and self._next.get(stem, 1) > int(n) >= 1:  # not "²"
             self._next[stem] = int(n)  # a lower stem_n is free again
 
     def _moved_from(self, position) -> None:
