@@ -114,3 +114,37 @@ def test_receptive_field_follows_each_output_and_each_input_of_a_motif():
     flat = expanded_copy(d)
     assert _output_rfs(d) == [(1, 1), (5, 5), (3, 3)]
     assert sorted(_output_rfs(flat)) == sorted(_output_rfs(d))
+
+
+def _two_branches(first_on_port_0: bool) -> tuple[Design, dict[str, str]]:
+    """x → a1 → a2 and x → b1 → b2, joined by a Concat, blocks added x, a1, b1, b2, a2 (so a
+    depth tie broken by insertion would run b2 before a2). One element per pixel of an 8×8 map:
+    x 64, a1 and b1 1,024 each, a2 512, b2 64 elements."""
+    d = Design("two-branch-tie")
+    x = d.input(1, 8, 8)
+    ids = {"a1": d.add("Pointwise", x, out_channels=16), "b1": d.add("Pointwise", x, out_channels=16)}
+    ids["b2"] = d.add("Pointwise", ids["b1"], out_channels=1)
+    ids["a2"] = d.add("Pointwise", ids["a1"], out_channels=8)
+    pair = (ids["a2"], ids["b2"]) if first_on_port_0 else (ids["b2"], ids["a2"])
+    d.add("Output", d.add("Concat", *pair))
+    return d, ids
+
+
+@pytest.mark.parametrize("first_on_port_0, peak", [(True, 2_560 * 4), (False, 2_112 * 4)])
+def test_a_depth_tie_runs_the_branch_of_the_earlier_port_first_grouped_or_not(first_on_port_0, peak):
+    """Hand-worked, fp32. Of two blocks of one depth, the one on the path to the Concat's earlier
+    input runs first, whatever the order blocks were added. a2 first: after a2, a1 (not yet freed),
+    b1 (read later by b2) and a2 are alive: 1,024 + 1,024 + 512 = 2,560 elements. b2 first: the
+    most alive at once is x + a1 + b1 = 2,112 (then a1 + b1 + b2, the same). Grouping a1 and a2
+    into a motif (whose use takes a1's place in the block order) and expanding it keep the peak.
+    With the old tie-break (insertion order) the flat design gave 2,112 either way."""
+    d, ids = _two_branches(first_on_port_0)
+    order = d.analysis().order
+    first, second = ("a2", "b2") if first_on_port_0 else ("b2", "a2")
+    assert order.index(ids[first]) < order.index(ids[second])
+    assert Ledger(d.analysis()).totals.peak_memory == peak
+    edit, inst = make_motif(d, [ids["a1"], ids["a2"]], name="branch")
+    d.apply(edit)
+    assert Ledger(d.analysis()).totals.peak_memory == peak
+    d.apply(expand(d, inst))
+    assert Ledger(d.analysis()).totals.peak_memory == peak

@@ -11,9 +11,14 @@ every finding. What must hold after each step:
 - no offered mend increases the number of error findings (and undoing it restores the file);
 - saving and loading gives the same file and the same results as the design kept incrementally;
 - an error-free design expands into an error-free flat design with the same figures: every total,
-  and per block the same figures (a motif use: the sums over the blocks it became).
+  and per block the same figures (a motif use: the sums over the blocks it became);
+- grouping random selections into motifs keeps every total, peak live memory included;
+- the order of blocks and wires in a file (Input and Output blocks aside: they number the ports)
+  changes no figure and not the execution order.
 """
 from __future__ import annotations
+
+import json
 
 import hypothesis.strategies as st
 import pytest
@@ -251,32 +256,34 @@ def test_random_edit_sequences_with_motifs_hold_every_invariant(d, data):
         check_all(d)
 
 
-def _order_free_totals(d: Design):
-    """Totals that do not depend on the order blocks were added (the peak does: it breaks ties)."""
+def _grouping_free_totals(d: Design):
+    """Every total but where the peak is reached (a motif use stands for the blocks it runs), and
+    the latency apart (a float sum, in another order when grouped)."""
     t = Ledger(d.analysis()).totals
-    return t._replace(peak_block=None, peak_memory=None, latency=None), t.latency
+    return t._replace(peak_block=None, latency=None), t.latency
 
 
 @settings(max_examples=examples(80), **SLOW)
 @given(any_design, st.data())
 def test_grouping_random_convex_selections_keeps_every_figure(d, data):
     """Make motifs of random convex selections (also inside motifs): the totals stay those of the
-    design before, and the grouped design has exactly the figures of its expanded form."""
-    before, latency = _order_free_totals(d)
+    design before (peak live memory included), and the grouped design has exactly the figures of
+    its expanded form."""
+    before, latency = _grouping_free_totals(d)
     for _ in range(data.draw(st.integers(1, 3))):
         try:
             d.apply(make_motif_edit(data.draw, d))
         except REFUSALS:
             continue
-        now, now_latency = _order_free_totals(d)
+        now, now_latency = _grouping_free_totals(d)
         assert now == before
         assert now_latency == pytest.approx(latency, rel=1e-9, abs=1e-15) if latency is not None else now_latency is None
         check_same_figures_expanded(d)
 
 
 def test_grouping_a_run_of_blocks_keeps_the_peak():
-    """Made from blocks added one after the other, a motif takes their place in depth order, so
-    even the peak (which depends on that order) is the same grouped, expanded and as first drawn."""
+    """The peak depends on the execution order, which depends on the wiring alone: the same
+    grouped, expanded and as first drawn."""
     d = Design()
     x = d.input(8, 16, 16)
     side = d.add("Flatten", x)
@@ -290,3 +297,40 @@ def test_grouping_a_run_of_blocks_keeps_the_peak():
     assert Ledger(d.analysis()).totals.peak_memory == peak
     d.apply(expand(d, inst))
     assert Ledger(d.analysis()).totals.peak_memory == peak
+
+
+def _shuffled(draw, d: Design) -> Design:
+    """``d`` saved, the lists of blocks and of wires in the file (of the design and of each motif)
+    put in a random order, and loaded. Input and Output blocks keep their order among themselves:
+    it numbers the ports."""
+    data = json.loads(fileformat.dumps(d))
+    for graph in [data, *data.get("motifs", [])]:
+        blocks = draw(st.permutations(graph["blocks"]))
+        ports = [b for b in graph["blocks"] if b["kind"] in PORT_KINDS]
+        slots = [i for i, b in enumerate(blocks) if b["kind"] in PORT_KINDS]
+        for i, b in zip(slots, ports):
+            blocks[i] = b
+        graph["blocks"] = blocks
+        graph["wires"] = draw(st.permutations(graph["wires"]))
+    return fileformat.parse(json.dumps(data))
+
+
+def _figures_by_block(d: Design):
+    L = Ledger(d.analysis())
+    rows = {r.block: r for r in L.rows}
+    live = dict(zip(L.order, L.live.tolist()))
+    findings = sorted((f.code, f.block, f.message) for f in d.findings())
+    return L.order, L.totals, rows, live, findings
+
+
+@settings(max_examples=examples(60), **SLOW)
+@given(any_design, st.data())
+def test_the_order_of_blocks_and_wires_in_a_file_changes_no_figure(d, data):
+    """Shuffled in the file, the same design runs its blocks in the same order and has the same
+    totals (peak and latency included), the same row and live memory per block, the same findings."""
+    for _ in range(data.draw(st.integers(0, 3))):  # edits leave blocks in any order
+        try:
+            d.apply(any_edit(data.draw, d))
+        except REFUSALS:
+            continue
+    assert _figures_by_block(_shuffled(data.draw, d)) == _figures_by_block(d)

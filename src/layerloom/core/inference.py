@@ -1,10 +1,11 @@
 """Shape inference: every port's shape, each block's cost and receptive field, and the findings.
 
-Reads like an interpreter: blocks in topological order (longest-path level, then insertion
-order), one step per block, an environment of :class:`Result` keyed by block id. Problems the
-user can fix are :class:`~layerloom.core.findings.Finding` data, never exceptions. After an edit
-only the changed blocks and what lies downstream of them are computed again, and propagation stops
-where a block's outputs come out unchanged. Kind rules are pure functions of (settings, input
+Reads like an interpreter: blocks in execution order (longest-path level, then a rank that
+depends only on the wiring: :mod:`layerloom.core.wiring`), one step per block, an environment of
+:class:`Result` keyed by block id. Problems the user can fix are
+:class:`~layerloom.core.findings.Finding` data, never exceptions. After an edit only the changed
+blocks and what lies downstream of them are computed again, and propagation stops where a
+block's outputs come out unchanged. Kind rules are pure functions of (settings, input
 shapes), so their answers for finding-free blocks are remembered and reused.
 
 Receptive field and effective stride (jump) are in input pixels per axis: a window of extent k and
@@ -31,6 +32,7 @@ from layerloom.core.schedule import opened_profile
 from layerloom.core.settings import SettingError
 from layerloom.core.shapes import Shape
 from layerloom.core.values import quote
+from layerloom.core.wiring import Wiring, wire_up
 
 ONE = (1.0, 1.0)
 MAX_ELEMENTS = 1 << 64
@@ -121,6 +123,7 @@ class GraphInference:
         self.graph_findings: list[Finding] = []
         self.port_index: dict[str, int] = {}
         self.stuck: set[str] = set()  # blocks on a loop or after one: no results
+        self.wiring: Wiring | None = None
         self.plan: Plan | None = None  # liveness plan of this order (wiring only), made on demand
         self.memo = analysis.memo if analysis is not None else {}
 
@@ -153,61 +156,25 @@ class GraphInference:
 
     # ----- order, cycles, dead ends
     def reorder(self) -> None:
-        """Depth order and levels (see :meth:`_levels`, then a stable sort by level: graphlib's
-        sorter is several times slower at thousands of blocks), loops named, and the
+        """Execution order and levels (:mod:`layerloom.core.wiring`), loops named, and the
         graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks = g.blocks
-        level, stuck = self._levels()
-        top = max(level.values(), default=-1) + 1
-        for b in stuck:  # on a loop or after one: they go last
-            level[b] = top
+        wiring = wire_up(blocks, g.in_wires, [b.id for b in g.of_kind("Output")])
+        self.wiring = wiring
+        stuck = wiring.stuck
         self.stuck = set(stuck)
         found: list[Finding] = self._cycles(stuck) if stuck else []
-        order = sorted(blocks, key=level.__getitem__)  # a stable sort: insertion order within a level
-        self.order = order
+        self.order = wiring.order
         self.plan = None
-        self.level = level
-        self.position = {b: i for i, b in enumerate(order)}
+        self.level = wiring.level
+        self.position = wiring.position
         for gone in set(self.results) - blocks.keys():
             del self.results[gone]
             self.findings.pop(gone, None)
         self.port_index = {b.id: i for i, b in enumerate(g.of_kind("Input"))}
         found += self._dead_ends()
         self.graph_findings = found
-
-    def _levels(self) -> tuple[dict[str, int], list[str]]:
-        """Each block's longest-path level from the blocks without input wires, and the blocks on
-        a loop or after one (left without a level). One walk when every block comes after its
-        sources in insertion order (files are written so and added blocks are appended: the usual
-        case, about twice as quick), else Kahn's algorithm."""
-        g = self.graph
-        in_wires, level = g.in_wires, {}
-        try:
-            for b in g.blocks:
-                n = 0
-                for w in in_wires[b]:
-                    m = level[w.src]  # KeyError: a source comes later
-                    if m >= n:
-                        n = m + 1
-                level[b] = n
-            return level, []
-        except KeyError:
-            pass
-        out_wires = g.out_wires
-        indeg = {b: len(ws) for b, ws in in_wires.items()}
-        level = {b: 0 for b, n in indeg.items() if n == 0}
-        queue = list(level)
-        for b in queue:
-            nxt = level[b] + 1
-            for w in out_wires[b]:
-                d = w.dst
-                if level.get(d, 0) < nxt:
-                    level[d] = nxt
-                indeg[d] -= 1
-                if indeg[d] == 0:
-                    queue.append(d)
-        return level, [b for b in g.blocks if indeg[b]]
 
     def _cycles(self, stuck: list[str]) -> list[Finding]:
         """Name a loop through every block that is on one (each group of blocks that reach one
@@ -599,8 +566,8 @@ class Analysis:
             outs = tuple(inner.results[b].outs[0] if inner.results.get(b) else None for b in out_ids)
             fields = tuple((r.rf, r.jump) if r is not None else (ONE, ONE)
                            for r in (inner.results.get(b) for b in out_ids))
-            kept = max(live_profile(motif, inner.order, inner.results, inputs_outside=True), default=0)
-            freed = max(live_profile(motif, inner.order, inner.results), default=0)
+            kept = max(live_profile(motif, inner.wiring, inner.results, inputs_outside=True), default=0)
+            freed = max(live_profile(motif, inner.wiring, inner.results), default=0)
             ends = sum(o.elements for o in outs if o is not None)
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
@@ -613,7 +580,7 @@ class Analysis:
     # ----- reading results
     @property
     def order(self) -> list[str]:
-        """Block ids in depth order (longest-path level, then insertion order)."""
+        """Block ids in execution order (longest-path level, then rank: :mod:`layerloom.core.wiring`)."""
         return self.refresh().top.order
 
     @property
@@ -663,6 +630,6 @@ class Analysis:
             self._profile = opened_profile(self.design, top)
         if self._profile is None:
             if top.plan is None:
-                top.plan = Plan(self.design, top.order)
-            self._profile = live_profile(self.design, top.order, top.results, plan=top.plan)
+                top.plan = Plan(self.design, top.wiring)
+            self._profile = live_profile(self.design, top.wiring, top.results, plan=top.plan)
         return self._profile

@@ -38,8 +38,8 @@ them for users):
   statistics and optimizer step counters are not counted. All at the design's element type; with
   mixed precision, activations at fp16 and weights, gradients and optimizer state at fp32 (master
   weights) plus an fp16 working copy of the weights.
-- **depth order**: topological order by longest-path level from the inputs, ties broken by the
-  order blocks were added; **depth** is that level. **steps** count blocks as executed (a motif
+- **depth order**: topological order by longest-path level from the inputs, ties broken by a
+  rank that depends only on the wiring (:mod:`layerloom.core.wiring`); **depth** is that level. **steps** count blocks as executed (a motif
   use counts the blocks it executes): the Depth ledger's x axis.
 
 Counts and bytes are exact at any size: numpy arrays of them are int64 when every sum fits, else

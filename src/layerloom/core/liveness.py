@@ -9,8 +9,8 @@ it is the last reader of its inputs they are freed inside it as soon as the inne
 with them; in a repeated use, every copy after the first reads a tensor made inside the use,
 which counts while that copy runs. Counts are elements per sample; the ledger multiplies by batch size and bytes.
 
-When each tensor dies depends only on the wiring, so it is worked out once per order
-(:class:`Plan`); a settings edit only adds up the sizes again (plain lists: at a few thousand
+When each tensor dies depends only on the wiring, so it is worked out once per change of wiring
+(:class:`Plan`, over the order of :mod:`layerloom.core.wiring`); a settings edit only adds up the sizes again (plain lists: at a few thousand
 blocks one loop beats building numpy arrays from Python values).
 """
 from __future__ import annotations
@@ -18,6 +18,7 @@ from __future__ import annotations
 from math import prod
 
 from layerloom.core.kinds import KINDS
+from layerloom.core.wiring import Wiring
 
 VIEWS = frozenset(name for name, kind in KINDS.items() if kind.view)
 
@@ -29,31 +30,27 @@ class Plan:
 
     __slots__ = ("allocates", "death", "last_reader")
 
-    def __init__(self, graph, order, inputs_outside: bool = False):
+    def __init__(self, graph, wiring: Wiring, inputs_outside: bool = False):
+        order, sources = wiring.order, wiring.sources
         n = len(order)
-        blocks, in_wires = graph.blocks, graph.in_wires
-        owner: dict[str, int | None] = {}  # block → step whose tensor it hands on (None: not ours)
+        blocks = graph.blocks
+        owner: list[int | None] = [None] * n  # step whose tensor a step hands on (None: not ours)
         allocates = [False] * n
         death = [n] * n  # nothing reads it: it stays to the end
         read = [False] * n
         uses = []
-        position = {b: i for i, b in enumerate(order)}
         for i, bid in enumerate(order):  # in order, so a source's owner is known before it is read
             kind = blocks[bid].kind
-            ins = in_wires[bid]
+            ss = sources[i]
             if kind == "Motif":
                 uses.append(i)
-            if len(ins) > 1:  # the same answer whatever order the wires were made in
-                ins = sorted(ins, key=lambda w: (w.dst_port, position.get(w.src, n), w.src_port))
-            if inputs_outside and kind == "Input":
-                owner[bid] = None
-            elif kind in VIEWS and ins:
-                owner[bid] = owner.get(ins[0].src)
-            elif kind != "Output":
-                owner[bid] = i
+            if kind in VIEWS and ss:
+                owner[i] = owner[ss[0]]
+            elif kind != "Output" and not (inputs_outside and kind == "Input"):  # an outside input is not ours
+                owner[i] = i
                 allocates[i] = True
-            for w in ins:
-                o = owner.get(w.src)
+            for s in ss:
+                o = owner[s]
                 if o is None:
                     continue
                 if kind == "Output":  # the design's outputs stay to the end
@@ -62,17 +59,18 @@ class Plan:
                     death[o], read[o] = i, True
         last = [True] * n
         for i in uses:
-            for w in in_wires[order[i]]:
-                o = owner.get(w.src)
+            for s in sources[i]:
+                o = owner[s]
                 if o is None or death[o] != i:
                     last[i] = False
                     break
         self.allocates, self.death, self.last_reader = allocates, death, last
 
 
-def live_profile(graph, order, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
-    """Live elements per sample at each step of ``order`` (after allocation, before freeing)."""
-    plan = plan or Plan(graph, order, inputs_outside)
+def live_profile(graph, wiring: Wiring, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
+    """Live elements per sample at each step of ``wiring.order`` (after allocation, before freeing)."""
+    order = wiring.order
+    plan = plan or Plan(graph, wiring, inputs_outside)
     allocates, death, last_reader = plan.allocates, plan.death, plan.last_reader
     freed = [0] * (len(order) + 1)  # elements freed after each step
     live, total = [], 0

@@ -2,10 +2,10 @@
 
 Grouping blocks into a motif must not change the peak, so a design that uses motifs is opened up:
 every use becomes the blocks it runs (ports left out, nested uses opened, each repeat a copy),
-wired as if expanded. These steps run in depth order of that opened-up network (longest-path
-level from its inputs, ties broken by the order blocks were added, where a use's blocks take the
-place of the use, in the motif's own order, copy after copy — the order :func:`expand` gives
-them). :mod:`layerloom.core.liveness` then walks them as it walks a plain design.
+wired as if expanded. These steps run in the execution order of that opened-up network, by the
+rule of a plain design (:mod:`layerloom.core.wiring`, which depends on the wiring alone, so it is
+the order of the design expanded or drawn flat); :mod:`layerloom.core.liveness` then walks them
+as it walks a plain design.
 
 Each block of the design is given the largest live total of its steps (a plain block has one). A
 design whose uses run more than :data:`STEP_LIMIT` blocks keeps the quicker estimate that runs
@@ -16,7 +16,8 @@ from __future__ import annotations
 from typing import NamedTuple
 
 from layerloom.core.graph import Wire
-from layerloom.core.liveness import Plan, live_profile
+from layerloom.core.liveness import live_profile
+from layerloom.core.wiring import wire_up
 
 STEP_LIMIT = 200_000
 
@@ -39,26 +40,20 @@ class _Opened:
         self.blocks: dict[tuple, _Block] = {}
         self.in_wires: dict[tuple, list[Wire]] = {}
         self.results: dict[tuple, _Step] = {}
-        self.key: dict[tuple, tuple] = {}  # insertion order, as path of indices
-        self.level: dict[tuple, int] = {}
 
-    def add(self, step: tuple, key: tuple, kind: str, outs: tuple, sources: list) -> None:
-        wires = [Wire(src, port, step, k) for (src, port), k in sources]
-        self.blocks[step], self.in_wires[step], self.key[step] = _Block(kind), wires, key
+    def add(self, step: tuple, kind: str, outs: tuple, sources: list) -> None:
+        self.blocks[step] = _Block(kind)
+        self.in_wires[step] = [Wire(src, port, step, k) for (src, port), k in sources]
         self.results[step] = _Step(outs)
-        self.level[step] = max((self.level[w.src] + 1 for w in wires), default=0)
 
-    def open(self, graph, inference, path: tuple, key: tuple, feeds: list, stack: tuple = ()) -> list:
+    def open(self, graph, inference, path: tuple, feeds: list, stack: tuple = ()) -> list:
         """Add the steps of ``graph`` inferred by ``inference``; ``feeds`` are the steps feeding its
         input ports. Returns the steps its output ports hand on."""
         env: dict[str, list] = {}
-        index = {b: i for i, b in enumerate(graph.blocks)}
         port_of = {b.id: k for k, b in enumerate(graph.of_kind("Input"))}
-        position = inference.position
         inside = bool(path)
-        for bid in inference.order:
+        for bid, wires in zip(inference.order, inference.wiring.wires):
             blk, r = graph.blocks[bid], inference.results.get(bid)
-            wires = sorted(graph.in_wires[bid], key=lambda w: (w.dst_port, position.get(w.src, 0), w.src_port))
             sources = [self._source(env, w) for w in wires]
             if inside and blk.kind == "Input":
                 env[bid] = [feeds[port_of[bid]] if port_of[bid] < len(feeds) else None]
@@ -70,13 +65,12 @@ class _Opened:
                                                 given).inner
                 current = sources
                 for copy in range(r.executed.repeat):
-                    current = self.open(inner.graph, inner, path + (bid, copy), key + (index[bid], copy), current,
-                                        stack + (name,))
+                    current = self.open(inner.graph, inner, path + (bid, copy), current, stack + (name,))
                 env[bid] = current
             else:
                 step = path + (bid,)
                 known = [(s, w.dst_port) for s, w in zip(sources, wires) if s is not None]
-                self.add(step, key + (index[bid],), blk.kind, r.outs if r is not None else (), known)
+                self.add(step, blk.kind, r.outs if r is not None else (), known)
                 env[bid] = [(step, p) for p in range(len(r.outs))] if r is not None else []
         if not inside:
             return []
@@ -96,11 +90,11 @@ def opened_profile(design, top) -> list[int] | None:
     if not ran or sum(e.steps for e in ran) > STEP_LIMIT:
         return None
     net = _Opened(top.analysis)
-    net.open(design, top, (), (), [])
-    order = sorted(net.blocks, key=lambda s: (net.level[s], net.key[s]))
-    live = live_profile(net, order, net.results, plan=Plan(net, order))
+    net.open(design, top, (), [])
+    wiring = wire_up(net.blocks, net.in_wires, [(b.id,) for b in design.of_kind("Output")])
+    live = live_profile(net, wiring, net.results)
     per_block = dict.fromkeys(top.order, None)
-    for step, value in zip(order, live):
+    for step, value in zip(wiring.order, live):
         mine = per_block[step[0]]
         per_block[step[0]] = value if mine is None else max(mine, value)
     out, last = [], 0
