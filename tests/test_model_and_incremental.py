@@ -29,9 +29,9 @@ def counted(monkeypatch):
     calls = []
     real = GraphInference._compute
 
-    def spy(self, bid):
+    def spy(self, bid, wires):
         calls.append(bid)
-        return real(self, bid)
+        return real(self, bid, wires)
     monkeypatch.setattr(GraphInference, "_compute", spy)
     return calls
 

@@ -316,18 +316,22 @@ def _shuffled(draw, d: Design) -> Design:
 
 
 def _figures_by_block(d: Design):
+    """Order, totals, rows, live memory and findings; blocks on a loop of wires (no shapes, run
+    last) aside from the order, and which walk names a loop aside from the findings."""
     L = Ledger(d.analysis())
     rows = {r.block: r for r in L.rows}
     live = dict(zip(L.order, L.live.tolist()))
-    findings = sorted((f.code, f.block, f.message) for f in d.findings())
-    return L.order, L.totals, rows, live, findings
+    stuck = d.analysis().top.stuck
+    findings = sorted((f.code, f.block, "" if f.code == "graph.cycle" else f.message) for f in d.findings())
+    return [b for b in L.order if b not in stuck], L.totals, rows, live, findings
 
 
 @settings(max_examples=examples(60), **SLOW)
 @given(any_design, st.data())
 def test_the_order_of_blocks_and_wires_in_a_file_changes_no_figure(d, data):
     """Shuffled in the file, the same design runs its blocks in the same order and has the same
-    totals (peak and latency included), the same row and live memory per block, the same findings."""
+    totals (peak and latency included), the same row and live memory per block, the same findings
+    (a loop of wires may be named from another block)."""
     for _ in range(data.draw(st.integers(0, 3))):  # edits leave blocks in any order
         try:
             d.apply(any_edit(data.draw, d))

@@ -116,8 +116,6 @@ class GraphInference:
         self.graph, self.analysis, self.ports, self.params, self.stack = graph, analysis, ports, params, stack
         self.given = given  # (rf, jump) of each input port when not rf 1 and jump 1
         self.order: list[str] = []
-        self.position: dict[str, int] = {}
-        self.level: dict[str, int] = {}
         self.results: dict[str, Result | None] = {}
         self.findings: dict[str, list[Finding]] = {}
         self.graph_findings: list[Finding] = []
@@ -131,8 +129,9 @@ class GraphInference:
     def run(self) -> None:
         """Infer every block."""
         self.reorder()
-        for bid in self.order:
-            self._compute(bid)
+        compute = self._compute
+        for bid, wires in self.wiring.in_order():
+            compute(bid, wires)
 
     def update(self, dirty: set[str], topology: bool) -> None:
         """Infer again the ``dirty`` blocks and whatever downstream changes because of them."""
@@ -140,19 +139,30 @@ class GraphInference:
             before = self.stuck
             self.reorder()
             dirty = set(dirty) | (before ^ self.stuck)  # blocks that joined or left a loop
-        position, out_wires = self.position, self.graph.out_wires
+        position, out_wires, wiring = self.position, self.graph.out_wires, self.wiring
+        feeds, steps = wiring.feeds, wiring.steps
         heap = [(position[b], b) for b in dirty if b in position]
         heapq.heapify(heap)
         done = set()
         while heap:
-            _, bid = heapq.heappop(heap)
+            p, bid = heapq.heappop(heap)
             if bid in done:
                 continue
             done.add(bid)
-            if self._compute(bid):
+            if self._compute(bid, feeds[steps[p]]):
                 for w in out_wires[bid]:
                     if w.dst not in done:
                         heapq.heappush(heap, (position[w.dst], w.dst))
+
+    @property
+    def position(self) -> dict[str, int]:
+        """Block id → its step in :attr:`order`."""
+        return self.wiring.position
+
+    @property
+    def level(self) -> dict[str, int]:
+        """Block id → its level (longest path from a block without input wires)."""
+        return self.wiring.level
 
     # ----- order, cycles, dead ends
     def reorder(self) -> None:
@@ -160,19 +170,16 @@ class GraphInference:
         graph-level findings (loops, dead ends)."""
         g = self.graph
         blocks = g.blocks
-        wiring = wire_up(blocks, g.in_wires, [b.id for b in g.of_kind("Output")])
-        self.wiring = wiring
+        wiring = self.wiring = wire_up(blocks, g.in_wires)
         stuck = wiring.stuck
         self.stuck = set(stuck)
         found: list[Finding] = self._cycles(stuck) if stuck else []
         self.order = wiring.order
         self.plan = None
-        self.level = wiring.level
-        self.position = wiring.position
-        for gone in set(self.results) - blocks.keys():
+        for gone in self.results.keys() - blocks.keys():
             del self.results[gone]
             self.findings.pop(gone, None)
-        self.port_index = {b.id: i for i, b in enumerate(g.of_kind("Input"))}
+        self.port_index = {b: i for i, b in enumerate(wiring.of_kind("Input"))}
         found += self._dead_ends()
         self.graph_findings = found
 
@@ -204,51 +211,41 @@ class GraphInference:
 
     def _dead_ends(self) -> list[Finding]:
         g = self.graph
-        outputs = g.of_kind("Output")
-        if not outputs:
+        kinds = self.wiring.kinds
+        if "Output" not in kinds:
             if not g.blocks:
                 return []
             return [Finding("graph.no_output", WARNING, "", "there is no Output block, so nothing is produced")]
-        return [Finding("graph.dead_end", WARNING, b.id, f"nothing after {b.name} reaches an Output")
-                for b in g.blocks.values() if not g.out_wires[b.id] and b.kind != "Output"]
+        out_wires, blocks = g.out_wires, g.blocks  # a block that reaches an Output is no dead end
+        return [Finding("graph.dead_end", WARNING, b, f"nothing after {blocks[b].name} reaches an Output")
+                for b in self.wiring.unreached if not out_wires[b]]
 
     # ----- one step
-    def _compute(self, bid: str) -> bool:
-        """Infer one block; return True when its outputs or receptive field changed."""
-        g = self.graph
-        blk = g.blocks[bid]
+    def _compute(self, bid: str, wires) -> bool:
+        """Infer one block from its input ``wires`` (in port order); return True when its outputs
+        or receptive field changed."""
+        blk = self.graph.blocks[bid]
+        results = self.results
+        old = results.get(bid)
+        if bid in self.stuck:
+            return self._on_loop(blk, wires, old)
         kind_name = blk.kind
-        kind = KINDS[kind_name]
-        s = blk.settings
         found: list[Finding] = []
-        old = self.results.get(bid)
         result = None
-        if bid in self.stuck:  # no shapes on a loop, but its wiring faults are still named
-            self.results[bid] = None
-            try:
-                s = self.resolved_settings(blk) if self.params is not None else s
-                motif = self._motif(blk) if kind_name == "Motif" else None
-                self._gather(blk, len(motif.ports()[0]) if motif is not None else kind.input_count(s),
-                             g.in_wires[bid], found)
-            except Stop:
-                pass
-            if found:
-                self.findings[bid] = found
-            else:
-                self.findings.pop(bid, None)
-            return old is not None
         try:
-            if self.params is not None:
-                s = self.resolved_settings(blk)
-            motif = self._motif(blk) if kind_name == "Motif" else None
-            n_in = len(motif.ports()[0]) if motif is not None else kind.input_count(s)
-            wires = g.in_wires[bid]
-            if n_in == 1 and len(wires) == 1 and wires[0].dst_port == 0:
+            s = blk.settings if self.params is None else self.resolved_settings(blk)
+            if kind_name == "Motif":
+                kind, motif = None, self._motif(blk)
+                n_in = len(motif.ports()[0])
+            else:
+                kind, motif = KINDS[kind_name], None
+                n_in = kind.input_count(s)
+            if n_in == 1 and len(wires) == 1 and wires[0].dst_port == 0:  # the usual case
                 w = wires[0]
-                r = self.results.get(w.src)
-                if r is not None and w.src_port < len(r.outs) and g.blocks[w.src].kind != "Output":
-                    ins, (rf, jump) = (r.outs[w.src_port],), _field(r, w.src_port)
-                    given = None
+                r = results.get(w.src)
+                port = w.src_port
+                if r is not None and port < len(r.outs) and self.graph.blocks[w.src].kind != "Output":
+                    ins, (rf, jump), given = (r.outs[port],), _field(r, port), None
                 else:
                     ins = None
                     if r is not None:
@@ -267,16 +264,8 @@ class GraphInference:
                 key = (kind_name, tuple(s.values()), ins)
                 known = self.memo.get(key)
                 if known is None:
-                    report = Report(bid, blk.name)
-                    out = kind.shape(s, ins, report)
-                    if out.elements > MAX_ELEMENTS:
-                        raise Stop("shape.too_large", f"{blk.name} would output {_short(out)} = "
-                                   f"{out.elements:.3g} elements per sample, beyond the {MAX_ELEMENTS:.3g} "
-                                   "Layerloom counts")
-                    known = ((out,), kind.cost(s, ins, out), kind.window(s, ins))
-                    if report.found:
-                        found += report.found
-                    elif len(self.memo) < MEMO_LIMIT:
+                    known = self._rule(blk, kind, s, ins, found)
+                    if not found and len(self.memo) < MEMO_LIMIT:
                         self.memo[key] = known
                 outs, cost, window = known
                 if window is not None:
@@ -286,26 +275,70 @@ class GraphInference:
                 result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None))
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
-        self.results[bid] = result
+        results[bid] = result
         if found:
             self.findings[bid] = found
-        else:
-            self.findings.pop(bid, None)
+        elif bid in self.findings:
+            del self.findings[bid]
         if old is None or result is None:
             return old is not result
         return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump or old.fields != result.fields
 
+    @staticmethod
+    def _rule(blk, kind, s, ins, found) -> tuple:
+        """(outputs, cost, window) by ``kind``'s rules; their findings added to ``found``."""
+        report = Report(blk.id, blk.name)
+        out = kind.shape(s, ins, report)
+        if out.elements > MAX_ELEMENTS:
+            raise Stop("shape.too_large", f"{blk.name} would output {_short(out)} = {out.elements:.3g} elements "
+                       f"per sample, beyond the {MAX_ELEMENTS:.3g} Layerloom counts")
+        found += report.found
+        return (out,), kind.cost(s, ins, out), kind.window(s, ins)
+
+    def _on_loop(self, blk, wires, old) -> bool:
+        """A block on a loop: no shapes, but its wiring faults are still named."""
+        bid = blk.id
+        self.results[bid] = None
+        found: list[Finding] = []
+        try:
+            s = self.resolved_settings(blk) if self.params is not None else blk.settings
+            n_in = len(self._motif(blk).ports()[0]) if blk.kind == "Motif" else KINDS[blk.kind].input_count(s)
+            self._gather(blk, n_in, wires, found)
+        except Stop:
+            pass
+        if found:
+            self.findings[bid] = found
+        else:
+            self.findings.pop(bid, None)
+        return old is not None
+
     def _gather(self, blk, n_in, wires, found):
-        """Input shapes of a block with several ports (or odd wiring); None if any is unknown."""
+        """Input shapes, receptive field, jump and each input's (rf, jump) of a block with several
+        ports (or odd wiring); Nones if any input is unknown."""
+        results, blocks = self.results, self.graph.blocks
+        if len(wires) == n_in:  # one wire on each port, from a known output: the usual join
+            ins, given = [], []
+            for port, w in enumerate(wires):
+                r = results.get(w.src)
+                if w.dst_port != port or r is None or w.src_port >= len(r.outs) or blocks[w.src].kind == "Output":
+                    break
+                ins.append(r.outs[w.src_port])
+                given.append(_field(r, w.src_port))
+            else:
+                return _joined(ins, given)
+        return self._gather_with_faults(blk, n_in, wires, found)
+
+    def _gather_with_faults(self, blk, n_in, wires, found):
+        """:meth:`_gather` naming what is wrong with the wiring (in ``found``)."""
         by_port: list[list] = [[] for _ in range(n_in)]
-        for w in sorted(wires, key=lambda w: (w.dst_port, w.src, w.src_port)):  # not in the order drawn
+        for w in wires:
             if w.dst_port < n_in:
                 by_port[w.dst_port].append(w)
             else:
                 found.append(Finding("port.missing", ERROR, blk.id, f"{blk.name} has {n_in} input"
                                      f"{'s' if n_in != 1 else ''} but a wire goes to input {w.dst_port + 1}",
                                      w.dst_port, (w.dst_port + 1, n_in)))
-        ins, rf, jump, known, given = [], list(ONE), [float("inf")] * 2, True, []
+        ins, known, given = [], True, []
         for port, ws in enumerate(by_port):
             if not ws:
                 found.append(Finding("port.unwired", ERROR, blk.id,
@@ -327,11 +360,8 @@ class GraphInference:
                         found.append(self._no_such_output(blk, w, r))
                     continue
                 ins.append(r.outs[w.src_port])
-                r_rf, r_jump = _field(r, w.src_port)
-                given.append((r_rf, r_jump))
-                rf = [max(rf[0], r_rf[0]), max(rf[1], r_rf[1])]
-                jump = [min(jump[0], r_jump[0]), min(jump[1], r_jump[1])]
-        return (tuple(ins), tuple(rf), tuple(jump), tuple(given)) if known else (None, None, None, None)
+                given.append(_field(r, w.src_port))
+        return _joined(ins, given) if known else (None, None, None, None)
 
     def _no_such_output(self, blk, w, r) -> Finding:
         src = self.graph.blocks[w.src]
@@ -474,6 +504,15 @@ def _walk(parent: dict, b: str) -> list[str]:
     return path[::-1]
 
 
+def _joined(ins: list, given: list) -> tuple:
+    """(input shapes, rf, jump, each input's (rf, jump)) where inputs join: the larger receptive
+    field and the smaller jump."""
+    (rf0, rf1), j0, j1 = ONE, float("inf"), float("inf")
+    for (a, b), (c, e) in given:
+        rf0, rf1, j0, j1 = max(rf0, a), max(rf1, b), min(j0, c), min(j1, e)
+    return tuple(ins), (rf0, rf1), (j0, j1), tuple(given)
+
+
 def _field(r: Result, port: int) -> tuple:
     """(rf, jump) of output ``port`` of a block's result."""
     return r.fields[port] if r.fields is not None else (r.rf, r.jump)
@@ -566,8 +605,8 @@ class Analysis:
             outs = tuple(inner.results[b].outs[0] if inner.results.get(b) else None for b in out_ids)
             fields = tuple((r.rf, r.jump) if r is not None else (ONE, ONE)
                            for r in (inner.results.get(b) for b in out_ids))
-            kept = max(live_profile(motif, inner.wiring, inner.results, inputs_outside=True), default=0)
-            freed = max(live_profile(motif, inner.wiring, inner.results), default=0)
+            kept = max(live_profile(inner.wiring, inner.results, inputs_outside=True), default=0)
+            freed = max(live_profile(inner.wiring, inner.results), default=0)
             ends = sum(o.elements for o in outs if o is not None)
             ins_size = sum(x.elements for x in ins)
             findings = tuple(f for fs in inner.findings.values() for f in fs) + tuple(inner.graph_findings)
@@ -630,6 +669,6 @@ class Analysis:
             self._profile = opened_profile(self.design, top)
         if self._profile is None:
             if top.plan is None:
-                top.plan = Plan(self.design, top.wiring)
-            self._profile = live_profile(self.design, top.wiring, top.results, plan=top.plan)
+                top.plan = Plan(top.wiring)
+            self._profile = live_profile(top.wiring, top.results, plan=top.plan)
         return self._profile

@@ -30,36 +30,39 @@ class Plan:
 
     __slots__ = ("allocates", "death", "last_reader")
 
-    def __init__(self, graph, wiring: Wiring, inputs_outside: bool = False):
-        order, sources = wiring.order, wiring.sources
-        n = len(order)
-        blocks = graph.blocks
-        owner: list[int | None] = [None] * n  # step whose tensor a step hands on (None: not ours)
+    def __init__(self, wiring: Wiring, inputs_outside: bool = False):
+        steps, srcs, kinds = wiring.steps, wiring.srcs, wiring.kinds
+        n = len(steps)
+        owner: list[int | None] = [None] * len(kinds)  # block → step whose tensor it hands on (None: not ours)
         allocates = [False] * n
         death = [n] * n  # nothing reads it: it stays to the end
         read = [False] * n
         uses = []
-        for i, bid in enumerate(order):  # in order, so a source's owner is known before it is read
-            kind = blocks[bid].kind
-            ss = sources[i]
-            if kind == "Motif":
-                uses.append(i)
+        for i, k in enumerate(steps):  # in order, so a source's owner is known before it is read
+            kind = kinds[k]
+            ss = srcs[k]
+            if kind == "Output":  # a view whose tensor stays to the end: the design's output
+                for s in ss:
+                    o = owner[s]
+                    if o is not None:
+                        death[o], read[o] = n, True
+                if ss:
+                    owner[k] = owner[ss[0]]
+                continue
             if kind in VIEWS and ss:
-                owner[i] = owner[ss[0]]
-            elif kind != "Output" and not (inputs_outside and kind == "Input"):  # an outside input is not ours
-                owner[i] = i
+                owner[k] = owner[ss[0]]
+            elif not (inputs_outside and kind == "Input"):  # an outside input is not ours
+                owner[k] = i
                 allocates[i] = True
+                if kind == "Motif":
+                    uses.append(i)
             for s in ss:
                 o = owner[s]
-                if o is None:
-                    continue
-                if kind == "Output":  # the design's outputs stay to the end
-                    death[o], read[o] = n, True
-                elif not read[o] or death[o] < i:
+                if o is not None and (not read[o] or death[o] < i):
                     death[o], read[o] = i, True
         last = [True] * n
         for i in uses:
-            for s in sources[i]:
+            for s in srcs[steps[i]]:
                 o = owner[s]
                 if o is None or death[o] != i:
                     last[i] = False
@@ -67,20 +70,20 @@ class Plan:
         self.allocates, self.death, self.last_reader = allocates, death, last
 
 
-def live_profile(graph, wiring: Wiring, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
+def live_profile(wiring: Wiring, results, inputs_outside: bool = False, plan: Plan | None = None) -> list[int]:
     """Live elements per sample at each step of ``wiring.order`` (after allocation, before freeing)."""
     order = wiring.order
-    plan = plan or Plan(graph, wiring, inputs_outside)
+    plan = plan or Plan(wiring, inputs_outside)
     allocates, death, last_reader = plan.allocates, plan.death, plan.last_reader
     freed = [0] * (len(order) + 1)  # elements freed after each step
     live, total = [], 0
-    for i, bid in enumerate(order):
-        r = results.get(bid)
+    for i, r in enumerate(map(results.get, order)):
         if r is None:
             live.append(total)
         else:
             if allocates[i]:
-                size = sum(map(prod, r.outs))
+                outs = r.outs
+                size = prod(outs[0]) if len(outs) == 1 else sum(map(prod, outs))
                 total += size
                 freed[death[i]] += size
             live.append(total + (r.extra_freed if last_reader[i] else r.extra))

@@ -52,7 +52,7 @@ class _Opened:
         env: dict[str, list] = {}
         port_of = {b.id: k for k, b in enumerate(graph.of_kind("Input"))}
         inside = bool(path)
-        for bid, wires in zip(inference.order, inference.wiring.wires):
+        for bid, wires in inference.wiring.in_order():
             blk, r = graph.blocks[bid], inference.results.get(bid)
             sources = [self._source(env, w) for w in wires]
             if inside and blk.kind == "Input":
@@ -85,14 +85,16 @@ class _Opened:
 def opened_profile(design, top) -> list[int] | None:
     """Live elements per sample for each block of ``top.order`` (the largest over the steps it
     runs), or None when the design uses no motif or its uses run more than STEP_LIMIT blocks."""
-    uses = [top.results.get(b) for b in top.order if design.blocks[b].kind == "Motif"]
+    if "Motif" not in top.wiring.kinds:
+        return None
+    uses = [top.results.get(b) for b in top.wiring.of_kind("Motif")]
     ran = [r.executed for r in uses if r is not None and r.executed is not None]
     if not ran or sum(e.steps for e in ran) > STEP_LIMIT:
         return None
     net = _Opened(top.analysis)
     net.open(design, top, (), [])
-    wiring = wire_up(net.blocks, net.in_wires, [(b.id,) for b in design.of_kind("Output")])
-    live = live_profile(net, wiring, net.results)
+    wiring = wire_up(net.blocks, net.in_wires, [(b,) for b in top.wiring.of_kind("Output")])  # in port order
+    live = live_profile(wiring, net.results)
     per_block = dict.fromkeys(top.order, None)
     for step, value in zip(wiring.order, live):
         mine = per_block[step[0]]

@@ -25,65 +25,106 @@ from __future__ import annotations
 
 
 class Wiring:
-    """A graph's execution order, with each step's input wires and their sources' steps.
+    """A graph's blocks by index (insertion order) and their execution order.
 
-    ``wires[i]`` are the input wires of step ``i`` by (input port, output port, source block's
-    insertion), and
-    ``sources[i]`` the steps of their sources; ``stuck`` the blocks on a loop or after one.
+    ``ids``, ``kinds``, ``levels``: each block's id, kind and level; ``feeds[k]``: block ``k``'s
+    input wires by (input port, output port, source's index) and ``srcs[k]`` the indices of their
+    sources; ``steps``: the indices in execution order, ``order`` their ids; ``stuck``: the ids of
+    blocks on a loop or after one; ``unreached``: the ids of blocks from which no Output is reached.
     """
 
-    __slots__ = ("order", "position", "level", "wires", "sources", "stuck")
+    __slots__ = ("ids", "kinds", "levels", "feeds", "srcs", "steps", "order", "stuck", "unreached", "_position",
+                 "_level")
 
-    def __init__(self, order: list, position: dict, level: dict, wires: list, sources: list, stuck: list):
-        self.order, self.position, self.level = order, position, level
-        self.wires, self.sources, self.stuck = wires, sources, stuck
+    def __init__(self, ids, kinds, levels, feeds, srcs, steps, stuck, unreached):
+        self.ids, self.kinds, self.levels, self.feeds, self.srcs = ids, kinds, levels, feeds, srcs
+        self.steps, self.order, self.stuck = steps, [ids[k] for k in steps], [ids[k] for k in stuck]
+        self.unreached = [ids[k] for k in unreached]
+        self._position = self._level = None
+
+    @property
+    def position(self) -> dict:
+        """Block id → its step in the execution order."""
+        if self._position is None:
+            self._position = {b: i for i, b in enumerate(self.order)}
+        return self._position
+
+    @property
+    def level(self) -> dict:
+        """Block id → its level."""
+        if self._level is None:
+            self._level = dict(zip(self.ids, self.levels))
+        return self._level
+
+    def of_kind(self, kind: str) -> list:
+        """Ids of the blocks of ``kind``, in insertion order."""
+        return [b for b, k in zip(self.ids, self.kinds) if k == kind]
+
+    def in_order(self):
+        """(id, input wires) of each block, in execution order."""
+        ids, feeds = self.ids, self.feeds
+        return [(ids[k], feeds[k]) for k in self.steps]
 
 
-def wire_up(blocks, in_wires, outputs) -> Wiring:
+def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
     """The :class:`Wiring` of a graph: ``blocks`` maps ids (in insertion order) to objects with a
-    ``kind``, ``in_wires`` ids to their input wires, ``outputs`` lists the Output ids in port order."""
+    ``kind``, ``in_wires`` ids to their input wires; ``outputs`` lists its output ports (by default
+    its Output blocks in insertion order, which numbers them)."""
     ids = list(blocks)
-    n = len(ids)
     index = {b: i for i, b in enumerate(ids)}
-    feeds, srcs = [], []
-    for b in ids:
-        ws = in_wires[b]
-        if len(ws) > 1:  # several wires on one port (an error): by their sources' insertion, not as drawn
-            ws = sorted(ws, key=lambda w: (w.dst_port, w.src_port, index[w.src]))
-        feeds.append(ws)
-        srcs.append([index[w.src] for w in ws])
-    level, stuck = _levels(srcs)
-    post = _finish_order(srcs, [index[b] for b in outputs])
-    order = sorted(post, key=level.__getitem__)  # a stable sort: by rank within a level
-    if len(order) < n:
-        order = _with_unreached(order, srcs, level, blocks, ids, feeds)
-    position = {ids[i]: p for p, i in enumerate(order)}
-    step = [0] * n
-    for p, i in enumerate(order):
-        step[i] = p
-    return Wiring([ids[i] for i in order], position, {ids[i]: level[i] for i in range(n)}, [feeds[i] for i in order],
-                  [[step[s] for s in srcs[i]] for i in order], [ids[i] for i in stuck])
+    kinds = [blk.kind for blk in blocks.values()]
+    feeds = [in_wires[b] for b in ids]
+    srcs: list[tuple] = []
+    levels: list[int] = []
+    ordered = True  # every block after its sources in insertion order: levels in the same walk
+    for k, ws in enumerate(feeds):
+        if not ws:
+            srcs.append(())
+            levels.append(0)
+            continue
+        if len(ws) == 1:
+            ss = (index[ws[0].src],)
+        else:
+            if not _one_per_port(ws):  # by port; several wires on one port (an error) by their sources' insertion
+                ws = feeds[k] = sorted(ws, key=lambda w: (w.dst_port, w.src_port, index[w.src]))
+            ss = tuple([index[w.src] for w in ws])
+        srcs.append(ss)
+        m = 0
+        for s in ss:
+            if s >= k:
+                ordered = False
+                break
+            if levels[s] >= m:
+                m = levels[s] + 1
+        levels.append(m)
+    stuck: list[int] = []
+    if not ordered:
+        levels, stuck = _levels(srcs)
+    roots = [k for k, kind in enumerate(kinds) if kind == "Output"] if outputs is None else [index[b] for b in outputs]
+    post = _finish_order(srcs, roots)
+    steps = sorted(post, key=levels.__getitem__)  # a stable sort: by rank within a level
+    unreached: list[int] = []
+    if len(steps) < len(ids):
+        reached = set(post)
+        unreached = [k for k in range(len(ids)) if k not in reached]
+        steps = _with_unreached(steps, unreached, srcs, levels, kinds, feeds)
+    return Wiring(ids, kinds, levels, feeds, srcs, steps, stuck, unreached)
+
+
+def _one_per_port(ws: list) -> bool:
+    """Whether ``ws`` are already in input-port order, one wire per port."""
+    port = -1
+    for w in ws:
+        if w.dst_port <= port:
+            return False
+        port = w.dst_port
+    return True
 
 
 def _levels(srcs: list) -> tuple[list[int], list[int]]:
-    """Each block's longest-path level from the blocks without input wires, and the blocks on a
-    loop or after one (given one past the deepest level). One walk when every block comes after its
-    sources in insertion order (the usual case), else Kahn's algorithm."""
+    """Each block's longest-path level from the blocks without input wires (Kahn's algorithm), and
+    the blocks on a loop or after one (given one past the deepest level)."""
     n = len(srcs)
-    level = [0] * n
-    for i, ss in enumerate(srcs):
-        m = 0
-        for s in ss:
-            if s >= i:
-                break
-            if level[s] >= m:
-                m = level[s] + 1
-        else:
-            level[i] = m
-            continue
-        break
-    else:
-        return level, []
     succ: list[list[int]] = [[] for _ in range(n)]
     indeg = [len(ss) for ss in srcs]
     for i, ss in enumerate(srcs):
@@ -110,42 +151,44 @@ def _finish_order(srcs: list, roots: list[int]) -> list[int]:
     """Blocks reached walking back from ``roots`` (depth first, inputs in port order), in the order
     the walk finishes them."""
     seen = bytearray(len(srcs))
-    post = []
+    post: list[int] = []
+    finish = post.append
     stack = roots[::-1]
     pop, push, extend = stack.pop, stack.append, stack.extend
     while stack:
         v = pop()
         if v < 0:
-            post.append(~v)
+            finish(~v)
         elif not seen[v]:
             seen[v] = 1
             push(~v)
             ss = srcs[v]
-            if ss:
+            if len(ss) == 1:
+                push(ss[0])
+            elif ss:
                 extend(ss[::-1])
     return post
 
 
-def _with_unreached(reached: list[int], srcs: list, level: list, blocks, ids: list, feeds: list) -> list[int]:
-    """``reached`` (in order) with the blocks that reach no Output put after those of their level,
-    by their sources' places and then kind."""
+def _with_unreached(reached: list[int], unreached: list[int], srcs: list, levels: list, kinds: list,
+                    feeds: list) -> list[int]:
+    """``reached`` (in order) with the ``unreached`` blocks (that reach no Output) put after those of
+    their level, by their sources' places and then kind."""
     n = len(srcs)
-    seen = set(reached)
     rest: dict[int, list[int]] = {}
-    for i in range(n):
-        if i not in seen:
-            rest.setdefault(level[i], []).append(i)
+    for i in unreached:
+        rest.setdefault(levels[i], []).append(i)
     step = [n] * n  # not placed yet
     order: list[int] = []
     k = 0
-    for lv in sorted(set(rest) | {level[i] for i in reached}):
-        while k < len(reached) and level[reached[k]] == lv:
+    for lv in sorted(set(rest) | {levels[i] for i in reached}):
+        while k < len(reached) and levels[reached[k]] == lv:
             step[reached[k]] = len(order)
             order.append(reached[k])
             k += 1
         group = rest.get(lv, [])
         group.sort(key=lambda i: (tuple((step[s], w.src_port, w.dst_port) for s, w in zip(srcs[i], feeds[i])),
-                                  blocks[ids[i]].kind))
+                                  kinds[i]))
         for i in group:
             step[i] = len(order)
             order.append(i)
