@@ -148,3 +148,24 @@ def test_a_depth_tie_runs_the_branch_of_the_earlier_port_first_grouped_or_not(fi
     assert Ledger(d.analysis()).totals.peak_memory == peak
     d.apply(expand(d, inst))
     assert Ledger(d.analysis()).totals.peak_memory == peak
+
+
+def test_the_opened_up_network_walks_back_from_the_outputs_in_port_order():
+    """Two outputs: output 1 after a motif use and a join, output 2 after two batch norms straight
+    from the input, so output 2 runs first. The walk back from the outputs must start at output 1
+    (port order), as in the flat design, or the batch norms run before the flattened branch and the
+    peak grows (464,640 B grouped against 310,592 B flat, batch 16, fp32, when it did not)."""
+    d = Design("two-ends", batch=16)
+    x = d.input(11, 20, 11)
+    flat_x = d.add("Flatten", x)
+    fc = d.add("Linear", flat_x, out_features=13)
+    act = d.add("LeakyReLU", fc)
+    joined = d.add("Add", act, d.add("Add", act, fc, act, inputs=3))
+    d.add("Output", joined)
+    d.add("Output", d.add("BatchNorm2d", d.add("BatchNorm2d", x, affine=False), affine=False))
+    flat = Ledger(d.analysis()).totals.peak_memory
+    edit, inst = make_motif(d, [flat_x, fc, act])
+    d.apply(edit)
+    assert d.blocks[inst].kind == "Motif"
+    assert Ledger(d.analysis()).totals.peak_memory == flat
+    assert Ledger(expanded_copy(d).analysis()).totals.peak_memory == flat
