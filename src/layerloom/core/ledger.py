@@ -139,10 +139,10 @@ class Ledger:
         self._results = [results.get(b) for b in self.order]
         free = (0, 0, 0, 0)
         self.counts = [(w, b, m * n, o * n)
-                       for w, b, m, o in (r.cost if r is not None else free for r in self._results)]
+                       for w, b, m, o in [r.cost if r is not None else free for r in self._results]]
         scale = n * self.bytes_per_element
         self.live: list[int] = [v * scale for v in analysis.live_profile()]
-        peak_at = max(range(len(self.live)), key=self.live.__getitem__) if self.live else None
+        peak_at = self.live.index(max(self.live)) if self.live else None
         weights, buffers, macs, other = (sum(column) for column in zip(*self.counts)) if self.counts else free
         self.latency: list[float] | None = self._latency() if self.target is not None else None
         self.totals = Totals(weights, buffers, macs, other, self.live[peak_at] if peak_at is not None else 0,
