@@ -23,17 +23,31 @@ def _run(code: str) -> subprocess.CompletedProcess:
     return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
 
 
-def test_check_of_a_valid_file_imports_no_numpy_nor_jsonschema():
+def _budgeted(tmp_path) -> Path:
+    """The sample with a budget it passes (so a budget finding is made) and a pinned baseline."""
+    design = load(SAMPLE)
+    pinned = snapshot(design.ledger(), "before")
+    design.set_field("budget", {"weights": 1000})
+    design.set_field("baseline", pinned)
+    path = tmp_path / "budgeted.loom"
+    save(design, path)
+    return path
+
+
+@pytest.mark.parametrize("budgeted", [False, True])
+def test_check_of_a_valid_file_imports_no_numpy_nor_jsonschema(tmp_path, budgeted):
+    path = _budgeted(tmp_path) if budgeted else SAMPLE
     done = _run("import sys; from layerloom.cli import main; "
-                f"code = main(['check', {str(SAMPLE)!r}]); "
+                f"code = main(['check', {str(path)!r}]); "
                 "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('numpy', 'jsonschema')); "
                 "assert code == 0 and not heavy, (code, heavy)")
     assert done.returncode == 0, done.stderr[-2000:]
     assert "well formed" in done.stdout
+    assert ("budget.weights" in done.stdout) == budgeted
 
 
 def test_loading_and_finding_import_no_numpy():
-    """Reading a file, the whole pass and the findings are plain Python; numpy comes with the Ledger."""
+    """Reading a file, the whole pass and the findings are plain Python."""
     done = _run("import sys, layerloom; "
                 f"d = layerloom.load({str(SAMPLE)!r}); found = d.findings(); "
                 "assert d.analysis().live_profile() and 'numpy' not in sys.modules, sorted(sys.modules)")
@@ -42,13 +56,7 @@ def test_loading_and_finding_import_no_numpy():
 
 @pytest.mark.parametrize("options", [[], ["--json"], ["--csv"], ["--target", PRESETS[0].name, "--batch", "4"]])
 def test_ledger_imports_no_numpy(tmp_path, options):
-    """With a budget and a pinned baseline in the file too (over budget, so a budget finding is made)."""
-    design = load(SAMPLE)
-    pinned = snapshot(design.ledger(), "before")
-    design.set_field("budget", {"weights": 1000})
-    design.set_field("baseline", pinned)
-    path = tmp_path / "budgeted.loom"
-    save(design, path)
+    path = _budgeted(tmp_path)
     done = _run("import sys; from layerloom.cli import main; "
                 f"code = main(['ledger', {str(path)!r}, *{options!r}]); "
                 "assert code == 0 and 'numpy' not in sys.modules, code")
