@@ -16,6 +16,7 @@ from layerloom.core.atomic_write import write_atomically
 from layerloom.core.budget import check_budget
 from layerloom.core.design import Design
 from layerloom.core.graph import Block, Wire
+from layerloom.core.json_text import layout
 from layerloom.core.measurement import Measurement
 from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
@@ -237,27 +238,10 @@ def copy(design: Design) -> Design:
     return _build(to_data(design))
 
 
-_encode = json.JSONEncoder(ensure_ascii=False).encode  # one line, by the C encoder
-
-
 def dumps(design: Design) -> str:
     """The text of a ``.loom`` file: one field per line, and one line per block, wire and motif field,
-    so a change to a block is a change to its line (and the C encoder writes each line: an indented
-    ``json.dumps`` runs in Python, eight times slower)."""
-    return _lines(to_data(design), "") + "\n"
-
-
-def _lines(obj: dict, pad: str) -> str:
-    inner = pad + " "
-    fields = []
-    for key, value in obj.items():
-        if key in ("blocks", "wires", "motifs") and isinstance(value, list) and value:
-            items = (_lines(v, inner + " ") if key == "motifs" else _encode(v) for v in value)
-            text = "[\n" + ",\n".join(inner + " " + item for item in items) + f"\n{inner}]"
-        else:
-            text = _encode(value)
-        fields.append(f"{inner}{_encode(key)}: {text}")
-    return "{\n" + ",\n".join(fields) + f"\n{pad}}}"
+    so a change to a block is a change to its line (:mod:`layerloom.core.json_text`)."""
+    return layout(to_data(design), ("blocks", "wires", "motifs"), nested=("motifs",)) + "\n"
 
 
 def save(design: Design, path: str | os.PathLike) -> None:
