@@ -320,7 +320,7 @@ def _figures_by_block(d: Design):
     last) aside from the order, and which walk names a loop aside from the findings."""
     L = Ledger(d.analysis())
     rows = {r.block: r for r in L.rows}
-    live = dict(zip(L.order, L.live.tolist()))
+    live = dict(zip(L.order, L.live))
     stuck = d.analysis().top.stuck
     findings = sorted((f.code, f.block, "" if f.code == "graph.cycle" else f.message) for f in d.findings())
     return [b for b in L.order if b not in stuck], L.totals, rows, live, findings
