@@ -131,3 +131,20 @@ def test_renaming_away_from_a_name_ending_in_a_non_ascii_digit():
     for name in ("²", "stem_²", "stem_٣", "input_1"):
         d.apply(edits.rename(d, x, name))
     assert d.blocks[x].name == "input_1"
+
+
+def test_closing_a_loop_names_the_same_faults_as_a_fresh_load():
+    """A wire from a ReLU back into the Input closes input → pointwise → output → ReLU → input. The
+    blocks on the loop lose their shapes; a result kept from before the loop must not make the
+    ReLU report a wire from an Output that a fresh load of the same file does not report."""
+    from layerloom.core.graph import Wire
+
+    d = Design()
+    x = d.input(2, 4, 4)
+    relu = d.add("ReLU", d.add("Output", d.add("Pointwise", x, out_channels=2)))
+    d.ledger()  # results exist before the loop closes
+    d.apply(edits.connect(d, Wire(relu, 0, x, 0)))
+    fresh = parse(dumps(d))
+    found = [(f.code, f.block, f.message) for f in d.analysis().all_findings()]
+    assert found == [(f.code, f.block, f.message) for f in fresh.analysis().all_findings()]
+    assert [c for c, b, _ in found if b == relu] == ["graph.cycle"]

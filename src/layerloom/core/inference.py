@@ -303,7 +303,7 @@ class GraphInference:
         try:
             s = self.resolved_settings(blk) if self.params is not None else blk.settings
             n_in = len(self._motif(blk).ports()[0]) if blk.kind == "Motif" else KINDS[blk.kind].input_count(s)
-            self._gather(blk, n_in, wires, found)
+            self._gather_with_faults(blk, n_in, wires, found)
         except Stop:
             pass
         if found:
@@ -353,7 +353,7 @@ class GraphInference:
                 known = False
             else:
                 w = ws[0]
-                r = self.results.get(w.src)
+                r = self.results.get(w.src) if w.src not in self.stuck else None  # on a loop: none (even stale)
                 if r is None or w.src_port >= len(r.outs) or self.graph.blocks[w.src].kind == "Output":
                     known = False
                     if r is not None:
