@@ -619,15 +619,27 @@ class CanvasView(QGraphicsView):
         return before, name
 
     def _insert_on_wire(self, wire: Wire, kind: str, settings: dict, spot: QPointF, before, name) -> str | None:
+        flat = self._map_for_flat_input(kind, (wire.src, wire.src_port))
+        steps = [("Flatten", {})] * bool(flat) + [(kind, settings)]
         try:
-            edit = edits.insert_on_wire(self.document.design, wire, [(kind, settings)], self.document.graph_key,
+            edit = edits.insert_on_wire(self.document.design, wire, steps, self.document.graph_key,
                                         position=(round(spot.x() - W / 2), round(spot.y() - H / 2)), name=name)
         except (edits.EditError, SettingError) as e:
             self.message.emit(str(e))
             return None
         if before is not None:
             edit = edits.Edit(before.label, before.ops + edit.ops)
-        return self._added(edit, edits.added_blocks(edit)[-1])
+        return self._added(edit, edits.added_blocks(edit)[-1], flat)
+
+    def _map_for_flat_input(self, kind: str, source: tuple[str, int] | None):
+        """The feature map ``source`` (block id, port) carries when ``kind`` takes only a flat vector
+        (a Linear): a Flatten then goes before the new block in the same edit. None otherwise."""
+        spec = KINDS.get(kind)
+        if source is None or spec is None or not spec.flat_input:
+            return None
+        r = self.document.results().get(source[0])
+        shape = r.outs[source[1]] if r is not None and source[1] < len(r.outs) else None
+        return shape if shape is not None and shape.is_map else None
 
     def add_kind(self, kind: str, centre: QPointF, source: tuple[str, int] | None = None,
                  from_selection: bool = True, settings: dict | None = None, before: edits.Edit | None = None,
@@ -642,24 +654,37 @@ class CanvasView(QGraphicsView):
         takes_input = kind == "Motif" or spec.input_count(spec.defaults) > 0
         if source is None and from_selection and takes_input:
             source = self._selected_source()
-        design = self.document.design
+        design, key = self.document.design, self.document.graph_key
+        source = source if takes_input else None
+        flat = self._map_for_flat_input(kind, source)
+        at = (round(centre.x() - W / 2), round(centre.y() - H / 2))
         try:
-            edit, bid = edits.add_block(design, kind, settings or {}, graph=self.document.graph_key, name=name,
-                                        position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
-                                        inputs=[source] if source is not None and takes_input else ())
+            lead = ()
+            if flat:  # a Linear after a feature map: a Flatten first, where the Linear would have gone
+                first, fid = edits.add_block(design, "Flatten", {}, graph=key, position=at, inputs=[source])
+                lead, source = first.ops, (fid, 0)
+                at = edits.clear_spot((b.position for b in self.document.graph.blocks.values()), (at[0] + COLUMN, at[1]))
+            edit, bid = edits.add_block(design, kind, settings or {}, graph=key, name=name, position=at,
+                                        inputs=[source] if source is not None else ())
         except (edits.EditError, SettingError) as e:
             self.message.emit(str(e))
             return None
+        edit = edits.Edit(edit.label, lead + edit.ops)
         if into is not None:
-            edit = edits.Edit(edit.label, edit.ops + (edits.AddWire(self.document.graph_key, Wire(bid, 0, into, 0)),))
+            edit = edits.Edit(edit.label, edit.ops + (edits.AddWire(key, Wire(bid, 0, into, 0)),))
         if before is not None:
             edit = edits.Edit(before.label, before.ops + edit.ops)
-        return self._added(edit, bid)
+        return self._added(edit, bid, flat)
 
-    def _added(self, edit: edits.Edit, bid: str) -> str | None:
-        """Apply an edit that adds block ``bid``; select it, bring it into view, keys back to the canvas."""
+    def _added(self, edit: edits.Edit, bid: str, flattened=None) -> str | None:
+        """Apply an edit that adds block ``bid``; select it, bring it into view, keys back to the
+        canvas. ``flattened``: the feature map a Flatten added before it turns into a vector (said)."""
         if not self.canvas_scene.apply(edit):
             return None
+        if flattened is not None:
+            name = self.document.graph.blocks[bid].name
+            self.message.emit(f"Flatten added before {name} ({flattened} → {flattened.elements:,}): "
+                              f"a Linear takes a flat vector")
         self.document.select([bid])
         if bid in self.canvas_scene.blocks:
             self.ensureVisible(self._card_item(bid).sceneBoundingRect(), 60, 40)
