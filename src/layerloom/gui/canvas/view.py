@@ -9,9 +9,12 @@ items.
 """
 from __future__ import annotations
 
+import gc
+from contextlib import contextmanager
+
 from PySide6.QtCore import QEvent, QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import (QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QPixmap,
-                           QTransform)
+from PySide6.QtGui import (QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen,
+                           QPixmap, QTransform)
 from PySide6.QtWidgets import QGraphicsView, QMenu, QToolTip
 
 from layerloom.core import clipboard, edits, motif_ops
@@ -43,6 +46,18 @@ MOTIF_MIME = "application/x-layerloom-motif"
 ARROWS = {Qt.Key.Key_Left: "left", Qt.Key.Key_Right: "right", Qt.Key.Key_Up: "up", Qt.Key.Key_Down: "down"}
 PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down and right
 ZOOM_STEP = 1.25
+
+
+@contextmanager
+def collector_paused():
+    """Python's cyclic garbage collector off for a bulk step (reference counting still frees)."""
+    was = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was:
+            gc.enable()
 
 
 class CanvasView(QGraphicsView):
@@ -161,10 +176,11 @@ class CanvasView(QGraphicsView):
         """Far out, every wire and card in a few calls: cards as outlined rectangles (status and
         selection by outline colour; specks when tiny), each with its name at a readable size
         where the card is wide enough on screen to hold some of it."""
-        lines, rects = self.canvas_scene.overview_shapes(moving)
+        _, rects = self.canvas_scene.overview_shapes(moving)
         painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
         painter.setPen(QPen(theme.WIRE, 0))
-        painter.drawLines(lines)
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.drawPath(self.canvas_scene.overview_wires(moving))
         specks = self.zoom_level() < theme.SHAPE_MIN_DETAIL
         for colour, group in rects:
             if specks:
@@ -194,7 +210,7 @@ class CanvasView(QGraphicsView):
 
     def fit_all(self) -> None:
         """Show every block (never magnified beyond 1.25×)."""
-        self._fit(self.canvas_scene.itemsBoundingRect())
+        self._fit(self.canvas_scene.cards_rect())
 
     def zoom_to_selection(self) -> None:
         """Show the selected blocks as large as fits (a chip shows its card), or all when none is."""
@@ -204,7 +220,7 @@ class CanvasView(QGraphicsView):
             item = scene.blocks.get(scene.card_of(bid))
             if item is not None:
                 rect = rect.united(item.sceneBoundingRect())
-        self._fit(rect if not rect.isEmpty() else scene.itemsBoundingRect())
+        self._fit(rect if not rect.isEmpty() else scene.cards_rect())
 
     def actual_size(self) -> None:
         """Zoom to 100 % about the middle of the view."""
@@ -231,7 +247,7 @@ class CanvasView(QGraphicsView):
         flows left → right) at the smallest zoom whose text can still be read. The zoom is chosen
         before it is set: fitting a large design first would switch every item to the overview and
         back (a tenth of a second at 2,000 blocks)."""
-        rect = self.canvas_scene.itemsBoundingRect()
+        rect = self.canvas_scene.cards_rect()
         if rect.isEmpty():
             return
         room = self.viewport().rect().adjusted(2, 2, -2, -2)  # fitInView's own margin
@@ -896,12 +912,15 @@ class CanvasView(QGraphicsView):
                            (float(size.width()), float(size.height())))
 
     def tidy(self) -> None:
-        """Lay the graph shown out in stage rows with Tidy, as one undoable edit, and show it all."""
+        """Lay the graph shown out in stage rows with Tidy, as one undoable edit, and show it all.
+        Python's cycle collector waits meanwhile: the step makes tens of thousands of short-lived
+        tuples (freed as usual), and a collection in the middle would walk the whole heap."""
         design = self.document.graph
-        changed = {b: p for b, p in self.tidy_layout().positions.items() if tuple(design.blocks[b].position) != p}
-        if changed:
-            self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
-        self.fit_all()
+        with collector_paused():
+            changed = {b: p for b, p in self.tidy_layout().positions.items() if tuple(design.blocks[b].position) != p}
+            if changed:
+                self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
+            self.fit_all()
 
     def set_fold(self, on: bool) -> None:
         """Fold norms and activations into their convolution's card (on) or show each as a card. A
