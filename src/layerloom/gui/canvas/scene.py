@@ -29,6 +29,7 @@ from layerloom.core.kinds import KINDS
 from layerloom.core.mends import mends_for
 from layerloom.core.settings import SettingError
 from layerloom.core.stage_rows import stage_groups
+from layerloom.core.wire_labels import label_spot, piece_boxes
 from layerloom.core.wire_route import Obstacles, route
 from layerloom.gui import theme
 from layerloom.gui.canvas.badge_item import BadgeItem
@@ -72,6 +73,7 @@ def detail_text(block, motif=None) -> str:
 
 
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
+LABEL_REACH = (100.0, 24.0)  # how far from a wire its label may stand (a wide shape label, beside it)
 
 
 def _overview_colour(item: BlockItem):
@@ -83,6 +85,11 @@ def _overview_colour(item: BlockItem):
 def _rect(item: BlockItem) -> tuple:
     p = item.pos()
     return (p.x(), p.y(), p.x() + W, p.y() + H)
+
+
+def _meets(a: tuple, b: tuple) -> bool:
+    """Whether rectangles ``(left, top, right, bottom)`` overlap."""
+    return a[0] < b[2] and a[2] > b[0] and a[1] < b[3] and a[3] > b[1]
 
 
 def _overview_flags(item, on: bool) -> None:
@@ -104,6 +111,14 @@ class CanvasScene(QGraphicsScene):
         self.folds: dict[str, str] = {}  # chip id → its card's id
         self._chips: dict[str, list[str]] = {}  # card id → chip ids
         self.obstacles = Obstacles()  # card rectangles the wires go around
+        self.pieces = Obstacles()  # (wire, i) → the rectangle of piece i of a drawn wire (labels keep off them)
+        self.label_places = Obstacles()  # wire → its label's rectangle, as placed
+        self._label_dirty: set = set()  # wires whose label goes somewhere again (see place_labels)
+        self._label_areas: list = []  # rectangles where cards or wires came or went since the last placing
+        self._labels_all = True  # every label is placed afresh
+        self._label_pending: set = set()  # wires whose label waits to be placed (out of view, or far out)
+        self._pieces_pending: set = set()  # wires whose pieces are not in :attr:`pieces` yet
+        self.label_region: tuple | None = None  # where labels are placed now (see set_label_region)
         self._stages: dict | None = None  # stages and their labels, made on demand (see stage_cache)
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
@@ -151,6 +166,7 @@ class CanvasScene(QGraphicsScene):
         self.blocks, self.wires, self.badges, self._findings = {}, {}, {}, {}
         self.folds, self._chips, self.obstacles, self._card_rects = {}, {}, Obstacles(), {}
         self._ov_lines = {}
+        self._labels_all = True
         self._dirty_wires.clear()
         self._sync_topology()
         self._refresh_results()
@@ -206,6 +222,7 @@ class CanvasScene(QGraphicsScene):
         finally:
             self._bulk = False
         if many:
+            self._labels_all = True
             places = graph.blocks  # where the cards now stand (read without a call into Qt per card)
             self.obstacles = Obstacles({b: (x, y, x + W, y + H) for b, _ in self.cards() for x, y in (places[b].position,)})
             self._ov_valid = False
@@ -242,6 +259,8 @@ class CanvasScene(QGraphicsScene):
         return self.folds.get(block_id, block_id)
 
     def _drop(self, bid: str) -> None:
+        if bid in self.obstacles.rects:
+            self._label_areas.append(self.obstacles.rects[bid])
         item = self.blocks.pop(bid)
         self.badges.pop(bid, None)
         self._findings.pop(bid, None)
@@ -268,6 +287,8 @@ class CanvasScene(QGraphicsScene):
         self.wires_revision += 1
         for w in [w for w in self.wires if w not in graph.wires or folds.get(w.src, w.src) == folds.get(w.dst, w.dst)]:
             self._ov_lines.pop(w, None)
+            self._forget_pieces(w)
+            self.label_places.drop(w)
             self.removeItem(self.wires.pop(w))
             self._dirty_wires.discard(w)
         for bid, block in graph.blocks.items():
@@ -278,6 +299,7 @@ class CanvasScene(QGraphicsScene):
                 item.setPos(*block.position)
                 self.blocks[bid] = item
                 self.obstacles.put(bid, _rect(item))
+                self._label_areas.append(_rect(item))
                 self._adopt(item)
         for card, chips in self._chips.items():
             for bid in chips:
@@ -381,6 +403,8 @@ class CanvasScene(QGraphicsScene):
         items = [*self.blocks.values(), *self.wires.values(), *(b for bs in self.badges.values() for b in bs)]
         for item in items:
             _overview_flags(item, on)
+        if not on:
+            self.place_labels()
 
     def overview_shapes(self, moving: bool | None = None) -> tuple[list, list]:
         """Wire polylines (each wire's :attr:`WireItem.points`), and (colour, card rectangles)
@@ -519,6 +543,7 @@ class CanvasScene(QGraphicsScene):
             self.wires_revision += 1
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
+        self._label_areas += (self.obstacles.rects.get(block_id), _rect(item))
         self.obstacles.put(block_id, _rect(item))
         g = self.graph
         if g.in_wires.get(block_id) is None:
@@ -559,10 +584,95 @@ class CanvasScene(QGraphicsScene):
             if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), labelled):
                 continue
             self._ov_lines[w] = item.points
+            self._label_dirty.add(w)
             self.wires_revision += 1
             if src not in moving and dst not in moving:
                 self.overview_revision += 1  # a still wire took another way
         dirty.clear()
+        if not self.overview:  # far out labels are not drawn: they are placed on the way back in
+            self.place_labels()
+
+    # ----- wire labels
+    def _forget_pieces(self, w) -> list:
+        """Take wire ``w``'s pieces out of :attr:`pieces`; their rectangles."""
+        old = []
+        i = 0
+        while (w, i) in self.pieces.rects:
+            old.append(self.pieces.rects[(w, i)])
+            self.pieces.drop((w, i))
+            i += 1
+        return old
+
+    def _index_pieces(self, w, item) -> list:
+        boxes = piece_boxes(item.polyline(), item.width / 2)
+        for i, box in enumerate(boxes):
+            self.pieces.put((w, i), box)
+        return boxes
+
+    def set_label_region(self, rect: tuple | None) -> None:
+        """Place labels only for wires in ``rect`` (left, top, right, bottom: what the view shows);
+        the others wait until they come into view. None: every wire (a picture of the whole)."""
+        self.label_region = rect
+        if not self.overview:
+            self.place_labels()
+
+    def place_labels(self) -> None:
+        """Place the labels of wires that changed, and of wires whose label or free room a card or
+        wire that came, went or moved may have touched, each clear of cards, wires and labels
+        (:mod:`layerloom.core.wire_labels`). Only wires in :attr:`label_region` are done now."""
+        wires, pending = self.wires, self._label_pending
+        if self._labels_all:
+            self._labels_all = False
+            self.pieces, self.label_places = Obstacles(), Obstacles()
+            self._pieces_pending, pending = set(wires), set(wires)
+            self._label_pending = pending
+            for item in wires.values():
+                item.place_label(None)
+        else:
+            areas = self._label_areas
+            for w in self._label_dirty:
+                if w in wires:
+                    areas += self._forget_pieces(w)
+                    self.label_places.drop(w)
+                    self._pieces_pending.add(w)
+                    pending.add(w)
+            for area in areas:  # where cards or wires came or went: labels there, and labels that may fit now
+                if area is None:
+                    continue
+                left, top, right, bottom = area
+                for w in self.label_places.keys_within(left, top, right, bottom):
+                    self.label_places.drop(w)
+                    wires[w].place_label(None)
+                    pending.add(w)
+                pending |= {k[0] for k in self.pieces.keys_within(left - LABEL_REACH[0], top - LABEL_REACH[1],
+                                                                  right + LABEL_REACH[0], bottom + LABEL_REACH[1])
+                            if wires[k[0]].label_box is None}
+        self._label_dirty.clear()
+        self._label_areas = []
+        pending.intersection_update(wires)
+        region = self.label_region
+        if region is not None:  # the region, and the wires near it whose pieces a label there must avoid
+            dx, dy = 2 * LABEL_REACH[0], 2 * LABEL_REACH[1]
+            near = (region[0] - dx, region[1] - dy, region[2] + dx, region[3] + dy)
+        for w in [w for w in self._pieces_pending if w in wires and (region is None or _meets(wires[w].wire_box, near))]:
+            self._pieces_pending.discard(w)
+            self._index_pieces(w, wires[w])
+        todo = {w for w in pending if region is None or _meets(wires[w].wire_box, region)}
+        if not todo:
+            return
+        pending -= todo
+        cards, pieces, labels = self.obstacles, self.pieces, self.label_places
+
+        def blocked(left, top, right, bottom):
+            return (labels.blocked(left, top, right, bottom) or cards.blocked(left, top, right, bottom)
+                    or pieces.blocked(left, top, right, bottom))
+
+        for w in [w for w in wires if w in todo]:  # in the wires' own order: the same picture every time
+            item = wires[w]
+            item.place_label(label_spot(item.polyline(), item.label_size, item.width / 2, blocked)
+                             if item.label else None)
+            if item.label_box is not None:
+                labels.put(w, item.label_box)
 
     def _labelled(self, w, chosen: dict) -> bool:
         """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the

@@ -134,8 +134,22 @@ class CanvasView(QGraphicsView):
 
     def _sync_overview(self) -> None:
         """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
+        self._labels_in_view()
         self.canvas_scene.set_overview(self.shows_stage_summaries())
         self.zoom_changed.emit(self.transform().m11())
+
+    def _labels_in_view(self) -> None:
+        """Wire labels are placed for what the view shows (the rest as it comes into view)."""
+        r = self.mapToScene(self.viewport().rect()).boundingRect()
+        self.canvas_scene.set_label_region((r.left(), r.top(), r.right(), r.bottom()))
+
+    def scrollContentsBy(self, dx: int, dy: int) -> None:  # noqa: N802 (Qt naming)
+        super().scrollContentsBy(dx, dy)
+        self._labels_in_view()
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 (Qt naming)
+        super().resizeEvent(event)
+        self._labels_in_view()
 
     def drawForeground(self, painter, rect: QRectF) -> None:
         if self.canvas_scene.overview:
@@ -1024,7 +1038,9 @@ class CanvasView(QGraphicsView):
 
     def save_png(self, path, scale: float = 2.0) -> bool:
         """Write a picture of the whole canvas (all blocks) to ``path`` as PNG."""
+        self.canvas_scene.label_region = None  # every wire's label, not only those in view
         self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
+        self.canvas_scene.place_labels()
         rect = self._picture_rect()
         image = QImage(QSize(max(int(rect.width() * scale), 1), max(int(rect.height() * scale), 1)),
                        QImage.Format.Format_ARGB32_Premultiplied)
@@ -1040,7 +1056,9 @@ class CanvasView(QGraphicsView):
         """Write a picture of the whole canvas to ``path`` as SVG."""
         from PySide6.QtSvg import QSvgGenerator
 
+        self.canvas_scene.label_region = None  # every wire's label, not only those in view
         self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
+        self.canvas_scene.place_labels()
         rect = self._picture_rect()
         gen = QSvgGenerator()
         gen.setFileName(str(path))

@@ -17,6 +17,7 @@ from PySide6.QtGui import QPainterPath, QPainterPathStroker, QPen
 from PySide6.QtWidgets import QGraphicsItem, QStyle
 
 from layerloom.core.graph import Wire
+from layerloom.core.wire_labels import curve_points
 from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import advance, font, metrics
 
@@ -104,8 +105,11 @@ class WireItem(QGraphicsItem):
         self._lines: list[QLineF] | None = []
         self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
-        self._label_box = (0.0, 0.0, 0.0, 0.0)  # left, top, width, height of the label
+        self._label_box: tuple | None = None  # left, top, width, height of the label as placed
         self._label_rect: QRectF | None = QRectF()
+        self.label_size = (0.0, 0.0)
+        self._wire_box = (0.0, 0.0, 0.0, 0.0)
+        self._polyline: tuple | None = None
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
@@ -128,24 +132,52 @@ class WireItem(QGraphicsItem):
             self._ends = points
             xs, ys = [p[0] for p in points], [p[1] for p in points]
             left, top, right, bottom = min(xs), min(ys), max(xs), max(ys)  # rounded corners stay inside
-            (mx, my), (nx, ny) = points[2], points[3]  # a routed wire: the middle of its lane
         else:
             self._ends = (a, b)
-            (mx, my), (nx, ny) = a, b  # the curve is symmetric about the middle of its ends
-            reach = curve_reach(a[0], b[0])  # and stays within its control points' box
+            reach = curve_reach(a[0], b[0])  # a curve stays within its control points' box
             left, right = min(a[0], b[0], b[0] - reach), max(a[0], b[0], a[0] + reach)
             top, bottom = min(a[1], b[1]), max(a[1], b[1])
-        self._path = self._hit = self._lines = self._label_rect = None  # made again on first use
-        left, top, right, bottom = left - width, top - width, right + width, bottom + width
-        self.label, w, h = shape_label(shape) if labelled else NO_LABEL
-        if self.label:
-            x, y = (mx + nx) / 2 - w / 2, (my + ny) / 2 - width / 2 - h - 1.0
-            self._label_box = (x, y, w, h)
-            left, top, right, bottom = min(left, x), min(top, y), max(right, x + w), max(bottom, y + h)
-        else:
-            self._label_box = (0.0, 0.0, 0.0, 0.0)
-        self._bounds = QRectF(left, top, right - left, bottom - top)
+        self._path = self._hit = self._lines = self._label_rect = self._polyline = None  # made again on first use
+        self._wire_box = (left - width, top - width, right + width, bottom + width)
+        self.label, *size = shape_label(shape) if labelled else NO_LABEL
+        self.label_size = tuple(size)
+        self._label_box = None  # placed by the scene (place_label), clear of cards, wires and labels
+        self._bounds = QRectF(left - width, top - width, right - left + 2 * width, bottom - top + 2 * width)
         return True
+
+    def polyline(self) -> tuple:
+        """The wire as straight pieces: its route's corners, or points along its curve."""
+        if self._polyline is None:
+            pts = self._ends
+            self._polyline = pts if self._routed else curve_points(pts[0], pts[1], curve_reach(pts[0][0], pts[1][0]))
+        return self._polyline
+
+    def place_label(self, corner: tuple[float, float] | None) -> None:
+        """Show the label with its top-left at scene point ``corner`` (None: not shown)."""
+        box = None if corner is None or not self.label else (*corner, *self.label_size)
+        if box == self._label_box:
+            return
+        self.prepareGeometryChange()
+        self._label_box, self._label_rect = box, None
+        left, top, right, bottom = self._wire_box
+        if box is not None:
+            x, y, w, h = box
+            left, top, right, bottom = min(left, x), min(top, y), max(right, x + w), max(bottom, y + h)
+        self._bounds = QRectF(left, top, right - left, bottom - top)
+        self.update()
+
+    @property
+    def wire_box(self) -> tuple:
+        """``(left, top, right, bottom)`` the wire's stroke covers (its label aside)."""
+        return self._wire_box
+
+    @property
+    def label_box(self) -> tuple | None:
+        """``(left, top, right, bottom)`` of the label as placed, or None when it is not shown."""
+        if self._label_box is None:
+            return None
+        x, y, w, h = self._label_box
+        return (x, y, x + w, y + h)
 
     @property
     def points(self) -> tuple:
@@ -154,9 +186,9 @@ class WireItem(QGraphicsItem):
 
     @property
     def label_rect(self) -> QRectF:
-        """Where the shape label is drawn (empty when there is none)."""
+        """Where the shape label is drawn (empty when it is not shown)."""
         if self._label_rect is None:
-            self._label_rect = QRectF(*self._label_box)
+            self._label_rect = QRectF(*self._label_box) if self._label_box is not None else QRectF()
         return self._label_rect
 
     def path(self) -> QPainterPath:
@@ -196,7 +228,7 @@ class WireItem(QGraphicsItem):
         painter.setPen(pen)
         painter.setBrush(Qt.BrushStyle.NoBrush)
         painter.drawPath(self.path())
-        if not self.label or lod < theme.TEXT_MIN_DETAIL:
+        if self._label_box is None or lod < theme.TEXT_MIN_DETAIL:
             return
         painter.setPen(Qt.PenStyle.NoPen)
         painter.setBrush(theme.LABEL_BACK)
