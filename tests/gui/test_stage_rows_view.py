@@ -262,3 +262,26 @@ def test_wire_labels_touch_no_wire_card_or_label_also_after_a_mend(qtbot, tmp_pa
     SHOTS.mkdir(exist_ok=True)
     shoot_canvas.save(str(SHOTS / f"labels_{sample}.png"))
     window.close()
+
+
+def test_a_mend_on_a_tidy_design_keeps_it_tidy_in_the_same_undo_step(qtbot, tmp_path):
+    from layerloom.core.fileformat import dumps
+    from layerloom.core.mends import mends_for
+
+    window = window_on(qtbot, tmp_path, "shelf_gap_counter_clash")
+    canvas, doc = window.canvas, window.document
+    d = doc.design
+    assert canvas.is_tidy()
+    before, steps = dumps(d), doc.undo_stack.count()
+    (error,) = [f for f in d.findings() if f.severity == "error"]
+    window.shelf.findings.mend_applier(mends_for(d, error)[0])  # as the Findings tab's Mend button does
+    added = [b for b in d.blocks.values() if b.name not in before]
+    assert added and not [f for f in d.findings() if f.severity == "error"]
+    assert canvas.is_tidy() and doc.undo_stack.count() == steps + 1  # laid out again, one step
+    card = canvas.canvas_scene.blocks[added[0].id].sceneBoundingRect()
+    assert not any(card.intersects(i.sceneBoundingRect()) for b, i in canvas.canvas_scene.cards() if b != added[0].id)
+    doc.undo_stack.undo()
+    assert dumps(d) == before  # the mend and its Tidy undone together, every position as it was
+    doc.undo_stack.redo()
+    assert canvas.is_tidy() and {b.id for b in added} <= set(d.blocks)
+    window.close()

@@ -84,6 +84,7 @@ class MainWindow(QMainWindow):
         self.setDockNestingEnabled(True)
         self.resize(1400, 860)  # first run; a saved geometry replaces it below
         self.shelf.findings.block_chosen.connect(self.canvas.center_on)
+        self.shelf.findings.mend_applier = self.canvas.apply_mend
         self.canvas.message.connect(self.say)
         self.canvas.settings_wanted.connect(self._settings_wanted)
         self.block_settings.finished.connect(self.canvas.setFocus)

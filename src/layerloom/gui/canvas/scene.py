@@ -136,6 +136,7 @@ class CanvasScene(QGraphicsScene):
         self._ov_valid = False
         self.overview_revision = 0  # grows whenever the overview's still part may have changed
         self.moving: set[str] = set()  # cards dragged since the last change of the document
+        self.mend_applier = None  # the view's way of applying a mend (it keeps a tidy design tidy)
         self._bulk = False  # while an edit moves most cards at once
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
@@ -739,7 +740,8 @@ class CanvasScene(QGraphicsScene):
         return mends_for(self.design, finding)
 
     def apply_mend(self, mend) -> bool:
-        return self.apply(mend.edit)
+        """Apply a mend (as the view wants it, see :attr:`mend_applier`, else as one edit)."""
+        return self.mend_applier(mend) if self.mend_applier is not None else self.apply(mend.edit)
 
     def total_macs(self) -> int:
         """MACs of the whole design per sample, as of the last refresh."""

@@ -72,6 +72,7 @@ class CanvasView(QGraphicsView):
         super().__init__(parent)
         self.document = document
         self.canvas_scene = CanvasScene(document, self)
+        self.canvas_scene.mend_applier = self.apply_mend
         self.setScene(self.canvas_scene)
         self.canvas_scene.refused.connect(self.message)
         self.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
@@ -936,6 +937,24 @@ class CanvasView(QGraphicsView):
                 self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
             self.fit_all()
 
+    def is_tidy(self, fold: bool | None = None) -> bool:
+        """Whether the graph shown stands as Tidy lays it out (with Fold ``fold``, else as shown)."""
+        graph = self.document.graph
+        return all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(fold).positions.items())
+
+    def apply_mend(self, mend) -> bool:
+        """Apply a mend as one undo step; a design laid out by Tidy is tidied again in that step
+        (the blocks a mend adds would otherwise land beside the rows, their wires crossing others)."""
+        was_tidy = self.is_tidy()
+        if not self.canvas_scene.apply(mend.edit):
+            return False
+        if was_tidy:
+            graph = self.document.graph
+            moved = {b: p for b, p in self.tidy_layout().positions.items() if tuple(graph.blocks[b].position) != p}
+            if moved:
+                self.document.apply_in_last_step(edits.Edit("Tidy", edits.move(graph, moved).ops))
+        return True
+
     def set_fold(self, on: bool) -> None:
         """Fold norms and activations into their convolution's card (on) or show each as a card. A
         design laid out by Tidy is tidied again for the new look (one undoable edit), and so is one
@@ -944,7 +963,7 @@ class CanvasView(QGraphicsView):
         if on == scene.fold:
             return
         graph = self.document.graph
-        was_tidy = all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(scene.fold).positions.items())
+        was_tidy = self.is_tidy(scene.fold)
         hidden = not on and any(tuple(graph.blocks[c].position) == tuple(graph.blocks[h].position)
                                 for c, h in scene.folds.items())
         scene.set_fold(on)
