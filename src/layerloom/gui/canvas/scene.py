@@ -416,8 +416,9 @@ class CanvasScene(QGraphicsScene):
         if not self._ov_valid:
             self._ov_rects, self._ov_where = {}, {}
             by_status: dict = {}  # a card's status → (colour rgba, its group's rectangles)
-            places, made = self.obstacles.rects, self._card_rects
-            for bid, item in self.cards():
+            places, made, blocks = self.obstacles.rects, self._card_rects, self.blocks
+            for bid in places:  # every card (chips have no rectangle of their own)
+                item = blocks[bid]
                 group = by_status.get(item.state.status)
                 if group is None:
                     colour = _overview_colour(item)
