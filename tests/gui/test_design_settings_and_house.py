@@ -91,7 +91,7 @@ def test_enter_and_escape_in_block_settings_give_the_keys_back_to_the_canvas(qtb
 
 def test_a_refusal_moves_no_field(qtbot, tmp_path):
     window, _ = open_window(qtbot, tmp_path)
-    doc, panel = window.document, window.block_settings
+    panel = window.block_settings
     qtbot.keyClicks(window.canvas, "conv")
     qtbot.keyClick(window.canvas._quick.edit, Qt.Key.Key_Return)
     qtbot.wait(100)  # the new fields laid out

@@ -578,7 +578,7 @@ class CanvasScene(QGraphicsScene):
             if item is None:
                 continue
             src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
-            (sl, st, sr, _), (dl, dt, _, _) = rects[src], rects[dst]
+            (_, st, sr, _), (dl, dt, _, _) = rects[src], rects[dst]
             port = w.src_port if src == w.src else 0
             a = (sr + gap, st + H * (port + 1) / (max(blocks[src].state.n_out, port + 1) + 1))
             b = (dl - gap, dt + H * (w.dst_port + 1) / (max(blocks[dst].state.n_in, w.dst_port + 1) + 1))
