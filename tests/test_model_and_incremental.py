@@ -9,6 +9,7 @@ import pytest
 from layerloom import Design
 from layerloom.core import edits
 from layerloom.core.fileformat import dumps, parse
+from layerloom.core.graph import Wire
 from layerloom.core.inference import GraphInference
 from layerloom.core.settings import SettingError
 
@@ -131,3 +132,17 @@ def test_renaming_away_from_a_name_ending_in_a_non_ascii_digit():
     for name in ("²", "stem_²", "stem_٣", "input_1"):
         d.apply(edits.rename(d, x, name))
     assert d.blocks[x].name == "input_1"
+
+
+def test_closing_a_loop_through_an_output_gives_the_findings_of_a_fresh_load():
+    """Found by the editor's property test (tests/gui/test_properties_editor.py): blocks that join a
+    loop kept their results from before it, so a block on the loop read its source's stale shapes
+    and named a fault a fresh load of the same file does not name."""
+    d = Design("loop")
+    x = d.input(3, 8, 8)
+    norm = d.add("BatchNorm2d", x)
+    out = d.add("Output", d.add("ReLU", norm))
+    d.findings()  # results exist before the edit, so what follows is incremental
+    d.apply(edits.replace_wire(d, Wire(out, 0, norm, 0)))
+    assert d.findings() == parse(dumps(d)).findings()
+    assert "graph.cycle" in {f.code for f in d.findings()}

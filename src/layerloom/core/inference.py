@@ -160,8 +160,9 @@ class GraphInference:
         blocks = g.blocks
         level, stuck = self._levels()
         top = max(level.values(), default=-1) + 1
-        for b in stuck:  # on a loop or after one: they go last
+        for b in stuck:  # on a loop or after one: they go last, with no results (none kept from before the loop)
             level[b] = top
+            self.results[b] = None
         self.stuck = set(stuck)
         found: list[Finding] = self._cycles(stuck) if stuck else []
         order = sorted(blocks, key=level.__getitem__)  # a stable sort: insertion order within a level
