@@ -24,24 +24,23 @@ from hypothesis import HealthCheck, given, settings
 from PySide6.QtCore import QPointF
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QApplication, QCheckBox, QComboBox, QLineEdit
+from test_properties import _snapshot, designs, examples
+from test_properties_motifs import _convex, extreme_designs
+from test_window_files import open_window
 
 from layerloom import Design
 from layerloom.core import fileformat
 from layerloom.core.design import DTYPES
 from layerloom.core.kinds import KINDS
 from layerloom.core.motif_library import BY_KEY
-from layerloom.core.targets import PRESETS
 from layerloom.gui.budget_dialog import BudgetDialog
-from test_properties import _snapshot, designs, examples
-from test_properties_motifs import _convex, extreme_designs
-from test_window_files import open_window
 
-RTL = st.sampled_from(["طبقة_الدمج", "שכבה‏", "مرحلة ٢", "\u202eevil\u202c", "ملف-١٢٣"])
+RTL = st.sampled_from(["طبقة_الدمج", "שכבה\u200f", "مرحلة ٢", "\u202eevil\u202c", "ملف-١٢٣"])
 ODD = st.sampled_from(["🧵🪡" * 3, "e\u0301\u0301\u0301", "Z̤̈ä̤l̈g̤o", "名前の長い層", "a" * 1000, "x " * 400,
                        "tab\there", "ʼn", "²", "𝟘𝟙"])
 NAMES = st.one_of(RTL, ODD, st.text(st.characters(blacklist_categories=("Cs",)), min_size=1, max_size=12))
 KIND_NAMES = sorted(set(KINDS) - {"Motif", "Unmapped"})  # Unmapped comes only from import
-SLOW = dict(deadline=None, suppress_health_check=list(HealthCheck))
+SLOW = {"deadline": None, "suppress_health_check": list(HealthCheck)}
 
 
 # ----- valid but extreme designs --------------------------------------------------------------------

@@ -1,0 +1,51 @@
+"""Odd-but-valid names in the editor: a 200-character name, right-to-left text, emoji and combining
+marks keep the window at the size it was given, wrap in Block settings and are elided (whole on
+hover) in the Findings list and its mend line; nothing is cut off at the panel's edge."""
+from __future__ import annotations
+
+from PySide6.QtWidgets import QApplication, QWidget
+from test_window_files import open_window
+
+from layerloom import Design
+from layerloom.core import fileformat
+from layerloom.gui.text_fit import RUN, breakable
+
+LONG = "x" * 200
+
+
+def odd_clash() -> Design:
+    """A 64 + 128 channel clash (a 1×1 convolution widens one branch only) among odd names."""
+    d = Design("ملف " + "long-" * 60)
+    x = d.input(64, 56, 56, name="صورة_" + LONG)
+    a = d.add("Pointwise", x, out_channels=128, name="widen_" + "🧵" * 40)
+    j = d.add("Add", a, x, name="join" + "\u0301" * 5 + "_" + "y" * 150)
+    d.add("Output", j, name="out")
+    return d
+
+
+def test_long_names_keep_the_window_and_its_panels_at_their_size(qtbot, tmp_path):
+    path = tmp_path / "odd.loom"
+    fileformat.save(odd_clash(), path)
+    window, _ = open_window(qtbot, tmp_path, [path])
+    window.resize(1280, 800)
+    window.show_findings()
+    listing = window.shelf.findings
+    listing.tree.setCurrentItem(listing.tree.topLevelItem(0))  # selects the join: Block settings shows the error
+    QApplication.processEvents()
+    assert window.document.selection and window.width() == 1280  # was 2254: the mend line's full width
+    assert "1×1 projection to 128 channels after صورة_" + LONG in listing.mend_label.toolTip()
+    assert listing.tree.columnWidth(2) <= 260 and listing.tree.topLevelItem(0).toolTip(2).startswith("join")
+    dock = window.settings_dock.width()
+    wide = [(w.objectName(), w.minimumSizeHint().width()) for w in window.block_settings.findChildren(QWidget)
+            if w.isVisible() and w.minimumSizeHint().width() > dock]
+    assert wide == []  # the facts (the error names the join in full) wrap instead of widening the panel
+    assert "adds 64 channels to 128 channels" in window.block_settings.facts.text()
+    window.document.undo_stack.setClean()
+    window.close()
+
+
+def test_breakable_lets_only_long_runs_break():
+    assert breakable("conv_1 adds 64 channels") == "conv_1 adds 64 channels"
+    broken = breakable("a" * (2 * RUN + 1) + " b")
+    assert broken == "a" * RUN + "\u200b" + "a" * RUN + "\u200b" + "a b"
+    assert breakable("مرحلة ٢ " + "ب" * RUN) == "مرحلة ٢ " + "ب" * RUN  # a run of exactly RUN stays whole
