@@ -153,13 +153,16 @@ def test_ledger_json_of_a_design_with_errors_is_marked_incomplete_and_exits_1():
     assert data["findings"][0]["numbers"] == [64, 128]
     clean = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json").stdout)
     assert clean["complete"] is True and clean["findings"] == []
-    assert run("ledger", CLASH).returncode == 1 and run("ledger", CLASH, "--csv").returncode == 1
+    partial = run("ledger", CLASH)
+    assert partial.returncode == 1 and run("ledger", CLASH, "--csv").returncode == 1
+    said = partial.stderr + partial.stdout
+    assert f"1 error finding: blocks after it are not counted; see `layerloom check {CLASH}`" in said
 
 
 def test_ledger_warns_when_the_baseline_has_errors():
     r = run("ledger", "samples/fastener_sorter.loom", "--baseline", CLASH)
     assert r.returncode == 0
-    assert f"the baseline {CLASH} has 1 error finding(s), so its totals are partial" in r.stdout
+    assert f"the baseline {CLASH} has 1 error finding, so its totals are partial" in r.stdout
     data = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json", "--baseline", CLASH).stdout)
     assert data["baseline"]["complete"] is False
     assert "partial" not in run("ledger", "samples/fastener_sorter.loom", "--baseline",

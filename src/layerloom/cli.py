@@ -177,11 +177,15 @@ def _ledger(args) -> int:
 def _warn_partial(args, errors: list, base_errors: list, out) -> None:
     """Say that totals are partial: of the design, and of the baseline from ``--baseline``."""
     if errors:
-        print(f"{len(errors)} error finding(s): blocks after them are not counted; see `layerloom check {args.file}`",
-              file=out)
+        them = "them" if len(errors) > 1 else "it"
+        print(f"{_findings(errors)}: blocks after {them} are not counted; see `layerloom check {args.file}`", file=out)
     if base_errors:
-        print(f"warning: the baseline {args.baseline} has {len(base_errors)} error finding(s), so its totals are "
+        print(f"warning: the baseline {args.baseline} has {_findings(base_errors)}, so its totals are "
               f"partial; see `layerloom check {args.baseline}`", file=out)
+
+
+def _findings(errors: list) -> str:
+    return f"{len(errors)} error finding{'s' if len(errors) > 1 else ''}"
 
 
 def _pixels(pair) -> list | None:
