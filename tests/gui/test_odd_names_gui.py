@@ -49,3 +49,18 @@ def test_breakable_lets_only_long_runs_break():
     broken = breakable("a" * (2 * RUN + 1) + " b")
     assert broken == "a" * RUN + "\u200b" + "a" * RUN + "\u200b" + "a b"
     assert breakable("مرحلة ٢ " + "ب" * RUN) == "مرحلة ٢ " + "ب" * RUN  # a run of exactly RUN stays whole
+
+
+def test_a_baseline_with_a_long_name_keeps_the_depth_ledger_its_height(qtbot, tmp_path):
+    """The chart key named the pinned baseline in full: a 300-character design name took six lines
+    from the chart at 1280 × 800."""
+    path = tmp_path / "odd.loom"
+    fileformat.save(odd_clash(), path)
+    window, _ = open_window(qtbot, tmp_path, [path])
+    window.depth_ledger.pin_baseline()
+    qtbot.waitUntil(lambda: "baseline" in window.depth_ledger.key.text())
+    key = window.depth_ledger.key.text()
+    assert key.startswith("solid: now · dashed: baseline 'ملف long-long-") and "characters)" in key
+    assert len(key) < 120
+    window.document.undo_stack.setClean()
+    window.close()

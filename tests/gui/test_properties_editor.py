@@ -19,6 +19,8 @@ What must hold after each step and at the end:
 """
 from __future__ import annotations
 
+from collections import Counter
+
 import hypothesis.strategies as st
 from hypothesis import HealthCheck, given, settings
 from PySide6.QtCore import QPointF
@@ -35,7 +37,8 @@ from layerloom.core.kinds import KINDS
 from layerloom.core.motif_library import BY_KEY
 from layerloom.gui.budget_dialog import BudgetDialog
 
-RTL = st.sampled_from(["طبقة_الدمج", "שכבה\u200f", "مرحلة ٢", "\u202eevil\u202c", "ملف-١٢٣"])
+RTL_NAMES = ["طبقة_الدمج", "שכבה\u200f", "مرحلة ٢", "\u202eevil\u202c", "ملف-١٢٣"]
+RTL = st.sampled_from(RTL_NAMES)
 ODD = st.sampled_from(["🧵🪡" * 3, "e\u0301\u0301\u0301", "Z̤̈ä̤l̈g̤o", "名前の長い層", "a" * 1000, "x " * 400,
                        "tab\there", "ʼn", "²", "𝟘𝟙"])
 NAMES = st.one_of(RTL, ODD, st.text(st.characters(blacklist_categories=("Cs",)), min_size=1, max_size=12))
@@ -50,7 +53,7 @@ def _nested(draw, d: Design, depth: int) -> str:
     """Motifs ``deep_0`` … each using the one below ``repeat`` times; all keep the input's shape."""
     prev = None
     for level in range(depth):
-        m = d.motif(f"deep_{level}" if draw(st.booleans()) else f"{draw(RTL)}_{level}")
+        m = d.motif(f"{draw(st.sampled_from(['deep', *RTL_NAMES]))}_{len(d.motifs)}")
         x = m.input()
         if prev is None:
             x = m.add(draw(st.sampled_from(["ReLU", "Identity", "BatchNorm2d"])), x, name=draw(NAMES))
@@ -320,16 +323,16 @@ def check_step(ed: Editor, command) -> None:
 
 
 def check_undo_redo_and_save(ed: Editor, start: bytes, tmp_path) -> None:
-    """Undo all → the file opened; redo all → the final file; that file reads back the same."""
+    """Undo all → the file opened; redo all the steps done → the final file; that file reads back the same."""
     stack = ed.doc.undo_stack
-    final = fileformat.dumps(ed.doc.design)
+    final, steps = fileformat.dumps(ed.doc.design), stack.index()  # steps undone midway may wait above it
     while stack.canUndo():
         stack.undo()
     QApplication.processEvents()
     back = tmp_path / "undone.loom"
     assert ed.window.files.write(back)
     assert back.read_bytes() == start
-    while stack.canRedo():
+    while stack.index() < steps:
         stack.redo()
     QApplication.processEvents()
     assert fileformat.dumps(ed.doc.design) == final
@@ -340,7 +343,7 @@ def check_undo_redo_and_save(ed: Editor, start: bytes, tmp_path) -> None:
     assert _snapshot(again) == _snapshot(ed.doc.design)
 
 
-def run_commands(ed: Editor, design: Design, data, tmp_path, steps: int) -> None:
+def run_commands(ed: Editor, design: Design, data, tmp_path, steps: int, ran: Counter) -> None:
     path = tmp_path / "start.loom"
     fileformat.save(design, path)
     start = path.read_bytes()
@@ -348,6 +351,7 @@ def run_commands(ed: Editor, design: Design, data, tmp_path, steps: int) -> None
     for _ in range(steps):
         command = data.draw(st.sampled_from([c for c, ok in COMMANDS.items() if ok(ed)]))
         command(ed, data.draw)
+        ran[command.__name__] += 1
         check_step(ed, command)
     check_undo_redo_and_save(ed, start, tmp_path)
 
@@ -355,15 +359,18 @@ def run_commands(ed: Editor, design: Design, data, tmp_path, steps: int) -> None
 def test_random_editor_commands_undo_to_the_file_opened_and_save_stably(qtbot, tmp_path):
     window, prompts = open_window(qtbot, tmp_path)
     ed = Editor(window, prompts)
+    ran = Counter()
 
-    @settings(max_examples=examples(12), **SLOW)
+    @settings(max_examples=examples(20), **SLOW)
     @given(editor_designs, st.data())
     def run(design, data):
         with qtbot.captureExceptions() as caught:
-            run_commands(ed, design, data, tmp_path, data.draw(st.integers(1, 8)))
+            run_commands(ed, design, data, tmp_path, data.draw(st.integers(1, 8)), ran)
         assert not caught, caught
 
     run()
+    print(sorted(ran.items()))
+    assert len(ran) >= len(COMMANDS) // 2, ran  # the examples reached most commands
     window.close()
 
 
