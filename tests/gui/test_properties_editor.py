@@ -2,7 +2,7 @@
 
 A design is saved to a file and opened in the editor window; then a random sequence of the commands
 a user has runs through the widgets that offer them (the canvas, Block settings, design settings,
-the Findings list and its mends, the budget dialog, the View menu's Fold): add, add a motif, insert
+the Findings list and its mends, a card's mends, the budget dialog, the View menu's Fold): add, add a motif, insert
 on a wire, delete with and without bridging, wire into a block (replacing a wire), type a setting,
 rename, make motif, expand, open a motif and go back, expose a parameter, copy and paste, duplicate,
 move, Tidy, Fold, budget and target, design fields, every mend offered, undo and redo midway.
@@ -290,6 +290,14 @@ def mend(ed: Editor, draw) -> None:
         listing.apply_mend(draw(st.integers(0, len(listing._mends) - 1)))
 
 
+def card_mend(ed: Editor, draw) -> None:
+    """A mend from a card's menu in the graph shown (inside a motif: made to act on the use shown)."""
+    found = [f for fs in ed.doc.findings_by_block().values() for f in fs if f.block in ed.graph.blocks]
+    mends = [m for f in found for m in ed.canvas.canvas_scene.mends(f)]
+    if mends:
+        ed.canvas.canvas_scene.apply_mend(draw(st.sampled_from(mends)))
+
+
 def undo_redo(ed: Editor, draw) -> None:
     stack = ed.doc.undo_stack
     for _ in range(draw(st.integers(1, 3))):
@@ -305,7 +313,7 @@ COMMANDS = {add: lambda ed: True, add_motif: lambda ed: True, insert_on_wire: la
             open_or_back: lambda ed: True, expose: lambda ed: bool(ed.doc.graph_key and ed.graph.blocks),
             copy_paste: lambda ed: bool(ed.graph.blocks), move: lambda ed: bool(ed.graph.blocks),
             tidy: lambda ed: True, fold: lambda ed: True, budget: lambda ed: True, design_fields: lambda ed: True,
-            mend: lambda ed: True, undo_redo: lambda ed: ed.doc.undo_stack.canUndo()}
+            mend: lambda ed: True, card_mend: lambda ed: True, undo_redo: lambda ed: ed.doc.undo_stack.canUndo()}
 
 
 # ----- what must hold -------------------------------------------------------------------------------
@@ -361,7 +369,7 @@ def test_random_editor_commands_undo_to_the_file_opened_and_save_stably(qtbot, t
     ed = Editor(window, prompts)
     ran = Counter()
 
-    @settings(max_examples=examples(20), **SLOW)
+    @settings(max_examples=examples(12), **SLOW)
     @given(editor_designs, st.data())
     def run(design, data):
         with qtbot.captureExceptions() as caught:
