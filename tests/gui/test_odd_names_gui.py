@@ -64,3 +64,41 @@ def test_a_baseline_with_a_long_name_keeps_the_depth_ledger_its_height(qtbot, tm
     assert len(key) < 120
     window.document.undo_stack.setClean()
     window.close()
+
+
+def deep_design(levels: int) -> Design:
+    """Motifs nested ``levels`` deep with long and right-to-left names; the design uses the top one."""
+    d = Design("deep")
+    prev = None
+    for i in range(levels):
+        m = d.motif(f"level_{i}_" + ("طبقة" if i % 2 else "long_name_of_a_level_" * 3))
+        x = m.input()
+        x = m.add("Motif", x, motif=prev, repeat=2) if prev else m.add("Conv2d", x, out_channels=8, kernel=3, padding=1)
+        m.add("Output", x)
+        prev = m.name
+    d.add("Output", d.add("Motif", d.input(8, 32, 32), motif=prev, name="top"))
+    return d
+
+
+def test_the_trail_into_a_motif_sixty_deep_keeps_the_window_width(qtbot, tmp_path):
+    """Each step of the way in was a button with the motif's whole name: 60 steps made the window
+    13,987 pixels wide. Past four steps the middle ones fold into '…' (named on hover)."""
+    from layerloom.gui.graph_trail import SHOWN_STEPS
+
+    path = tmp_path / "deep.loom"
+    fileformat.save(deep_design(60), path)
+    window, _ = open_window(qtbot, tmp_path, [path])
+    window.resize(1280, 800)
+    while (inner := [b.id for b in window.document.graph.blocks.values() if b.kind == "Motif"]):
+        window.canvas.open_motif(inner[0])
+    QApplication.processEvents()
+    trail = window.trail
+    assert len(window.document.trail) == 61 and window.width() == 1280
+    assert len(trail.crumbs) == SHOWN_STEPS and trail.crumbs[0].text() == "deep"
+    assert all(len(c.text()) <= 24 for c in trail.crumbs)
+    assert trail.here.text() == "level_0_" + "long_name_of_a_level_" * 3  # whole, drawn cut to the room left
+    folded = [w for w in trail.findChildren(QWidget) if not w.isHidden() and w.toolTip().startswith("level_59_")]
+    assert folded and "level_4_" in folded[0].toolTip()
+    trail.crumbs[1].click()  # the first step after the fold: back to level 3
+    assert window.document.graph_key.startswith("level_3_")
+    window.close()
