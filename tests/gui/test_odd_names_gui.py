@@ -102,3 +102,23 @@ def test_the_trail_into_a_motif_sixty_deep_keeps_the_window_width(qtbot, tmp_pat
     trail.crumbs[1].click()  # the first step after the fold: back to level 3
     assert window.document.graph_key.startswith("level_3_")
     window.close()
+
+
+def test_a_motif_with_a_long_name_leaves_block_settings_its_width(qtbot, tmp_path):
+    """The motif list of an instance was as wide as the longest motif name (1,859 pixels): every
+    field of Block settings ran past the dock's edge."""
+    d = Design("combo")
+    m = d.motif("motif_" + "with_a_very_long_name_" * 12, width=8)
+    m.add("Output", m.add("Pointwise", m.input(), out_channels={"param": "width"}))
+    d.add("Output", d.use(m.name, d.input(8, 32, 32), name="use"))
+    path = tmp_path / "combo.loom"
+    fileformat.save(d, path)
+    window, _ = open_window(qtbot, tmp_path, [path])
+    window.resize(1280, 800)
+    window.document.select([b.id for b in window.document.design.blocks.values() if b.kind == "Motif"])
+    QApplication.processEvents()
+    panel = window.block_settings
+    assert panel.fields["motif"].widget.currentText() == m.name
+    dock = window.settings_dock.width()
+    assert [w.objectName() for w in panel.findChildren(QWidget) if w.isVisible() and w.minimumSizeHint().width() > dock] == []
+    window.close()

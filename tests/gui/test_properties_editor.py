@@ -13,7 +13,7 @@ inside motifs repeated, concatenations of up to 64 inputs, grouped and depthwise
 What must hold after each step and at the end:
 
 - nothing raises (a refusal is a one-line message, never an exception) and the canvas shows every
-  block of the graph shown;
+  block of the graph shown; no name widens the window or cuts Block settings off at its edge;
 - undoing every step gives back exactly the file opened; redoing them all gives the final file;
 - the file saved reads back to the same file and the same figures as the design kept incrementally.
 """
@@ -25,7 +25,7 @@ import hypothesis.strategies as st
 from hypothesis import HealthCheck, given, settings
 from PySide6.QtCore import QPointF
 from PySide6.QtGui import QAction
-from PySide6.QtWidgets import QApplication, QCheckBox, QComboBox, QLineEdit
+from PySide6.QtWidgets import QApplication, QCheckBox, QComboBox, QLineEdit, QWidget
 from test_properties import _snapshot, designs, examples
 from test_properties_motifs import _convex, extreme_designs
 from test_window_files import open_window
@@ -43,6 +43,7 @@ ODD = st.sampled_from(["🧵🪡" * 3, "e\u0301\u0301\u0301", "Z̤̈ä̤l̈g̤o"
                        "tab\there", "ʼn", "²", "𝟘𝟙"])
 NAMES = st.one_of(RTL, ODD, st.text(st.characters(blacklist_categories=("Cs",)), min_size=1, max_size=12))
 KIND_NAMES = sorted(set(KINDS) - {"Motif", "Unmapped"})  # Unmapped comes only from import
+WIDTH = 1280  # the window's width, kept whatever the design holds
 SLOW = {"deadline": None, "suppress_health_check": list(HealthCheck)}
 
 
@@ -325,6 +326,11 @@ def check_step(ed: Editor, command) -> None:
     assert ed.doc.graph_key in ("", *ed.doc.design.motifs), command.__name__
     assert set(ed.doc.selection) <= set(graph.blocks), command.__name__
     assert set(ed.canvas.canvas_scene.blocks) == set(graph.blocks), command.__name__  # every block shown
+    assert ed.window.width() == WIDTH, command.__name__  # no name widened the window past its size
+    dock = ed.window.settings_dock.width()
+    wide = [(type(w).__name__, w.objectName()) for w in ed.window.block_settings.findChildren(QWidget)
+            if w.isVisible() and w.minimumSizeHint().width() > dock]
+    assert not wide, (command.__name__, wide)  # nothing in Block settings cut off at the dock's edge
     for message in ed.said:
         assert message.strip() and "\n" not in message and "Traceback" not in message, (command.__name__, message)
     ed.said.clear()
@@ -366,6 +372,7 @@ def run_commands(ed: Editor, design: Design, data, tmp_path, steps: int, ran: Co
 
 def test_random_editor_commands_undo_to_the_file_opened_and_save_stably(qtbot, tmp_path):
     window, prompts = open_window(qtbot, tmp_path)
+    window.resize(WIDTH, 800)
     ed = Editor(window, prompts)
     ran = Counter()
 

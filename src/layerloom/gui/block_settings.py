@@ -90,6 +90,9 @@ class Field:
         elif t == "choice":
             self.widget = QComboBox()
             self.widget.addItems(list(setting.choices))
+            # as wide as the panel lets it be, not as its longest item (a motif's name may be any length)
+            self.widget.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            self.widget.setMinimumContentsLength(8)
             self.widget.activated.connect(lambda i: commit(self, self.widget.itemText(i)))
         else:
             self.widget = QLineEdit()
