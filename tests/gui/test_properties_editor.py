@@ -291,6 +291,22 @@ def mend(ed: Editor, draw) -> None:
         listing.apply_mend(draw(st.integers(0, len(listing._mends) - 1)))
 
 
+def every_mend(ed: Editor, draw) -> None:
+    """Each mend of each finding in the Findings list in turn, each undone: the file comes back."""
+    listing, stack = ed.window.shelf.findings, ed.doc.undo_stack
+    listing.refresh()
+    before = fileformat.dumps(ed.doc.design)
+    for row in range(listing.tree.topLevelItemCount()):
+        listing.tree.setCurrentItem(listing.tree.topLevelItem(row))
+        for i in range(len(listing._mends)):
+            listing.tree.setCurrentItem(listing.tree.topLevelItem(row))
+            done = stack.index()
+            listing.apply_mend(i)
+            if stack.index() > done:
+                stack.undo()
+            assert fileformat.dumps(ed.doc.design) == before, (row, i)
+
+
 def card_mend(ed: Editor, draw) -> None:
     """A mend from a card's menu in the graph shown (inside a motif: made to act on the use shown)."""
     found = [f for fs in ed.doc.findings_by_block().values() for f in fs if f.block in ed.graph.blocks]
@@ -314,7 +330,7 @@ COMMANDS = {add: lambda ed: True, add_motif: lambda ed: True, insert_on_wire: la
             open_or_back: lambda ed: True, expose: lambda ed: bool(ed.doc.graph_key and ed.graph.blocks),
             copy_paste: lambda ed: bool(ed.graph.blocks), move: lambda ed: bool(ed.graph.blocks),
             tidy: lambda ed: True, fold: lambda ed: True, budget: lambda ed: True, design_fields: lambda ed: True,
-            mend: lambda ed: True, card_mend: lambda ed: True, undo_redo: lambda ed: ed.doc.undo_stack.canUndo()}
+            mend: lambda ed: True, every_mend: lambda ed: True, card_mend: lambda ed: True, undo_redo: lambda ed: ed.doc.undo_stack.canUndo()}
 
 
 # ----- what must hold -------------------------------------------------------------------------------
