@@ -15,7 +15,7 @@ import textwrap
 
 from layerloom import fit_command
 from layerloom.core import units
-from layerloom.core.design import DTYPES, Design
+from layerloom.core.design import DTYPES, MAX_BATCH, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
 from layerloom.core.shapes import parse_shape
@@ -30,7 +30,6 @@ from layerloom import picture
 # a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
 
 COMMANDS = ("check", "ledger", "export", "import", "measure", "fit", "picture")
-MAX_BATCH = 65_536  # as the file format's schema
 
 
 class UsageError(Exception):

@@ -276,7 +276,7 @@ def design_fields(ed: Editor, draw) -> None:
         panel._commit("notes", panel.notes_edit.toPlainText())  # what leaving the notes does
     else:
         edit: QLineEdit = panel.name_edit if which == "name" else panel.batch_edit
-        edit.setText(draw(st.one_of(NAMES, st.sampled_from(["1", "65536", "0", "-3", "1.5", "٣", ""]))))
+        edit.setText(draw(st.one_of(NAMES, st.sampled_from(["1", "65536", "65537", "9" * 30, "0", "-3", "1.5", "٣", ""]))))
         edit.editingFinished.emit()
 
 
