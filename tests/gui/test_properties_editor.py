@@ -19,19 +19,20 @@ What must hold after each step and at the end:
 """
 from __future__ import annotations
 
+import json
 from collections import Counter
 
 import hypothesis.strategies as st
 from hypothesis import HealthCheck, given, settings
 from PySide6.QtCore import QPointF
-from PySide6.QtGui import QAction
+from PySide6.QtGui import QAction, QGuiApplication
 from PySide6.QtWidgets import QApplication, QCheckBox, QComboBox, QLineEdit, QWidget
 from test_properties import _snapshot, designs, examples
 from test_properties_motifs import _convex, extreme_designs
 from test_window_files import open_window
 
 from layerloom import Design
-from layerloom.core import fileformat
+from layerloom.core import clipboard, fileformat
 from layerloom.core.design import DTYPES
 from layerloom.core.kinds import KINDS
 from layerloom.core.motif_library import BY_KEY
@@ -235,6 +236,22 @@ def copy_paste(ed: Editor, draw) -> None:
     ed.canvas.paste()
 
 
+def paste_text(ed: Editor, draw) -> None:
+    """Paste text from elsewhere: not blocks at all, or copied blocks with a value broken."""
+    data = clipboard.copy_blocks(ed.graph, ed.pick_blocks(draw, 1, 3)) if ed.graph.blocks else {"blocks": []}
+    broken = json.loads(json.dumps(data))
+    if broken.get("wires"):
+        broken["wires"][0][3] = draw(st.sampled_from([-1, 64, "x", None, 10 ** 30]))
+    if broken["blocks"]:
+        broken["blocks"][0][draw(st.sampled_from(["position", "kind", "name", "settings"]))] = draw(
+            st.sampled_from([[1e400, 0], "NoSuchKind", "", {"out_channels": -5}, None, "\ud800"]))
+    broken_text = json.dumps(broken).replace("Infinity", "1e400")
+    text = draw(st.sampled_from(["", "{", "null", "[]", '{"format": "layerloom-blocks", "version": 99}',
+                                 json.dumps(data, ensure_ascii=False), broken_text]))
+    QGuiApplication.clipboard().setText(text)
+    ed.canvas.paste()
+
+
 def move(ed: Editor, draw) -> None:
     ed.doc.select(ed.pick_blocks(draw))
     QApplication.processEvents()
@@ -276,7 +293,8 @@ def design_fields(ed: Editor, draw) -> None:
         panel._commit("notes", panel.notes_edit.toPlainText())  # what leaving the notes does
     else:
         edit: QLineEdit = panel.name_edit if which == "name" else panel.batch_edit
-        edit.setText(draw(st.one_of(NAMES, st.sampled_from(["1", "65536", "65537", "9" * 30, "0", "-3", "1.5", "٣", ""]))))
+        typed = st.sampled_from(["1", "65536", "65537", "9" * 30, "0", "-3", "1.5", "٣", ""])
+        edit.setText(draw(st.one_of(NAMES, typed)))
         edit.editingFinished.emit()
 
 
@@ -323,14 +341,15 @@ def undo_redo(ed: Editor, draw) -> None:
         stack.redo()
 
 
-COMMANDS = {add: lambda ed: True, add_motif: lambda ed: True, insert_on_wire: lambda ed: bool(ed.graph.wires),
-            delete: lambda ed: bool(ed.graph.blocks), wire_into: lambda ed: bool(ed.graph.blocks),
-            set_setting: lambda ed: bool(ed.graph.blocks), rename: lambda ed: bool(ed.graph.blocks),
-            make_motif: lambda ed: bool(ed.graph.blocks), expand: lambda ed: bool(_instances(ed)),
-            open_or_back: lambda ed: True, expose: lambda ed: bool(ed.doc.graph_key and ed.graph.blocks),
-            copy_paste: lambda ed: bool(ed.graph.blocks), move: lambda ed: bool(ed.graph.blocks),
-            tidy: lambda ed: True, fold: lambda ed: True, budget: lambda ed: True, design_fields: lambda ed: True,
-            mend: lambda ed: True, every_mend: lambda ed: True, card_mend: lambda ed: True, undo_redo: lambda ed: ed.doc.undo_stack.canUndo()}
+ALWAYS = lambda ed: True  # noqa: E731
+HAS_BLOCKS = lambda ed: bool(ed.graph.blocks)  # noqa: E731
+COMMANDS = {add: ALWAYS, add_motif: ALWAYS, insert_on_wire: lambda ed: bool(ed.graph.wires), delete: HAS_BLOCKS,
+            wire_into: HAS_BLOCKS, set_setting: HAS_BLOCKS, rename: HAS_BLOCKS, make_motif: HAS_BLOCKS,
+            expand: lambda ed: bool(_instances(ed)), open_or_back: ALWAYS,
+            expose: lambda ed: bool(ed.doc.graph_key and ed.graph.blocks), copy_paste: HAS_BLOCKS, paste_text: ALWAYS,
+            move: HAS_BLOCKS, tidy: ALWAYS, fold: ALWAYS, budget: ALWAYS, design_fields: ALWAYS, mend: ALWAYS,
+            every_mend: ALWAYS, card_mend: ALWAYS, undo_redo: lambda ed: ed.doc.undo_stack.canUndo()}
+"""Each command and when it can act (none draws from an empty collection)."""
 
 
 # ----- what must hold -------------------------------------------------------------------------------
