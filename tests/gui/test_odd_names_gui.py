@@ -122,3 +122,18 @@ def test_a_motif_with_a_long_name_leaves_block_settings_its_width(qtbot, tmp_pat
     dock = window.settings_dock.width()
     assert [w.objectName() for w in panel.findChildren(QWidget) if w.isVisible() and w.minimumSizeHint().width() > dock] == []
     window.close()
+
+
+def test_a_message_naming_a_block_with_a_line_break_stays_on_one_line(qtbot, tmp_path):
+    """Found by the editor's property test: 'a⏎b is already wired to out' was said on two lines."""
+    d = Design("breaks")
+    x = d.input(3, 8, 8, name="cam\nleft")
+    out = d.add("Output", x, name="out")
+    path = tmp_path / "breaks.loom"
+    fileformat.save(d, path)
+    window, _ = open_window(qtbot, tmp_path, [path])
+    window.document.select([out])
+    window.canvas._wire_from(x)  # Ctrl+I, then the line of the block already wired in
+    shown = window.statusBar().currentMessage()
+    assert shown == "cam⏎left is already wired to out"
+    window.close()

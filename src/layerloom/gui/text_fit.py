@@ -13,6 +13,8 @@ import re
 from PySide6.QtCore import QSize, Qt
 from PySide6.QtWidgets import QLabel
 
+from layerloom.core.values import one_line
+
 RUN = 24  # characters without a space before a break is allowed
 _LONG_RUN = re.compile(rf"\S{{{RUN}}}(?=\S)")
 
@@ -36,7 +38,8 @@ class WrappedLabel(QLabel):
 
 
 class ElidedLabel(QLabel):
-    """One line of plain text cut with "…" to the label's width; the whole text in the hover text."""
+    """One line of plain text (line breaks shown as ⏎) cut with "…" to the label's width; the whole
+    text in the hover text."""
 
     def __init__(self, text: str = "", parent=None):
         super().__init__(parent)
@@ -66,5 +69,5 @@ class ElidedLabel(QLabel):
         self._fit()
 
     def _fit(self) -> None:
-        shown = self.fontMetrics().elidedText(self._full, Qt.TextElideMode.ElideRight, max(self.width(), 1))
+        shown = self.fontMetrics().elidedText(one_line(self._full), Qt.TextElideMode.ElideRight, max(self.width(), 1))
         super().setText(shown)
