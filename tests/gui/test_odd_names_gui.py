@@ -120,7 +120,8 @@ def test_a_motif_with_a_long_name_leaves_block_settings_its_width(qtbot, tmp_pat
     panel = window.block_settings
     assert panel.fields["motif"].widget.currentText() == m.name
     dock = window.settings_dock.width()
-    assert [w.objectName() for w in panel.findChildren(QWidget) if w.isVisible() and w.minimumSizeHint().width() > dock] == []
+    wide = [w.objectName() for w in panel.findChildren(QWidget) if w.isVisible() and w.minimumSizeHint().width() > dock]
+    assert wide == []
     window.close()
 
 
