@@ -190,3 +190,16 @@ def test_a_name_with_a_line_break_stays_on_one_line_in_errors(tmp_path):
     bad.write_text(json.dumps(data))
     err = _one_line_error(run("check", str(bad)))
     assert "'stem\\nsecond line'" in err
+
+
+def test_check_prints_a_direction_override_in_a_name_as_text(tmp_path):
+    """A name holding an unclosed right-to-left override would turn the rest of its line around."""
+    from layerloom import Design
+    from layerloom.core import fileformat
+
+    d = Design("bidi")
+    x = d.input(64, 8, 8, name="in")
+    d.add("Output", d.add("Add", d.add("Pointwise", x, out_channels=128), x, name="\u202eevil"))
+    fileformat.save(d, tmp_path / "bidi.loom")
+    r = run("check", str(tmp_path / "bidi.loom"))
+    assert r.returncode == 1 and "\\u202eevil adds 64 channels to 128 channels" in r.stdout and "\u202e" not in r.stdout

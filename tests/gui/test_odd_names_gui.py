@@ -138,3 +138,21 @@ def test_a_message_naming_a_block_with_a_line_break_stays_on_one_line(qtbot, tmp
     shown = window.statusBar().currentMessage()
     assert shown == "cam⏎left is already wired to out"
     window.close()
+
+
+def test_a_name_with_an_unclosed_right_to_left_override_leaves_the_message_readable(qtbot, tmp_path):
+    """A join named '\\u202eevil' (a right-to-left override never closed) turned the rest of its
+    finding around on screen: 'slennahc 821 ot slennahc 46 sdda'. Messages show the control as text."""
+    d = Design("bidi")
+    x = d.input(64, 8, 8, name="in")
+    join = d.add("Add", d.add("Pointwise", x, out_channels=128, name="wide"), x, name="\u202eevil")
+    d.add("Output", join, name="out")
+    path = tmp_path / "bidi.loom"
+    fileformat.save(d, path)
+    window, _ = open_window(qtbot, tmp_path, [path])
+    item = window.shelf.findings.tree.topLevelItem(0)
+    assert item.text(3) == "\\u202eevil adds 64 channels to 128 channels" and item.text(2) == "\\u202eevil"
+    window.document.select([join])
+    assert "\\u202eevil adds 64 channels to 128 channels" in window.block_settings.facts.text()
+    assert window.document.design.blocks[join].name == "\u202eevil"  # the name itself is kept as typed
+    window.close()

@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QFormLayout, QFrame, QHBoxL
 from layerloom.core import edits, motif_ops, units
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import Setting, SettingError
+from layerloom.core.values import one_line
 from layerloom.gui import theme
 from layerloom.gui.design_settings import DesignSettings
 from layerloom.gui.document import Document
@@ -464,7 +465,8 @@ def _muted(text: str) -> str:
 
 
 def _escape(text: str) -> str:
-    return breakable(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    """``text`` for the facts' rich text: one line that may break at long runs, markup escaped."""
+    return breakable(one_line(text)).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 def _table(rows: list[tuple[str, str]]) -> str:

@@ -15,6 +15,7 @@ from PySide6.QtWidgets import (QHBoxLayout, QHeaderView, QMenu, QToolButton, QTr
 from layerloom.core import edits
 from layerloom.core.findings import Finding
 from layerloom.core.mends import Mend, mends_for
+from layerloom.core.values import one_line
 from layerloom.gui import theme
 from layerloom.gui.document import Document
 from layerloom.gui.text_fit import ElidedLabel
@@ -95,11 +96,11 @@ class FindingsList(QWidget):
         self.tree.clear()
         keep = None
         for f in self.findings:
-            where = " › ".join(self._where(f)[1]) or "—"
-            item = QTreeWidgetItem([f.severity, f.code, where, f.message])
+            where, message = one_line(" › ".join(self._where(f)[1]) or "—"), one_line(f.message)
+            item = QTreeWidgetItem([f.severity, f.code, where, message])
             item.setForeground(0, theme.SEVERITY_COLOURS[f.severity])
             item.setToolTip(2, where)
-            item.setToolTip(3, f.message)
+            item.setToolTip(3, message)
             self.tree.addTopLevelItem(item)
             if current is not None and _key(f) == _key(current):
                 keep = item
