@@ -61,6 +61,7 @@ def main() -> None:
         rows = [("python start (floor)", py + ["-c", "pass"]),
                 ("layerloom check", py + ["-m", "layerloom", "check", str(path)]),
                 ("layerloom ledger", py + ["-m", "layerloom", "ledger", str(path)]),
+                ("layerloom ledger --json", py + ["-m", "layerloom", "ledger", "--json", str(path)]),
                 ("torch meta + FlopCounterMode", py + ["-c", TORCH_CHILD, str(path), str(here)] + sys.path[:1])]
         figures = {}
         for label, cmd in rows:

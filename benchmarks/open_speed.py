@@ -10,7 +10,6 @@ Run: PYTHONPATH=src:benchmarks python benchmarks/open_speed.py
 """
 from __future__ import annotations
 
-import json
 import tempfile
 import time
 from pathlib import Path
@@ -18,7 +17,7 @@ from pathlib import Path
 from core_speed import machine_speed, torch_pass
 from synthetic import residual_stack
 
-from layerloom.core import fileformat, schema_check
+from layerloom.core import fileformat
 from layerloom.core.ledger import Ledger
 
 REPEAT = 15
@@ -29,10 +28,9 @@ def phases(path: Path) -> dict[str, float]:
     best: dict[str, float] = {}
     for _ in range(REPEAT):
         t0 = time.perf_counter()
-        text = path.read_bytes().decode("utf-8")
-        data = json.loads(text)
+        data = fileformat.decode(path.read_bytes().decode("utf-8"))
         t1 = time.perf_counter()
-        schema_check.first_error(data)
+        fileformat.validate(data)
         t2 = time.perf_counter()
         design = fileformat._build(data)
         t3 = time.perf_counter()

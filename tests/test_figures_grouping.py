@@ -32,7 +32,7 @@ def twelve_blocks() -> tuple[Design, list[str]]:
 def figures(d: Design):
     L = Ledger(d.analysis())
     t = L.totals._replace(peak_block=None, latency=None)
-    return t, L.totals.latency, int(L.moved.sum()), int(L.out_memory.sum()), int(L.steps[-1])
+    return t, L.totals.latency, sum(L.moved), int(L.out_memory.sum()), int(L.steps[-1])
 
 
 def test_latency_and_every_total_are_the_same_grouped_and_expanded():

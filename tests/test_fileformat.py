@@ -117,6 +117,27 @@ def test_message_names_missing_wire_end():
     assert "wires[0].to" in msg and "'b99'" in msg
 
 
+def test_message_names_missing_wire_start_and_a_repeated_wire():
+    data = _data()
+    data["motifs"][0]["wires"][0]["from"] = ["ghost", 0]
+    assert "motifs[0] (squeeze) wires[0].from: there is no block with id 'ghost'" in _message(data)
+    data = _data()
+    data["wires"].append(dict(data["wires"][1]))
+    assert f"wires[{len(data['wires']) - 1}]: the same wire appears twice" in _message(data)
+
+
+def test_a_loaded_graph_has_the_indexes_edits_keep():
+    """Reading fills each graph at once; its wire lists and name counts are those that adding the same
+    blocks and wires one edit at a time gives (the next fresh name, wires in and out of each block)."""
+    made = _design()
+    back = fileformat.parse(fileformat.dumps(made))
+    for mine, theirs in ((made, back), (made.motifs["squeeze"], back.motifs["squeeze"])):
+        assert mine.in_wires == theirs.in_wires and mine.out_wires == theirs.out_wires
+        assert mine._names == theirs._names and list(mine.wires) == list(theirs.wires)
+        assert mine.fresh_name("conv") == theirs.fresh_name("conv")
+        assert mine.layout_position() == theirs.layout_position()
+
+
 def test_message_names_unknown_kind():
     data = _data()
     data["blocks"][2]["kind"] = "Conv3d"

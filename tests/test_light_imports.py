@@ -1,13 +1,19 @@
-"""Import contract: ``layerloom check`` on a valid file imports neither numpy (only the ledger and
-the commands that use it need it) nor jsonschema (only a broken file needs its words), and reading
-a design and its whole pass import no numpy, since a process's start-up is most of the time of a
-check. Checked in a fresh interpreter."""
+"""Import contract: ``layerloom check`` on a valid file imports neither numpy (only drawing and
+measuring need it) nor jsonschema (only a broken file needs its words), ``layerloom ledger`` (as a
+table, JSON or CSV) no numpy, and reading a design, its whole pass and its ledger import no numpy,
+since a process's start-up is most of the time of a check. Checked in a fresh interpreter."""
 from __future__ import annotations
 
 import os
 import subprocess
 import sys
 from pathlib import Path
+
+import pytest
+
+from layerloom.core.baseline import snapshot
+from layerloom.core.fileformat import load, save
+from layerloom.core.targets import PRESETS
 
 SAMPLE = Path(__file__).resolve().parents[1] / "samples" / "fastener_sorter.loom"
 
@@ -17,26 +23,53 @@ def _run(code: str) -> subprocess.CompletedProcess:
     return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120)
 
 
-def test_check_of_a_valid_file_imports_no_numpy_nor_jsonschema():
+def _budgeted(tmp_path) -> Path:
+    """The sample with a budget it passes (so a budget finding is made) and a pinned baseline."""
+    design = load(SAMPLE)
+    pinned = snapshot(design.ledger(), "before")
+    design.set_field("budget", {"weights": 1000})
+    design.set_field("baseline", pinned)
+    path = tmp_path / "budgeted.loom"
+    save(design, path)
+    return path
+
+
+@pytest.mark.parametrize("budgeted", [False, True])
+def test_check_of_a_valid_file_imports_no_numpy_nor_jsonschema(tmp_path, budgeted):
+    path = _budgeted(tmp_path) if budgeted else SAMPLE
     done = _run("import sys; from layerloom.cli import main; "
-                f"code = main(['check', {str(SAMPLE)!r}]); "
+                f"code = main(['check', {str(path)!r}]); "
                 "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('numpy', 'jsonschema')); "
                 "assert code == 0 and not heavy, (code, heavy)")
     assert done.returncode == 0, done.stderr[-2000:]
     assert "well formed" in done.stdout
+    assert ("budget.weights" in done.stdout) == budgeted
 
 
 def test_loading_and_finding_import_no_numpy():
-    """Reading a file, the whole pass and the findings are plain Python; numpy comes with the Ledger."""
+    """Reading a file, the whole pass and the findings are plain Python."""
     done = _run("import sys, layerloom; "
                 f"d = layerloom.load({str(SAMPLE)!r}); found = d.findings(); "
                 "assert d.analysis().live_profile() and 'numpy' not in sys.modules, sorted(sys.modules)")
     assert done.returncode == 0, done.stderr[-2000:]
 
 
+@pytest.mark.parametrize("options", [[], ["--json"], ["--csv"], ["--target", PRESETS[0].name, "--batch", "4"]])
+def test_ledger_imports_no_numpy(tmp_path, options):
+    path = _budgeted(tmp_path)
+    done = _run("import sys; from layerloom.cli import main; "
+                f"code = main(['ledger', {str(path)!r}, *{options!r}]); "
+                "assert code == 0 and 'numpy' not in sys.modules, code")
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert "part_class" in done.stdout  # the table, the JSON and the CSV name each block
+    if not options:
+        assert "over budget: weights" in done.stdout and "against baseline 'before'" in done.stdout
+
+
 def test_ledger_still_comes_from_the_package():
-    done = _run("import sys, layerloom; assert 'numpy' not in sys.modules; "
-                "from layerloom import Ledger; assert 'numpy' in sys.modules and Ledger.__name__ == 'Ledger'")
+    done = _run("import sys, layerloom; from layerloom import Ledger; "
+                f"L = Ledger(layerloom.load({str(SAMPLE)!r}).analysis()); "
+                "assert L.totals.macs and L.rows and 'numpy' not in sys.modules, sorted(sys.modules)")
     assert done.returncode == 0, done.stderr[-2000:]
 
 

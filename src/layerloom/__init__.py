@@ -10,19 +10,13 @@ The scripting API lives in :mod:`layerloom.core`; the most used names are re-exp
     >>> str(d.analysis().shape(y))
     '16×32×32'
 
-Importing this package never imports Qt or torch, and numpy only once :class:`Ledger` is asked for
-(the command line's ``check`` never needs it).
+Importing this package never imports Qt, torch or numpy (the command line's ``check`` and ``ledger``
+start faster without them).
 """
 from layerloom.core.design import Design, Motif
 from layerloom.core.fileformat import LoomFileError, load, save
+from layerloom.core.ledger import Ledger
 
 __all__ = ["Design", "Motif", "Ledger", "LoomFileError", "load", "save"]
 __version__ = "0.1.0"
 
-
-def __getattr__(name: str):
-    if name == "Ledger":
-        from layerloom.core.ledger import Ledger
-
-        return Ledger
-    raise AttributeError(f"module 'layerloom' has no attribute {name!r}")

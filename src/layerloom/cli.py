@@ -7,7 +7,6 @@ partial); 2 the file, an option or the command could not be used (one line says 
 from __future__ import annotations
 
 import argparse
-import json
 import math
 import os
 import sys
@@ -18,6 +17,7 @@ from layerloom.core import units
 from layerloom.core.design import DTYPES, MAX_BATCH, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
+from layerloom.core.json_text import layout
 from layerloom.core.shapes import parse_shape
 from layerloom.core.targets import CAUTION, PRESETS, preset
 from layerloom.core.training_memory import OPTIMIZERS, training_memory, training_text
@@ -79,8 +79,8 @@ def _check(args) -> int:
     findings = design.findings()
     errors = sum(f.severity == ERROR for f in findings)
     if args.json:
-        print(json.dumps({"file": args.file, "errors": errors, "findings": [_finding_dict(design, f) for f in findings]},
-                         indent=1, ensure_ascii=False))
+        print(layout({"file": args.file, "errors": errors, "findings": [_finding_dict(design, f) for f in findings]},
+                     ("findings",)))
     else:
         for f in findings:
             print(f"{f.severity:<7} {f.code:<20} {one_line(f.message)}")
@@ -110,7 +110,7 @@ def _ledger(args) -> int:
     rows, t = ledger.rows, ledger.totals
     peak_name = design.blocks[t.peak_block].name if t.peak_block else "—"
     if args.json:
-        print(json.dumps({
+        print(layout({
             "file": args.file, "complete": not errors, "batch": ledger.batch, "dtype": ledger.dtype,
             "blocks": [{"block": r.block, "name": r.name, "kind": r.kind, "depth": r.depth,
                         "shape": list(r.shape) if r.shape else None, "weights": r.weights, "buffers": r.buffers,
@@ -129,7 +129,7 @@ def _ledger(args) -> int:
                 "name": baseline["name"], "complete": not base_errors,
                 "totals": [{"metric": d.metric, "current": d.current, "baseline": d.baseline, "delta": d.delta,
                             "percent": d.percent} for d in compare(ledger, baseline)]}},
-            indent=1, ensure_ascii=False))
+            ("blocks", "findings")))
         return 1 if errors else 0
     if args.csv:
         sys.stdout.write(ledger_csv(ledger))

@@ -31,7 +31,7 @@ def add_import_parser(sub) -> None:
 
 
 def run_import(args) -> int:
-    from layerloom.core.ledger import Ledger  # numpy: only for this command, not at the command line's start
+    from layerloom.core.ledger import Ledger  # only for this command, not at the command line's start
     from layerloom.importing import ImportFailed, import_source, runs_code
 
     try:

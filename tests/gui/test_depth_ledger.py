@@ -45,7 +45,7 @@ def test_curves_equal_the_core_ledger(qtbot, sample):
     for index, expected in checks.items():
         chart.metric_box.setCurrentIndex(index)
         x, y = chart.curve.xData, chart.curve.yData
-        assert np.array_equal(y, expected.astype(float))
+        assert np.array_equal(y, np.array(expected, dtype=float))
         assert np.array_equal(x, ledger.steps)  # blocks as executed: a motif use spans its inner blocks
     # the dotted curve is the running peak, whose last value is the ledger's peak
     assert chart.peak_curve.yData[-1] == ledger.totals.peak_memory

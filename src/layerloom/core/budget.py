@@ -8,6 +8,7 @@ goes over the limit, with the overrun in its message.
 from __future__ import annotations
 
 import math
+from itertools import accumulate
 
 from layerloom.core import units
 from layerloom.core.findings import NOTE, WARNING, Finding
@@ -51,9 +52,10 @@ def budget_findings(ledger, budget: dict) -> list[Finding]:
     """One warning per limit the design passes, on the block where it is passed."""
     found = []
     blocks = ledger.analysis.design.blocks
-    curves = {"weights": ledger.cumulative_weights, "macs": ledger.cumulative_macs, "memory": ledger.live}
+    curves = {"weights": list(accumulate(c[0] for c in ledger.counts)),
+              "macs": list(accumulate(c[2] for c in ledger.counts)), "memory": ledger.live}
     if ledger.latency is not None:
-        curves["latency_ms"] = ledger.cumulative_latency * 1e3
+        curves["latency_ms"] = [v * 1e3 for v in accumulate(ledger.latency)]
     for key, limit in budget.items():
         curve = curves.get(key)
         if curve is None:
@@ -64,7 +66,7 @@ def budget_findings(ledger, budget: dict) -> list[Finding]:
         if first is None:
             continue
         at = ledger.order[first]
-        worst = curve.max()
+        worst = max(curve)
         what = LIMITS[key]
         so_far = "alive there" if key == "memory" else "so far"
         total = "the peak is" if key == "memory" else "the design totals"

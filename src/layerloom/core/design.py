@@ -195,17 +195,12 @@ class Design(Graph):
         self._emit(change)
         return edits.Edit(edit.label, tuple(reversed(done)))
 
-    def fill(self, graph: str, blocks, wires) -> None:
-        """Add checked blocks and then wires to the graph ``graph`` at once, as reading a file does:
-        no inverse is kept (a load is not undone), and subscribers hear of one change."""
-        g = self.graph(graph)
-        ids = set()
-        for b in blocks:
-            g._insert_block(b)
-            ids.add(b.id)
-        for w in wires:
-            g._insert_wire(w)
-        self._emit(Change(dirty={graph: ids}, topology={graph}))
+    def fill(self, graph: str, blocks: dict, wires: dict) -> None:
+        """Put checked blocks (by id) and the wires between them into the empty graph ``graph`` at
+        once, as reading a file does: no inverse is kept (a load is not undone), and subscribers
+        hear of one change."""
+        self.graph(graph)._adopt(blocks, wires)
+        self._emit(Change(dirty={graph: set(blocks)}, topology={graph}))
 
     def subscribe(self, listener: Callable[[Change], None]) -> Callable[[], None]:
         """Call ``listener(change)`` after each edit or batch; returns a function that unsubscribes."""

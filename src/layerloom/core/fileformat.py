@@ -16,6 +16,7 @@ from layerloom.core.atomic_write import write_atomically
 from layerloom.core.budget import check_budget
 from layerloom.core.design import Design
 from layerloom.core.graph import Block, Wire
+from layerloom.core.json_text import layout
 from layerloom.core.measurement import Measurement
 from layerloom.core.schema_check import first_error
 from layerloom.core.settings import SettingError
@@ -36,6 +37,19 @@ def _reject_constant(name: str):
 
 def parse(text: str, source: str = "<text>") -> Design:
     """Build a :class:`Design` from the text of a ``.loom`` file."""
+    data = decode(text, source)
+    validate(data, source)
+    try:
+        return _build(data)
+    except (SettingError, edits.EditError, ValueError, KeyError) as e:
+        raise LoomFileError(f"{source}: {e}") from None
+    except OverflowError:  # a whole number too large for a float where one is needed
+        raise LoomFileError(f"{source}: a number is too large to count with") from None
+
+
+def decode(text: str, source: str = "<text>") -> dict:
+    """The JSON object of a design file's text: refuses what is not JSON, values a design cannot
+    hold (infinity, lone surrogates) and another format or version."""
     try:
         reader = JsonReader()
         data = reader.loads(text, parse_constant=_reject_constant)
@@ -54,18 +68,17 @@ def parse(text: str, source: str = "<text>") -> Design:
     if data.get("version") != VERSION:
         raise LoomFileError(f"{source}: design format version {quote(data.get('version'))} is not supported "
                             f"(this Layerloom reads version {VERSION})")
+    return data
+
+
+def validate(data: dict, source: str = "<text>") -> None:
+    """Check decoded ``data`` against the format's JSON Schema; LoomFileError naming the first broken place."""
     try:
         error = first_error(data)
     except RecursionError:
         raise LoomFileError(f"{source}: nested too deeply to be a design file") from None
     if error is not None:
         raise LoomFileError(f"{source}: {_place(data, error[0])}: {_shorten(error[1], _at(data, error[0]))}")
-    try:
-        return _build(data)
-    except (SettingError, edits.EditError, ValueError, KeyError) as e:
-        raise LoomFileError(f"{source}: {e}") from None
-    except OverflowError:  # a whole number too large for a float where one is needed
-        raise LoomFileError(f"{source}: a number is too large to count with") from None
 
 
 def load(path: str | os.PathLike) -> Design:
@@ -174,21 +187,21 @@ def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> 
                 raise LoomFileError(f"{place(i)}: {e}") from None
             if key is not None:
                 checked[key] = settings
-        position = b.get("position", (0.0, 0.0))
-        if not all(abs(v) <= POSITION_LIMIT for v in position):
+        x, y = position = b.get("position", (0.0, 0.0))
+        if not (-POSITION_LIMIT <= x <= POSITION_LIMIT and -POSITION_LIMIT <= y <= POSITION_LIMIT):
             raise LoomFileError(f"{place(i)}: position {quote(position)} lies beyond ±{POSITION_LIMIT:g} on the canvas")
-        made[bid] = Block(bid, kind, b.get("name", bid), dict(settings), tuple(position))
+        made[bid] = Block(bid, kind, b.get("name", bid), dict(settings), (x, y))
     seen: dict[Wire, None] = {}
     for i, w in enumerate(wires):
         (src, sp), (dst, dp) = w["from"], w["to"]
-        for end, bid in (("from", src), ("to", dst)):
-            if bid not in made:
-                raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {quote(bid)}")
+        if src not in made or dst not in made:
+            end, bid = ("from", src) if src not in made else ("to", dst)
+            raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {quote(bid)}")
         wire = Wire(src, int(sp), dst, int(dp))
         if wire in seen:
             raise LoomFileError(f"{where}wires[{i}]: the same wire appears twice")
         seen[wire] = None
-    design.fill(graph, made.values(), seen)
+    design.fill(graph, made, seen)
 
 
 def to_data(design: Design) -> dict:
@@ -225,27 +238,10 @@ def copy(design: Design) -> Design:
     return _build(to_data(design))
 
 
-_encode = json.JSONEncoder(ensure_ascii=False).encode  # one line, by the C encoder
-
-
 def dumps(design: Design) -> str:
     """The text of a ``.loom`` file: one field per line, and one line per block, wire and motif field,
-    so a change to a block is a change to its line (and the C encoder writes each line: an indented
-    ``json.dumps`` runs in Python, eight times slower)."""
-    return _lines(to_data(design), "") + "\n"
-
-
-def _lines(obj: dict, pad: str) -> str:
-    inner = pad + " "
-    fields = []
-    for key, value in obj.items():
-        if key in ("blocks", "wires", "motifs") and isinstance(value, list) and value:
-            items = (_lines(v, inner + " ") if key == "motifs" else _encode(v) for v in value)
-            text = "[\n" + ",\n".join(inner + " " + item for item in items) + f"\n{inner}]"
-        else:
-            text = _encode(value)
-        fields.append(f"{inner}{_encode(key)}: {text}")
-    return "{\n" + ",\n".join(fields) + f"\n{pad}}}"
+    so a change to a block is a change to its line (:mod:`layerloom.core.json_text`)."""
+    return layout(to_data(design), ("blocks", "wires", "motifs"), nested=("motifs",)) + "\n"
 
 
 def save(design: Design, path: str | os.PathLike) -> None:

@@ -166,7 +166,7 @@ class _Trial:
     def cost(self, family: str, s: float) -> Candidate:
         scaling = family_scaling(family, s)
         self.work.apply(scaled_edit(self.original, scaling, every=True))
-        from layerloom.core.ledger import Ledger  # numpy: not when the command line only sets up `fit`
+        from layerloom.core.ledger import Ledger  # not when the command line only sets up `fit`
 
         analysis = self.work.analysis()
         t = Ledger(analysis, self.target).totals

@@ -6,6 +6,7 @@ undone and observers hear of it); the builder methods here make those edits for 
 """
 from __future__ import annotations
 
+from collections import Counter
 from typing import Any, NamedTuple
 
 from layerloom.core.kinds import KINDS
@@ -153,6 +154,19 @@ class Graph:
         self.wires[wire] = None
         self.out_wires[wire.src].append(wire)
         self.in_wires[wire.dst].append(wire)
+
+    def _adopt(self, blocks: dict[str, Block], wires: dict[Wire, None]) -> None:
+        """Take ``blocks`` (by id) and ``wires`` between them into this empty graph at once (reading a
+        file: checked already, so a load costs one pass over each)."""
+        if self.blocks:
+            raise ValueError("blocks are adopted only by an empty graph")
+        self.blocks, self.wires = blocks, wires
+        self.in_wires = {bid: [] for bid in blocks}
+        self.out_wires = {bid: [] for bid in blocks}
+        for w in wires:
+            self.out_wires[w.src].append(w)
+            self.in_wires[w.dst].append(w)
+        self._names = dict(Counter(b.name for b in blocks.values()))
 
     def _delete_wire(self, wire: Wire) -> None:
         del self.wires[wire]

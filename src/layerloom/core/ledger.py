@@ -42,23 +42,26 @@ them for users):
   order blocks were added; **depth** is that level. **steps** count blocks as executed (a motif
   use counts the blocks it executes): the Depth ledger's x axis.
 
-Counts and bytes are exact at any size: numpy arrays of them are int64 when every sum fits, else
-Python integers (``dtype=object``); only latency (seconds), intensity and steps drawn as floats are
-floats, which saturate to infinity rather than fail.
+Counts and bytes are Python integers, exact at any size; only latency (seconds), intensity and
+values drawn are floats, which saturate to infinity rather than fail. Rows and totals need no numpy
+(the command line's ``ledger`` starts faster without it); the arrays along depth for drawing are
+numpy's, imported when first asked for: int64 when every sum fits, else Python integers
+(``dtype=object``).
 """
 from __future__ import annotations
 
-from itertools import chain
-from math import prod
-from typing import NamedTuple
-
-import numpy as np
+from functools import cached_property
+from math import fsum, prod
+from typing import TYPE_CHECKING, NamedTuple
 
 from layerloom.core.design import DTYPES
 from layerloom.core.kinds import KINDS
 from layerloom.core.shapes import Shape
 from layerloom.core.targets import Target
 from layerloom.core.units import ratio
+
+if TYPE_CHECKING:
+    import numpy as np
 
 
 class Row(NamedTuple):
@@ -96,6 +99,8 @@ class Totals(NamedTuple):
 def exact_array(values: list, scale: int = 1, headroom: int = 1) -> np.ndarray:
     """``values`` × ``scale`` as int64 when any sum of them, times ``headroom``, fits in it; else as
     Python integers."""
+    import numpy as np
+
     try:
         a = np.array(values, dtype=np.int64)
     except OverflowError:
@@ -105,22 +110,19 @@ def exact_array(values: list, scale: int = 1, headroom: int = 1) -> np.ndarray:
     return np.array(values, dtype=object) * scale
 
 
-def per_second(values: np.ndarray, rate: float) -> np.ndarray:
-    """``values / rate`` as floats (infinity where beyond a float's range)."""
-    if values.dtype != object:
-        return values / rate
-    return np.array([ratio(v, rate) for v in values], dtype=float)
-
-
 def floats(values) -> np.ndarray:
     """Exact counts as floats for drawing: infinity where one is beyond a float's range."""
+    import numpy as np
+
     return np.array([ratio(v, 1.0) for v in values], dtype=float)
 
 
 class Ledger:
     """Costs of a design as it is now; see the module docstring for what is counted.
 
-    ``target`` overrides the design's own target for latency estimates.
+    ``target`` overrides the design's own target for latency estimates. Per step of :attr:`order`,
+    as lists: ``counts`` holds (weights, buffers, MACs, other operations), the last two for the whole
+    batch; ``live`` the live activation bytes; ``latency`` the estimated seconds (None without a target).
     """
 
     def __init__(self, analysis, target: Target | None = None):
@@ -129,37 +131,37 @@ class Ledger:
         design = analysis.design
         self.batch, self.dtype = design.batch, design.dtype
         self.bytes_per_element = DTYPES[design.dtype]
+        n = self.batch
         self.target = target if target is not None else design.target
         self.order = list(analysis.order)
         self._rows: list[Row] | None = None
         results = analysis.top.results
         self._results = [results.get(b) for b in self.order]
         free = (0, 0, 0, 0)
-        costs = exact_array(list(chain.from_iterable(r.cost if r is not None else free for r in self._results)),
-                            headroom=self.batch).reshape(-1, 4)
-        costs[:, 2:] *= self.batch
-        self.costs = costs
-        self.live = exact_array(analysis.live_profile(), self.batch * self.bytes_per_element)
-        peak_at = int(self.live.argmax()) if len(self.live) else None
-        t = costs.sum(axis=0)
-        self.latency = self._latency() if self.target is not None else None
-        self.totals = Totals(int(t[0]), int(t[1]), int(t[2]), int(t[3]),
-                             int(self.live[peak_at]) if peak_at is not None else 0,
-                             self.order[peak_at] if peak_at is not None else None,
-                             int(t[0]) * self.bytes_per_element,
-                             float(self.latency.sum()) if self.latency is not None else None)
+        self.counts = [(w, b, m * n, o * n)
+                       for w, b, m, o in [r.cost if r is not None else free for r in self._results]]
+        scale = n * self.bytes_per_element
+        self.live: list[int] = [v * scale for v in analysis.live_profile()]
+        peak_at = self.live.index(max(self.live)) if self.live else None
+        weights, buffers, macs, other = (sum(column) for column in zip(*self.counts)) if self.counts else free
+        self.latency: list[float] | None = self._latency() if self.target is not None else None
+        self.totals = Totals(weights, buffers, macs, other, self.live[peak_at] if peak_at is not None else 0,
+                             self.order[peak_at] if peak_at is not None else None, weights * self.bytes_per_element,
+                             fsum(self.latency) if self.latency is not None else None)
 
-    def _latency(self) -> np.ndarray:
-        """Estimated seconds per block on the target (zeros for blocks that do no work; a motif use
-        the sum over the blocks it executes)."""
+    def _latency(self) -> list[float]:
+        """Estimated seconds per block on the target (0 for blocks that do no work; a motif use the
+        sum over the blocks it executes)."""
         t = self.target
-        compute = per_second(self.costs[:, 2], t.macs_per_second)
-        memory = per_second(self.moved, t.bytes_per_second)
-        latency = np.where(self.working, np.maximum(compute, memory) + t.overhead, 0.0)
-        for i, r in enumerate(self._results):
+        out = []
+        for bid, r, cost, moved in zip(self.order, self._results, self.counts, self.moved):
             if r is not None and r.executed is not None:
-                latency[i] = self._roofline(r.executed)[0]
-        return latency
+                out.append(self._roofline(r.executed)[0])
+            elif r is not None and self._works(bid):
+                out.append(max(ratio(cost[2], t.macs_per_second), ratio(moved, t.bytes_per_second)) + t.overhead)
+            else:
+                out.append(0.0)
+        return out
 
     def _roofline(self, executed) -> tuple[float, float]:
         """Seconds the blocks a motif use executes take: (estimate, its compute-bound part)."""
@@ -175,20 +177,27 @@ class Ledger:
     def working(self) -> np.ndarray:
         """Per step: whether the block computes something (not Input, Output, a view or a block
         without a result)."""
+        import numpy as np
+
         return np.array([r is not None and self._works(b) for b, r in zip(self.order, self._results)], dtype=bool)
 
     def _works(self, block_id: str) -> bool:
         kind = self.analysis.design.blocks[block_id].kind
         return kind not in ("Input", "Output") and not KINDS[kind].view
 
-    # ----- along depth (arrays in depth order)
-    @property
-    def moved(self) -> np.ndarray:
+    @cached_property
+    def moved(self) -> list[int]:
         """Bytes each block moves: weights plus input and output activations."""
-        n = self.batch
-        elems = [(r.executed.elements if r.executed is not None else sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n
-                 if r is not None else 0 for r in self._results]
-        return exact_array([w + e for w, e in zip(self.costs[:, 0].tolist(), elems)], self.bytes_per_element)
+        n, size = self.batch, self.bytes_per_element
+        return [(cost[0] + (r.executed.elements if r.executed is not None
+                            else sum(map(prod, r.ins)) + sum(map(prod, r.outs))) * n) * size if r is not None else 0
+                for r, cost in zip(self._results, self.counts)]
+
+    # ----- along depth (numpy arrays in depth order, for drawing)
+    @cached_property
+    def costs(self) -> np.ndarray:
+        """:attr:`counts` as an array (one row per block)."""
+        return exact_array([v for cost in self.counts for v in cost]).reshape(-1, 4)
 
     @property
     def out_memory(self) -> np.ndarray:
@@ -204,35 +213,37 @@ class Ledger:
     @property
     def steps(self) -> np.ndarray:
         """Blocks executed up to and including each block (a motif use counts the blocks it executes)."""
-        return np.cumsum(exact_array([r.executed.steps if r is not None and r.executed is not None else 1
-                                      for r in self._results]))
+        return exact_array([r.executed.steps if r is not None and r.executed is not None else 1
+                            for r in self._results]).cumsum()
 
     def _allocates(self, block_id: str) -> bool:
         return not KINDS[self.analysis.design.blocks[block_id].kind].view
 
     @property
     def cumulative_weights(self) -> np.ndarray:
-        return np.cumsum(self.costs[:, 0])
+        return self.costs[:, 0].cumsum()
 
     @property
     def cumulative_macs(self) -> np.ndarray:
-        return np.cumsum(self.costs[:, 2])
+        return self.costs[:, 2].cumsum()
 
     @property
     def cumulative_latency(self) -> np.ndarray | None:
-        return np.cumsum(self.latency) if self.latency is not None else None
+        return floats(self.latency).cumsum() if self.latency is not None else None
 
     @property
     def running_peak(self) -> np.ndarray:
         """Largest live activation memory (bytes) reached up to each step."""
-        return np.maximum.accumulate(self.live) if len(self.live) else self.live
+        import numpy as np
+
+        live = exact_array(self.live)
+        return np.maximum.accumulate(live) if len(live) else live
 
     # ----- rows
     @property
     def rows(self) -> list[Row]:
         if self._rows is None:
-            moved = self.moved
-            self._rows = [self._row(i, bid, int(moved[i])) for i, bid in enumerate(self.order)]
+            self._rows = [self._row(i, bid, moved) for i, (bid, moved) in enumerate(zip(self.order, self.moved))]
         return self._rows
 
     def _row(self, i: int, bid: str, moved: int) -> Row:
@@ -242,11 +253,11 @@ class Ledger:
         if r is None:
             return Row(bid, blk.name, blk.kind, a.level.get(bid, 0), None, 0, 0, 0, 0, 0, None, None, 0, 0.0,
                        0.0 if self.latency is not None else None, "")
-        w, b, m, o = (int(v) for v in self.costs[i])
+        w, b, m, o = self.counts[i]
         out_bytes = self._allocated(bid, r) * self.batch * self.bytes_per_element
         latency, bound = None, ""
         if self.latency is not None:
-            latency = float(self.latency[i])
+            latency = self.latency[i]
             if latency:
                 if r.executed is not None:  # compute-bound when most of its blocks' time is
                     bound = "compute" if 2 * self._roofline(r.executed)[1] >= latency else "memory"

@@ -35,6 +35,6 @@ def ledger_csv(ledger) -> str:
     w.writerow(HEADINGS)
     for i, r in enumerate(ledger.rows):
         w.writerow((i + 1, r.name, r.kind, r.depth, str(r.shape or ""), r.weights, r.buffers, r.macs, r.other,
-                    r.memory, int(ledger.live[i]), rf_text(r.rf), r.moved, f"{r.intensity:.3f}",
+                    r.memory, ledger.live[i], rf_text(r.rf), r.moved, f"{r.intensity:.3f}",
                     "" if r.latency is None else f"{r.latency:.3e}", r.bound))
     return out.getvalue()

@@ -73,14 +73,11 @@ class _Kept(NamedTuple):
     outs: list[tuple[int | None, bool]]
 
 
-def kept_for_backward(analysis) -> "tuple[np.ndarray, np.ndarray]":
+def kept_for_backward(analysis) -> tuple[list[int], list[int]]:
     """Per step of the depth order: elements (per sample, at the activation type) and index bytes
     (per sample) kept for the backward pass, each at the step that produces the tensor."""
-    import numpy as np
-
     kept = _Walk(analysis.refresh().top, analysis, {}).result()
-    # Python integers (dtype=object): exact at any size, as the ledger's counts
-    return np.asarray(kept.elements, dtype=object), np.asarray(kept.fixed, dtype=object)
+    return kept.elements, kept.fixed
 
 
 class _Walk:
@@ -184,7 +181,7 @@ def training_memory(ledger, optimizer: str = "sgd_momentum", mixed: bool = False
     w = ledger.totals.weights
     return TrainingMemory(ledger.batch, optimizer, mixed, w * weight_bytes, w * weight_bytes,
                           w * weight_bytes * OPTIMIZERS[optimizer], w * HALF_BYTES if mixed else 0,
-                          int(_activation_bytes(ledger, mixed).sum()))
+                          sum(_activation_bytes(ledger, mixed)))
 
 
 def training_curve(ledger, optimizer: str = "sgd_momentum", mixed: bool = False) -> np.ndarray:
@@ -194,7 +191,8 @@ def training_curve(ledger, optimizer: str = "sgd_momentum", mixed: bool = False)
 
     weight_bytes = _weight_bytes(ledger, optimizer, mixed)
     per_weight = weight_bytes * (2 + OPTIMIZERS[optimizer]) + (HALF_BYTES if mixed else 0)
-    return np.cumsum(ledger.costs[:, 0].astype(object) * per_weight + _activation_bytes(ledger, mixed))
+    kept = np.array(_activation_bytes(ledger, mixed), dtype=object)
+    return np.cumsum(ledger.costs[:, 0].astype(object) * per_weight + kept)
 
 
 def _weight_bytes(ledger, optimizer: str, mixed: bool) -> int:
@@ -203,7 +201,8 @@ def _weight_bytes(ledger, optimizer: str, mixed: bool) -> int:
     return MASTER_BYTES if mixed else ledger.bytes_per_element
 
 
-def _activation_bytes(ledger, mixed: bool) -> np.ndarray:
-    """Bytes kept for backward per step, for the whole batch."""
+def _activation_bytes(ledger, mixed: bool) -> list[int]:
+    """Bytes kept for backward per step, for the whole batch (Python integers: exact at any size)."""
     elements, index_bytes = kept_for_backward(ledger.analysis)
-    return (elements * (HALF_BYTES if mixed else ledger.bytes_per_element) + index_bytes) * ledger.batch
+    size = HALF_BYTES if mixed else ledger.bytes_per_element
+    return [(e * size + i) * ledger.batch for e, i in zip(elements, index_bytes)]
