@@ -231,6 +231,29 @@ def test_clash_shows_red_outline_and_badge_and_its_mend_clears_it(qtbot):
 
 # ----- moving, deleting, copying, Tidy, renaming ----------------------------------------------
 
+def test_while_a_card_is_dragged_its_wires_follow_it_before_the_drop(qtbot):
+    d = squeeze_chain()
+    view = open_view(qtbot, d)
+    mix = next(b.id for b in d.blocks.values() if b.name == "mix")
+    wire = next(iter(d.in_wires[mix]))
+    vp = view.viewport()
+    start = at(view, card(view, mix).mapToScene(QPointF(W / 2, H - 12)))
+    QTest.mouseMove(vp, start)
+    QTest.mousePress(vp, Qt.MouseButton.LeftButton, Qt.KeyboardModifier.NoModifier, start)
+    for i in range(1, 4):  # the button held: Qt moves the card's item, the scene follows it
+        p = start + QPoint(30 * i, 40 * i)
+        QApplication.sendEvent(vp, QMouseEvent(QMouseEvent.Type.MouseMove, QPointF(p), QPointF(vp.mapToGlobal(p)),
+                                               Qt.MouseButton.NoButton, Qt.MouseButton.LeftButton,
+                                               Qt.KeyboardModifier.NoModifier))
+        QApplication.processEvents()
+        end = card(view, mix).input_pos(0)
+        assert wire_item(view, wire).path().pointAtPercent(1.0) == QPointF(end.x(), end.y()), i
+        assert view.canvas_scene.obstacles.rects[mix][:2] == (card(view, mix).pos().x(), card(view, mix).pos().y())
+    assert d.blocks[mix].position != (card(view, mix).pos().x(), card(view, mix).pos().y())  # not dropped yet
+    QTest.mouseRelease(vp, Qt.MouseButton.LeftButton, Qt.KeyboardModifier.NoModifier, start + QPoint(90, 120))
+    assert d.blocks[mix].position == (card(view, mix).pos().x(), card(view, mix).pos().y())
+
+
 def test_moving_a_block_by_mouse_is_one_step_and_undo_restores_it_exactly(qtbot):
     d = squeeze_chain()
     view = open_view(qtbot, d)

@@ -6,11 +6,13 @@ field, dock sizes and the ledger's metric are remembered.
 from __future__ import annotations
 
 from PySide6.QtCore import QSettings, Qt
+from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QApplication
 
 from layerloom.core import fileformat
 from layerloom.core.ledger import Ledger
 from layerloom.export import module_source
+from layerloom.gui.canvas.block_item import BlockItem
 from layerloom.gui.main_window import MainWindow
 from test_flows import shoot
 from test_window_files import SAMPLES, ScriptedPrompts, open_window
@@ -89,7 +91,7 @@ def test_enter_and_escape_in_block_settings_give_the_keys_back_to_the_canvas(qtb
 
 def test_a_refusal_moves_no_field(qtbot, tmp_path):
     window, _ = open_window(qtbot, tmp_path)
-    doc, panel = window.document, window.block_settings
+    panel = window.block_settings
     qtbot.keyClicks(window.canvas, "conv")
     qtbot.keyClick(window.canvas._quick.edit, Qt.Key.Key_Return)
     qtbot.wait(100)  # the new fields laid out
@@ -167,3 +169,26 @@ def test_dock_sizes_the_ledger_metric_and_folded_families_are_remembered(qtbot, 
     assert again.depth_ledger.metric_key() == "macs" and again.depth_ledger.view_box.currentText() == "Per block"
     assert [g.family for g in again.shelf.parts.groups if g.folded] == ["Convolution"]
     again.close()
+
+
+def test_fold_is_remembered_between_runs(qtbot, tmp_path):
+    window, _ = open_window(qtbot, tmp_path, [SAMPLES / "fastener_sorter.loom"])
+    fold = window.findChild(QAction, "fold")
+    assert fold.isChecked() and window.canvas.canvas_scene.fold  # on by default (first run)
+    path = str(window.document.path)
+    fold.trigger()  # off, as a user chooses it from the View menu
+    assert not window.canvas.canvas_scene.fold and not window.canvas.canvas_scene.folds
+    window.close()
+    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat)
+    again = MainWindow([path], prompts=ScriptedPrompts(), settings=settings,
+                       scratch_dir=tmp_path / "scratch")
+    qtbot.addWidget(again)
+    again.show()
+    qtbot.waitExposed(again)
+    scene = again.canvas.canvas_scene
+    assert not again.findChild(QAction, "fold").isChecked() and not scene.fold
+    norms = [b.id for b in again.document.design.blocks.values() if b.kind in ("BatchNorm2d", "ReLU", "ReLU6")]
+    assert norms and all(isinstance(scene.blocks[b], BlockItem) for b in norms)  # each its own card
+    again.findChild(QAction, "fold").trigger()  # on again: remembered too
+    again.close()
+    assert QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat).value("view/fold", type=bool)

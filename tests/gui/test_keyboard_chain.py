@@ -96,3 +96,50 @@ def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, re
     print(f"\nkey presses for the 12-block residual network: {keys.presses}")
     assert keys.presses == expected_presses
     shoot(window, f"keyboard_chain_{request.node.callspec.id}")
+
+
+@pytest.mark.parametrize("route", ["after the selection", "on a wire"])
+def test_a_linear_after_a_feature_map_gets_a_flatten_in_the_same_undo_step(qtbot, tmp_path, route):
+    """`gap ⏎ fc ⏎` (or fc put on the wire out of the pool): a Flatten goes first, the status bar
+    says so, one undo takes both away, and the result matches PyTorch's nn.Flatten + nn.Linear."""
+    window, _ = open_window(qtbot, tmp_path)
+    window.resize(1280, 800)
+    with qtbot.waitActive(window):
+        window.activateWindow()
+    doc, canvas = window.document, window.canvas
+    d = doc.design
+    keys = Keyboard(qtbot)
+    for step in ("conv⏎", "gap⏎") if route == "after the selection" else ("conv⏎", "gap⏎", "out⏎"):
+        keys.type(step)
+    if route == "on a wire":
+        (out,) = doc.selection
+        (wire,) = d.in_wires[out]
+        canvas.quick_add(wire=wire)
+    before = doc.undo_stack.count()
+    keys.type("fc⏎")
+    by_kind = {b.kind: b for b in d.blocks.values()}
+    assert {"Flatten", "Linear"} <= by_kind.keys()
+    assert not [f for f in d.findings() if f.severity == "error"]  # no linear.rank
+    flatten, fc, pool = by_kind["Flatten"], by_kind["Linear"], by_kind["AdaptiveAvgPool2d"]
+    assert Wire(pool.id, 0, flatten.id, 0) in d.wires and Wire(flatten.id, 0, fc.id, 0) in d.wires
+    assert doc.selection == [fc.id] and doc.undo_stack.count() == before + 1  # one undo step
+    assert "Flatten added before fc_1" in window.statusBar().currentMessage()
+    # PyTorch as the outside reference: the same layers give the same shapes and weights
+    conv = by_kind["Conv2d"]
+    layers = torch.nn.Sequential(torch.nn.Conv2d(3, conv.settings["out_channels"], conv.settings["kernel"],
+                                                 conv.settings["stride"], conv.settings["padding"]),
+                                 torch.nn.AdaptiveAvgPool2d(1), torch.nn.Flatten(),
+                                 torch.nn.Linear(conv.settings["out_channels"], fc.settings["out_features"]))
+    x = torch.zeros(1, *d.analysis().shape(d.of_kind("Input")[0].id))
+    assert tuple(d.analysis().shape(fc.id)) == tuple(layers(x).shape[1:])
+    assert tuple(d.analysis().shape(flatten.id)) == tuple(layers[:3](x).shape[1:])
+    assert d.ledger().totals.weights == sum(p.numel() for p in layers.parameters())
+    if route == "on a wire":
+        assert Wire(fc.id, 0, d.of_kind("Output")[0].id, 0) in d.wires
+    cards = [canvas.canvas_scene.blocks[b.id].sceneBoundingRect() for b in d.blocks.values()]
+    assert not any(a.intersects(b) for i, a in enumerate(cards) for b in cards[i + 1:])  # side by side
+    shoot(window, f"flatten_before_linear_{route.replace(' ', '_')}")
+    doc.undo_stack.undo()
+    assert not {"Flatten", "Linear"} & {b.kind for b in d.blocks.values()}
+    doc.undo_stack.redo()
+    assert {"Flatten", "Linear"} <= {b.kind for b in d.blocks.values()}

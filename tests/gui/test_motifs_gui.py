@@ -275,7 +275,7 @@ def test_dropping_a_library_motif_defines_it_and_adds_an_instance_in_one_step(qt
 
 def test_a_finding_inside_a_motif_opens_the_motif_at_its_block(qtbot, tmp_path):
     d = Design("glove-seam-inspector")
-    x = d.input(32, 28, 28, name="crops")
+    d.input(32, 28, 28, name="crops")
     window, _ = window_with(qtbot, tmp_path, d)
     doc = window.document
     d = doc.design

@@ -210,3 +210,78 @@ def test_unfolding_blocks_that_share_their_cards_place_gives_them_places(qtbot, 
     places = [tuple(b.position) for b in d.blocks.values()]
     assert len(set(places)) == len(places) and doc.undo_stack.undoText() == "Tidy"
     window.close()
+
+
+def _drawn_stroke(wire):
+    from PySide6.QtGui import QPainterPathStroker
+
+    stroker = QPainterPathStroker()
+    stroker.setWidth(wire.width)
+    return stroker.createStroke(wire.path())
+
+
+def assert_labels_touch_nothing(scene):
+    """Each shown label keeps clear of every card and every wire as drawn (Qt's own stroke of the
+    drawn path, not our sampled pieces) and of every other label."""
+    labels = {w: item.label_rect for w, item in scene.wires.items() if item.label_box is not None}
+    cards = [item.sceneBoundingRect().adjusted(*(2 * [BOUNDS_PAD] + 2 * [-BOUNDS_PAD]))
+             for _, item in scene.cards()]
+    strokes = {w: _drawn_stroke(item) for w, item in scene.wires.items()}
+    for w, rect in labels.items():
+        assert not any(rect.intersects(c) for c in cards), (w, rect)
+        assert not [x for x, s in strokes.items() if s.intersects(rect)], (w, rect)
+        assert not any(rect.intersects(r) for x, r in labels.items() if x != w), (w, rect)
+    return labels
+
+
+BOUNDS_PAD = 7.0  # a card item's bounds reach this far past the card (outline and selection room)
+
+
+@pytest.mark.parametrize("sample", sorted(p.stem for p in SAMPLES.glob("*.loom")))
+def test_wire_labels_touch_no_wire_card_or_label_also_after_a_mend(qtbot, tmp_path, sample):
+    window = window_on(qtbot, tmp_path, sample)
+    scene = window.canvas.canvas_scene
+    window.canvas.actual_size()  # close up: labels are placed (far out they are not drawn)
+    assert assert_labels_touch_nothing(scene)  # the labels in view are placed at once
+    scene.set_label_region(None)  # every label, as a picture of the whole canvas places them
+    labels = assert_labels_touch_nothing(scene)
+    assert len(labels) >= len(scene.wires) // 2  # most wires still say their shape
+    d = window.document.design
+    errors = [f for f in d.findings() if f.severity == "error"]
+    if errors:  # the clash sample: its mend adds a projection on the shortcut, wires split and kink
+        from layerloom.core.mends import mends_for
+
+        scene.apply_mend(mends_for(d, errors[0])[0])
+        scene.set_label_region(None)
+        assert_labels_touch_nothing(scene)
+        window.canvas.tidy()
+        window.canvas.actual_size()
+        scene.set_label_region(None)
+        assert_labels_touch_nothing(scene)
+    shoot_canvas = window.canvas.grab()
+    SHOTS.mkdir(exist_ok=True)
+    shoot_canvas.save(str(SHOTS / f"labels_{sample}.png"))
+    window.close()
+
+
+def test_a_mend_on_a_tidy_design_keeps_it_tidy_in_the_same_undo_step(qtbot, tmp_path):
+    from layerloom.core.fileformat import dumps
+    from layerloom.core.mends import mends_for
+
+    window = window_on(qtbot, tmp_path, "shelf_gap_counter_clash")
+    canvas, doc = window.canvas, window.document
+    d = doc.design
+    assert canvas.is_tidy()
+    before, steps = dumps(d), doc.undo_stack.count()
+    (error,) = [f for f in d.findings() if f.severity == "error"]
+    window.shelf.findings.mend_applier(mends_for(d, error)[0])  # as the Findings tab's Mend button does
+    added = [b for b in d.blocks.values() if b.name not in before]
+    assert added and not [f for f in d.findings() if f.severity == "error"]
+    assert canvas.is_tidy() and doc.undo_stack.count() == steps + 1  # laid out again, one step
+    card = canvas.canvas_scene.blocks[added[0].id].sceneBoundingRect()
+    assert not any(card.intersects(i.sceneBoundingRect()) for b, i in canvas.canvas_scene.cards() if b != added[0].id)
+    doc.undo_stack.undo()
+    assert dumps(d) == before  # the mend and its Tidy undone together, every position as it was
+    doc.undo_stack.redo()
+    assert canvas.is_tidy() and {b.id for b in added} <= set(d.blocks)
+    window.close()

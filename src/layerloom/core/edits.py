@@ -14,6 +14,7 @@ from layerloom.core.graph import Block, Graph, Wire, kind_stem
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import SettingError
 from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH, STACK
+from layerloom.core.stage_rows import COLUMN as COLUMN_STEP
 from layerloom.core.values import check_text, quote
 
 
@@ -266,14 +267,16 @@ def insert_on_wire(design, wire: Wire, steps: list[tuple[str, dict]], graph: str
     ops: list = [RemoveWire(graph, wire)]
     src, n = (wire.src, wire.src_port), len(steps)
     names = {b.name for b in g.blocks.values()}
+    placed = [b.position for b in g.blocks.values()]
     for i, (kind, settings) in enumerate(steps, 1):
         ins, outs = port_counts(design, Block("", kind, "", check_settings(design, kind, settings, graph), (0, 0)))
         if (ins, outs) != (1, 1):
             raise EditError(f"only a block with one input and one output can go on a wire; "
                             f"{kind} has {ins} inputs and {outs} outputs")
-        f = i / (n + 1)
-        here = position if n == 1 and position is not None else clear_spot(
-            (b.position for b in g.blocks.values()), (ax + (bx - ax) * f, ay + (by - ay) * f + 90.0))
+        # below the wire's middle, the chain side by side a column apart, clear of every card
+        x = (ax + bx) / 2 + (i - (n + 1) / 2) * COLUMN_STEP
+        here = position if n == 1 and position is not None else clear_spot(placed, (x, (ay + by) / 2 + 90.0))
+        placed.append(here)
         block_name = name if n == 1 and name is not None else g.fresh_name(kind_stem(kind), names)
         names.add(block_name)
         edit, bid = add_block(design, kind, settings, graph=graph, inputs=[src], name=block_name, position=here)

@@ -61,15 +61,25 @@ class Obstacles:
 
     def within(self, left: float, top: float, right: float, bottom: float, skip=()) -> list[Rect]:
         """Rectangles reaching into the given area (except the keys in ``skip``)."""
+        rects = self.rects
+        return [r for k in self._near(left, top, right, bottom) if k not in skip for r in (rects[k],)
+                if r[0] < right and r[2] > left and r[1] < bottom and r[3] > top]
+
+    def keys_within(self, left: float, top: float, right: float, bottom: float) -> set:
+        """Keys of the rectangles reaching into the given area."""
+        rects = self.rects
+        return {k for k in self._near(left, top, right, bottom) for r in (rects[k],)
+                if r[0] < right and r[2] > left and r[1] < bottom and r[3] > top}
+
+    def _near(self, left: float, top: float, right: float, bottom: float) -> set:
+        """Keys filed in the cells the given area touches."""
         keys = set()
         cells = self._cells
         for cell in self._cells_of(left, top, right, bottom):
             found = cells.get(cell)
             if found:
                 keys |= found
-        rects = self.rects
-        return [r for k in keys if k not in skip for r in (rects[k],)
-                if r[0] < right and r[2] > left and r[1] < bottom and r[3] > top]
+        return keys
 
 
 def _spans_h(rects, left: float, right: float) -> list[tuple[float, float]]:

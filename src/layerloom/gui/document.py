@@ -39,6 +39,11 @@ class EditCommand(QUndoCommand):
     def undo(self) -> None:
         self._edit = self._design.apply(self._inverse)
 
+    def join(self, edit: Edit, inverse: Edit) -> None:
+        """Make an edit just applied after this one part of this step (undone with it)."""
+        self._edit = Edit(self._edit.label, self._edit.ops + edit.ops)
+        self._inverse = Edit(self._inverse.label, inverse.ops + self._inverse.ops)
+
 
 class Document(QObject):
     """A design being edited. ``changed`` carries each core :class:`Change`; ``replaced`` fires
@@ -90,6 +95,14 @@ class Document(QObject):
         """Perform ``edit`` and record it as one undo step (raises, recording nothing, if refused)."""
         inverse = self.design.apply(edit)
         self.undo_stack.push(EditCommand(self.design, edit, inverse))
+
+    def apply_in_last_step(self, edit: Edit) -> None:
+        """Perform ``edit`` as part of the last undo step (a Tidy that follows a mend)."""
+        last = self.undo_stack.command(self.undo_stack.index() - 1)
+        if not isinstance(last, EditCommand) or self.undo_stack.index() != self.undo_stack.count():
+            self.apply(edit)
+            return
+        last.join(edit, self.design.apply(edit))
 
     def _on_design_change(self, change: Change) -> None:
         """Leave a motif that an edit (an undo, most often) took away, then pass the change on."""

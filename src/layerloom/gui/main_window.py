@@ -33,6 +33,7 @@ APP_ICON = "icons/layerloom.svg"
 STYLE_SHEET = "style.qss"
 SETTINGS_WIDTH, SHELF_HEIGHT = 380, 215  # first-run sizes of the right column and the shelf, in pixels
 SETTINGS_SHARE = 0.48  # first-run share of the right column's height for Block settings (the Depth ledger below)
+FOLD_SETTING = "view/fold"
 Key = QKeySequence.StandardKey
 
 
@@ -84,6 +85,7 @@ class MainWindow(QMainWindow):
         self.setDockNestingEnabled(True)
         self.resize(1400, 860)  # first run; a saved geometry replaces it below
         self.shelf.findings.block_chosen.connect(self.canvas.center_on)
+        self.shelf.findings.mend_applier = self.canvas.apply_mend
         self.canvas.message.connect(self.say)
         self.canvas.settings_wanted.connect(self._settings_wanted)
         self.block_settings.finished.connect(self.canvas.setFocus)
@@ -178,7 +180,7 @@ class MainWindow(QMainWindow):
         self._action(view, "Zoom to selection", c.zoom_to_selection, "Ctrl+2", name="zoom_to_selection")
         fold = self._action(view, "Fold norm and activation into cards", c.set_fold, name="fold")
         fold.setCheckable(True)
-        fold.setChecked(c.canvas_scene.fold)
+        self._remember_fold(fold)
         self._action(view, "Tidy", c.tidy, "Ctrl+L")
         view.addSeparator()
         view.addAction(self.shelf_dock.toggleViewAction())
@@ -196,6 +198,13 @@ class MainWindow(QMainWindow):
         self._action(design, "Measure on this machine…", lambda: open_measure(self), name="measure")
         self._action(design, "Fit to budget…", lambda: open_fit(self), name="fit_to_budget")
         self.shelf_dock.toggleViewAction().setText("Shelf (Parts, Findings)")
+
+    def _remember_fold(self, action: QAction) -> None:
+        """Start with Fold as last chosen (kept in the settings; on the first run) and keep each change."""
+        on = self.settings.value(FOLD_SETTING, True, type=bool)
+        self.canvas.set_fold(on)
+        action.setChecked(on)
+        action.toggled.connect(lambda checked: self.settings.setValue(FOLD_SETTING, checked))
 
     def _fill_recent(self) -> None:
         self.recent_menu.clear()

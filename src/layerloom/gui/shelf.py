@@ -29,7 +29,8 @@ from layerloom.gui.flow_layout import FlowLayout
 FAMILY_ORDER = ("Ends", "Convolution", "Norm & activation", "Pooling & resizing", "Joins", "Dense", "Plumbing")
 """Families left to right in the order data usually meets them; other families follow."""
 HIDDEN_KINDS = {"Motif", "Unmapped"}  # an instance needs a motif of the design; an unmapped operation comes from import
-TILE_ROWS = 3
+TILE_ROWS = 3  # tiles per column at least; more when the shelf is taller
+TILE_GAP = 3
 GLYPH_PX = 16
 
 
@@ -75,8 +76,8 @@ class DragTile(QFrame):
         self.setCursor(Qt.CursorShape.OpenHandCursor)
         self.setToolTip(tip + "\nDrag onto the canvas to add it.")
         row = QHBoxLayout(self)
-        row.setContentsMargins(6, 3, 10, 3)
-        row.setSpacing(6)
+        row.setContentsMargins(5, 2, 8, 2)
+        row.setSpacing(5)
         row.addWidget(GlyphMark(glyph))
         self.label = QLabel(title)
         row.addWidget(self.label)
@@ -152,8 +153,8 @@ def motif_tiles(design) -> list[MotifTile]:
 
 
 class FamilyGroup(QWidget):
-    """A family's heading above its tiles, laid out in columns of :data:`TILE_ROWS`; clicking the
-    heading folds the tiles away (and back)."""
+    """A family's heading above its tiles, laid out in columns of :attr:`rows` tiles (as many as
+    the shelf's height holds); clicking the heading folds the tiles away (and back)."""
 
     def __init__(self, family: str, tiles: list[DragTile], parent=None):
         super().__init__(parent)
@@ -170,10 +171,11 @@ class FamilyGroup(QWidget):
         self.heading.toggled.connect(self._unfold)
         self.tiles = tiles
         self._shown_text = ""
+        self.rows = TILE_ROWS
         self.body = QWidget()
         self.grid = QGridLayout(self.body)
         self.grid.setContentsMargins(0, 0, 0, 0)
-        self.grid.setSpacing(4)
+        self.grid.setSpacing(TILE_GAP)
         col = QVBoxLayout(self)
         col.setContentsMargins(0, 0, 0, 0)
         col.setSpacing(2)
@@ -200,6 +202,12 @@ class FamilyGroup(QWidget):
         self.tiles = tiles
         self.show_matching(self._shown_text)
 
+    def set_rows(self, rows: int) -> None:
+        """Lay the tiles out in columns of ``rows``."""
+        if rows != self.rows:
+            self.rows = rows
+            self.show_matching(self._shown_text)
+
     def show_matching(self, text: str) -> int:
         """Show only tiles matching ``text``, packed without gaps; returns how many are shown."""
         self._shown_text = text
@@ -207,7 +215,7 @@ class FamilyGroup(QWidget):
             self.grid.removeWidget(tile)
         shown = [t for t in self.tiles if t.matches(text)]
         for i, tile in enumerate(shown):
-            self.grid.addWidget(tile, i % TILE_ROWS, i // TILE_ROWS)
+            self.grid.addWidget(tile, i % self.rows, i // self.rows)
         for tile in self.tiles:
             tile.setVisible(tile in shown)
         self.setVisible(bool(shown))
@@ -248,7 +256,8 @@ class PartsPanel(QWidget):
         scroll.setWidget(strip)
 
         col = QVBoxLayout(self)
-        col.setContentsMargins(6, 6, 6, 4)
+        col.setContentsMargins(6, 5, 6, 2)
+        col.setSpacing(4)
         col.addWidget(self.filter)
         col.addWidget(scroll, 1)
         if document is not None:
@@ -276,6 +285,16 @@ class PartsPanel(QWidget):
             group.heading.toggled.connect(lambda _on: settings.setValue(
                 "parts/folded", [g.family for g in (*self.groups, self.motif_group) if g.folded]))
 
+    def resizeEvent(self, event) -> None:  # noqa: N802 (Qt naming)
+        """As many tiles per column as the shelf's height holds below a family's heading."""
+        super().resizeEvent(event)
+        group = self.groups[0]
+        tile = max(t.sizeHint().height() for t in group.tiles) + TILE_GAP
+        room = self.scroll.viewport().height() - group.heading.sizeHint().height() - 2
+        rows = max(TILE_ROWS, (room + TILE_GAP) // tile)
+        for g in (*self.groups, self.motif_group):
+            g.set_rows(rows)
+
     def apply_filter(self, text: str) -> None:
         shown = sum(g.show_matching(text) for g in (*self.groups, self.motif_group))
         self.empty.setVisible(shown == 0)
@@ -292,6 +311,7 @@ class Shelf(QTabWidget):
         self.findings = FindingsList(document)
         self.addTab(self.parts, "Parts")
         self.addTab(self.findings, "Findings")
+
         self.findings.counts_changed.connect(self._count)
         self._count(*self.findings.counts())
 

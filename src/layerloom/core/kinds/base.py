@@ -69,6 +69,7 @@ class Kind:
     settings_by_key: dict[str, Setting]
     defaults: dict[str, Any]
     view = False  # output aliases the input (no new activation memory)
+    flat_input = False  # takes a flat vector only: the editor puts a Flatten before it when added after a map
     keeps: tuple[str, ...] = ()  # what its backward pass keeps, see backward_keeps
     scriptable = True  # accepted by torch.jit.script once exported
     verifiable = True  # its export computes the block (False: a placeholder the user fills in)

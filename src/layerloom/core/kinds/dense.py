@@ -37,6 +37,7 @@ class Linear(Kind):
     name, title, family = "Linear", "Linear (fully connected)", "Dense"
     keeps = ("inputs",)
     stem = "fc"
+    flat_input = True
     settings = (int_setting("out_features", 1000, "Out features"),
                 bool_setting("bias", True, "Bias"),
                 int_setting("in_features", 0, "Expected in features", minimum=0,

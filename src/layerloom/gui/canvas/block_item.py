@@ -140,16 +140,12 @@ def chip_width(label: str) -> float:
     return advance("detail", label) + 6.0
 
 
-SCENE_MOVED = QGraphicsItem.GraphicsItemChange.ItemScenePositionHasChanged
-
-
 class BlockItem(QGraphicsItem):
     """One block's card. Its position is the card's top-left corner, as stored in the design."""
 
-    def __init__(self, block_id: str, state: CardState, on_moved):
+    def __init__(self, block_id: str, state: CardState):
         super().__init__()
         self.block_id = block_id
-        self._on_moved = on_moved
         self.state = state
         self._title = self._detail = self._cost = ""
         self._shape_row = DETAIL_BASE
@@ -157,8 +153,9 @@ class BlockItem(QGraphicsItem):
         self._chip_x: list[float] = []  # left edge of each chip on the second line
         self._far: tuple[float, list[TextLine]] | None = None  # zoom and lines last laid out far out
         self._texts()
-        self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsMovable | QGraphicsItem.GraphicsItemFlag.ItemIsSelectable
-                      | QGraphicsItem.GraphicsItemFlag.ItemSendsScenePositionChanges)
+        # no ItemSendsScenePositionChanges: it costs three calls into Python per move, and Tidy moves
+        # a thousand cards at once; the scene follows a drag itself (CanvasScene.follow_moved_cards)
+        self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsMovable | QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
         self.setAcceptHoverEvents(False)
 
@@ -282,12 +279,6 @@ class BlockItem(QGraphicsItem):
         ports = range(self.state.n_in)
         free = [p for p in ports if p not in taken] or list(ports)
         return min(free, key=lambda p: abs(port_y(p, self.state.n_in) - local_y)) if free else None
-
-    # ----- moves
-    def itemChange(self, change, value):
-        if change == SCENE_MOVED:
-            self._on_moved(self.block_id)
-        return value  # what QGraphicsItem.itemChange returns (no second crossing into Qt)
 
     # ----- drawing
     def paint(self, painter, option, widget=None) -> None:

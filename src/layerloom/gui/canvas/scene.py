@@ -17,7 +17,8 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
+from PySide6.QtCore import QRectF, Qt, QTimer, Signal
+from PySide6.QtGui import QPainterPath
 from PySide6.QtWidgets import QGraphicsItem, QGraphicsScene
 
 from layerloom.core import edits, units
@@ -28,12 +29,13 @@ from layerloom.core.kinds import KINDS
 from layerloom.core.mends import mends_for
 from layerloom.core.settings import SettingError
 from layerloom.core.stage_rows import stage_groups
+from layerloom.core.wire_labels import label_spot, piece_boxes
 from layerloom.core.wire_route import Obstacles, route
 from layerloom.gui import theme
 from layerloom.gui.canvas.badge_item import BadgeItem
-from layerloom.gui.canvas.block_item import CARD_RECT, H, W, BlockItem, CardState
+from layerloom.gui.canvas.block_item import BOUNDS, CARD_RECT, H, W, BlockItem, CardState
 from layerloom.gui.canvas.chips import ChipItem
-from layerloom.gui.canvas.wire_item import WireItem
+from layerloom.gui.canvas.wire_item import WireItem, polylines_path
 
 
 class ParamValue(int):
@@ -71,6 +73,7 @@ def detail_text(block, motif=None) -> str:
 
 
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
+LABEL_REACH = (100.0, 24.0)  # how far from a wire its label may stand (a wide shape label, beside it)
 
 
 def _overview_colour(item: BlockItem):
@@ -82,6 +85,11 @@ def _overview_colour(item: BlockItem):
 def _rect(item: BlockItem) -> tuple:
     p = item.pos()
     return (p.x(), p.y(), p.x() + W, p.y() + H)
+
+
+def _meets(a: tuple, b: tuple) -> bool:
+    """Whether rectangles ``(left, top, right, bottom)`` overlap."""
+    return a[0] < b[2] and a[2] > b[0] and a[1] < b[3] and a[3] > b[1]
 
 
 def _overview_flags(item, on: bool) -> None:
@@ -103,6 +111,14 @@ class CanvasScene(QGraphicsScene):
         self.folds: dict[str, str] = {}  # chip id → its card's id
         self._chips: dict[str, list[str]] = {}  # card id → chip ids
         self.obstacles = Obstacles()  # card rectangles the wires go around
+        self.pieces = Obstacles()  # (wire, i) → the rectangle of piece i of a drawn wire (labels keep off them)
+        self.label_places = Obstacles()  # wire → its label's rectangle, as placed
+        self._label_dirty: set = set()  # wires whose label goes somewhere again (see place_labels)
+        self._label_areas: list = []  # rectangles where cards or wires came or went since the last placing
+        self._labels_all = True  # every label is placed afresh
+        self._label_pending: set = set()  # wires whose label waits to be placed (out of view, or far out)
+        self._pieces_pending: set = set()  # wires whose pieces are not in :attr:`pieces` yet
+        self.label_region: tuple | None = None  # where labels are placed now (see set_label_region)
         self._stages: dict | None = None  # stages and their labels, made on demand (see stage_cache)
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
@@ -111,12 +127,16 @@ class CanvasScene(QGraphicsScene):
         self._syncing_selection = False
         self._total_macs = 0
         self.overview = False  # far out, the view draws every item at once (see set_overview)
-        self._ov_lines: dict = {}  # Wire → its lines, kept while in overview
+        self._ov_lines: dict = {}  # Wire → its polyline (WireItem.points), kept as wires change
+        self.wires_revision = 0  # grows whenever a wire's polyline, the set of wires or the cards moving change
+        self._wire_path: tuple | None = None  # (wires revision, the still wires as one path), see overview_wires
         self._ov_rects: dict = {}  # colour rgba → (colour, {block id → card rect})
         self._ov_where: dict = {}  # block id → colour rgba of the group holding it
+        self._card_rects: dict = {}  # block id → (its rectangle as a tuple, as a QRectF), reused while it stays
         self._ov_valid = False
         self.overview_revision = 0  # grows whenever the overview's still part may have changed
         self.moving: set[str] = set()  # cards dragged since the last change of the document
+        self.mend_applier = None  # the view's way of applying a mend (it keeps a tidy design tidy)
         self._bulk = False  # while an edit moves most cards at once
         self.setItemIndexMethod(QGraphicsScene.ItemIndexMethod.BspTreeIndex)
         document.changed.connect(self._on_changed)
@@ -145,7 +165,9 @@ class CanvasScene(QGraphicsScene):
         finally:
             self._syncing_selection = False
         self.blocks, self.wires, self.badges, self._findings = {}, {}, {}, {}
-        self.folds, self._chips, self.obstacles = {}, {}, Obstacles()
+        self.folds, self._chips, self.obstacles, self._card_rects = {}, {}, Obstacles(), {}
+        self._ov_lines = {}
+        self._labels_all = True
         self._dirty_wires.clear()
         self._sync_topology()
         self._refresh_results()
@@ -159,6 +181,20 @@ class CanvasScene(QGraphicsScene):
         xs, ys = [p[0] for p in pos], [p[1] for p in pos]
         m = theme.SCENE_MARGIN
         return QRectF(min(xs) - m, min(ys) - m, max(xs) - min(xs) + W + 2 * m, max(ys) - min(ys) + H + 2 * m)
+
+    def cards_rect(self) -> QRectF:
+        """The scene rectangle holding every card with its outline, and every badge (empty when
+        there is none): read from the cards' rectangles, without asking Qt for every item's bounds."""
+        rects = self.obstacles.rects.values()
+        if not rects:
+            return QRectF()
+        m = BOUNDS.right() - W  # a card's outline reaches this far past its edge
+        left, top = min(r[0] for r in rects) - m, min(r[1] for r in rects) - m
+        out = QRectF(left, top, max(r[2] for r in rects) + m - left, max(r[3] for r in rects) + m - top)
+        for badges in self.badges.values():
+            for badge in badges:
+                out = out.united(badge.sceneBoundingRect())
+        return out
 
     def grow_to_fit(self) -> None:
         """Widen the scene rect when blocks come near or past its edges (it never shrinks while editing)."""
@@ -176,16 +212,20 @@ class CanvasScene(QGraphicsScene):
         many = len(change.moved.get(key, ())) * 4 > len(self.blocks)  # most cards move (Tidy): in bulk
         self._bulk = many
         try:
+            rects, blocks = self.obstacles.rects, self.blocks
             for bid in change.moved.get(key, ()):
-                item = self.blocks.get(bid)
+                item = blocks.get(bid)
                 if isinstance(item, BlockItem):
                     x, y = graph.blocks[bid].position
-                    if item.pos() != QPointF(x, y):
+                    if rects[bid][:2] != (x, y):  # a card's rectangle follows its item (see _block_moved)
                         item.setPos(x, y)
+                        self._block_moved(bid)
         finally:
             self._bulk = False
         if many:
-            self.obstacles = Obstacles({b: _rect(i) for b, i in self.cards()})
+            self._labels_all = True
+            places = graph.blocks  # where the cards now stand (read without a call into Qt per card)
+            self.obstacles = Obstacles({b: (x, y, x + W, y + H) for b, _ in self.cards() for x, y in (places[b].position,)})
             self._ov_valid = False
         if change.moved.get(key):  # a card set down elsewhere may now stand in another wire's way
             self._forget_places()
@@ -203,7 +243,9 @@ class CanvasScene(QGraphicsScene):
         if change.reinfers:
             self._refresh_results()
         self.flush_wires()
-        self.moving.clear()  # cards set where the document says are still again (after the wires follow)
+        if self.moving:  # cards set where the document says are still again (after the wires follow)
+            self.moving.clear()
+            self.wires_revision += 1
         if key in change.moved or key in change.topology:
             self.grow_to_fit()
 
@@ -218,6 +260,8 @@ class CanvasScene(QGraphicsScene):
         return self.folds.get(block_id, block_id)
 
     def _drop(self, bid: str) -> None:
+        if bid in self.obstacles.rects:
+            self._label_areas.append(self.obstacles.rects[bid])
         item = self.blocks.pop(bid)
         self.badges.pop(bid, None)
         self._findings.pop(bid, None)
@@ -241,18 +285,22 @@ class CanvasScene(QGraphicsScene):
         for bid in [b for b in self.blocks if b not in graph.blocks or b in regrouped]:
             self._drop(bid)
         self.folds, self._chips = folds, chips_of(folds)
+        self.wires_revision += 1
         for w in [w for w in self.wires if w not in graph.wires or folds.get(w.src, w.src) == folds.get(w.dst, w.dst)]:
+            self._ov_lines.pop(w, None)
+            self._forget_pieces(w)
+            self.label_places.drop(w)
             self.removeItem(self.wires.pop(w))
             self._dirty_wires.discard(w)
         for bid, block in graph.blocks.items():
             if bid not in self.blocks and bid not in folds:
                 n_in, n_out = port_counts(design, block)
                 detail = detail_text(block, graph if graph.key else None)
-                item = BlockItem(bid, CardState(block.kind, block.name, detail, "", n_in, n_out, "", 0.0),
-                                 self._block_moved)
+                item = BlockItem(bid, CardState(block.kind, block.name, detail, "", n_in, n_out, "", 0.0))
                 item.setPos(*block.position)
                 self.blocks[bid] = item
                 self.obstacles.put(bid, _rect(item))
+                self._label_areas.append(_rect(item))
                 self._adopt(item)
         for card, chips in self._chips.items():
             for bid in chips:
@@ -356,23 +404,32 @@ class CanvasScene(QGraphicsScene):
         items = [*self.blocks.values(), *self.wires.values(), *(b for bs in self.badges.values() for b in bs)]
         for item in items:
             _overview_flags(item, on)
+        if not on:
+            self.place_labels()
 
     def overview_shapes(self, moving: bool | None = None) -> tuple[list, list]:
-        """Wire lines, and (colour, card rectangles) groups: error, warning, plain, and the selection
-        drawn over them. Kept up to date piece by piece while blocks move; made again after other
-        changes. ``moving`` True gives what is drawn live (the cards being dragged, their wires,
-        the selection), False the still rest."""
+        """Wire polylines (each wire's :attr:`WireItem.points`), and (colour, card rectangles)
+        groups: error, warning, plain, and the selection drawn over them. Kept up to date piece by
+        piece while blocks move; made again after other changes (a card's rectangle is made again
+        only when it moved). ``moving`` True gives what is drawn live (the cards being dragged,
+        their wires, the selection), False the still rest."""
         if not self._ov_valid:
-            self._ov_lines = {w: item.lines for w, item in self.wires.items()}
             self._ov_rects, self._ov_where = {}, {}
             by_status: dict = {}  # a card's status → (colour rgba, its group's rectangles)
-            for bid, item in self.cards():
+            places, made, blocks = self.obstacles.rects, self._card_rects, self.blocks
+            for bid in places:  # every card (chips have no rectangle of their own)
+                item = blocks[bid]
                 group = by_status.get(item.state.status)
                 if group is None:
                     colour = _overview_colour(item)
                     group = by_status[item.state.status] = (
                         colour.rgba(), self._ov_rects.setdefault(colour.rgba(), (colour, {}))[1])
-                group[1][bid] = CARD_RECT.translated(item.pos())
+                place, rect = made.get(bid, (None, None))
+                if place != places[bid]:
+                    place = places[bid]
+                    rect = QRectF(place[0], place[1], W, H)
+                    made[bid] = (place, rect)
+                group[1][bid] = rect
                 self._ov_where[bid] = group[0]
             self._ov_valid = True
         chosen = [] if moving is False else [
@@ -380,12 +437,22 @@ class CanvasScene(QGraphicsScene):
         if moving is None or not self.moving:
             if moving:
                 return [], chosen
-            return ([ln for lines in self._ov_lines.values() for ln in lines],
-                    [(c, list(r.values())) for c, r in self._ov_rects.values()] + chosen)
+            return (list(self._ov_lines.values()), [(c, list(r.values())) for c, r in self._ov_rects.values()] + chosen)
         dragged = self._moving_wires()
-        lines = [ln for w, ls in self._ov_lines.items() if (w in dragged) == moving for ln in ls]
+        lines = [pts for w, pts in self._ov_lines.items() if (w in dragged) == moving]
         return lines, [(c, [r for b, r in rs.items() if (b in self.moving) == moving])
                        for c, rs in self._ov_rects.values()] + chosen
+
+    def overview_wires(self, moving: bool | None = None) -> QPainterPath:
+        """Every wire far out as one path (``moving`` as for :meth:`overview_shapes`); all of them
+        or the still ones are kept as made until a wire changes or other cards start moving."""
+        if moving:
+            return polylines_path(self.overview_shapes(True)[0])
+        key = (self.wires_revision, moving)
+        if self._wire_path is None or self._wire_path[0] != key:
+            lines = self._ov_lines.values() if moving is None or not self.moving else self.overview_shapes(False)[0]
+            self._wire_path = (key, polylines_path(lines))
+        return self._wire_path[1]
 
     def overview_cards(self, moving: bool | None = None) -> list:
         """``(scene rectangle, name)`` of every card far out (``moving`` as for :meth:`overview_shapes`)."""
@@ -452,6 +519,22 @@ class CanvasScene(QGraphicsScene):
             self.update()
 
     # ----- wires following blocks
+    def mouseMoveEvent(self, event) -> None:  # noqa: N802 (Qt naming)
+        super().mouseMoveEvent(event)  # a drag moves the selected cards' items
+        if event.buttons() & Qt.MouseButton.LeftButton:
+            self.follow_moved_cards()
+
+    def follow_moved_cards(self, items=None) -> None:
+        """Let wires, obstacles and the overview follow the cards (``items``, else the selected
+        ones) whose items were moved directly: a drag moves the items itself, and the document
+        learns of it on the drop."""
+        rects = self.obstacles.rects
+        for item in self.selectedItems() if items is None else items:
+            if isinstance(item, BlockItem):
+                p = item.pos()
+                if rects.get(item.block_id, (None, None))[:2] != (p.x(), p.y()):
+                    self._block_moved(item.block_id)
+
     def _block_moved(self, block_id: str) -> None:
         if self._bulk:  # the scene re-indexes and re-routes everything once afterwards
             return
@@ -459,8 +542,10 @@ class CanvasScene(QGraphicsScene):
         if block_id not in self.moving:  # the still part is drawn once more without it
             self.moving.add(block_id)
             self.overview_revision += 1
+            self.wires_revision += 1
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
+        self._label_areas += (self.obstacles.rects.get(block_id), _rect(item))
         self.obstacles.put(block_id, _rect(item))
         g = self.graph
         if g.in_wires.get(block_id) is None:
@@ -473,28 +558,123 @@ class CanvasScene(QGraphicsScene):
             QTimer.singleShot(0, self, self.flush_wires)
 
     def flush_wires(self) -> None:
-        """Re-route every dirty wire once."""
+        """Re-route every dirty wire once. Ends are read from the cards' rectangles (kept in
+        :attr:`obstacles` as cards move), not from the items: no call into Qt per wire end."""
         self._flush_queued = False
-        blocks, folds, obstacles = self.blocks, self.folds, self.obstacles
+        dirty, wires = self._dirty_wires, self.wires
+        if not dirty:
+            return
+        blocks, folds, obstacles, moving = self.blocks, self.folds, self.obstacles, self.moving
+        rects = obstacles.rects
         out_wires = self.graph.out_wires
-        for w in [*self._dirty_wires]:  # wires sharing an output: the one labelled may change
+        for w in [*dirty]:  # wires sharing an output: the one labelled may change
             siblings = out_wires.get(w.src, ())
             if len(siblings) > 1:
-                self._dirty_wires.update(x for x in siblings if x.src_port == w.src_port and x in self.wires)
+                dirty.update(x for x in siblings if x.src_port == w.src_port and x in wires)
         chosen: dict = {}  # (block, port) → the wire of that output that carries the label
-        for w in self._dirty_wires:
-            item = self.wires.get(w)
-            if item is not None:
-                src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
-                a = blocks[src].output_point(w.src_port if src == w.src else 0)
-                b = blocks[dst].input_point(w.dst_port)
-                if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), self._labelled(w, chosen)):
+        gap = theme.WIRE_GAP
+        for w in dirty:
+            item = wires.get(w)
+            if item is None:
+                continue
+            src, dst = folds.get(w.src, w.src), folds.get(w.dst, w.dst)
+            (_, st, sr, _), (dl, dt, _, _) = rects[src], rects[dst]
+            port = w.src_port if src == w.src else 0
+            a = (sr + gap, st + H * (port + 1) / (max(blocks[src].state.n_out, port + 1) + 1))
+            b = (dl - gap, dt + H * (w.dst_port + 1) / (max(blocks[dst].state.n_in, w.dst_port + 1) + 1))
+            labelled = len(out_wires.get(w.src, ())) < 2 or self._labelled(w, chosen)
+            if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), labelled):
+                continue
+            self._ov_lines[w] = item.points
+            self._label_dirty.add(w)
+            self.wires_revision += 1
+            if src not in moving and dst not in moving:
+                self.overview_revision += 1  # a still wire took another way
+        dirty.clear()
+        if not self.overview:  # far out labels are not drawn: they are placed on the way back in
+            self.place_labels()
+
+    # ----- wire labels
+    def _forget_pieces(self, w) -> list:
+        """Take wire ``w``'s pieces out of :attr:`pieces`; their rectangles."""
+        old = []
+        i = 0
+        while (w, i) in self.pieces.rects:
+            old.append(self.pieces.rects[(w, i)])
+            self.pieces.drop((w, i))
+            i += 1
+        return old
+
+    def _index_pieces(self, w, item) -> list:
+        boxes = piece_boxes(item.polyline(), item.width / 2)
+        for i, box in enumerate(boxes):
+            self.pieces.put((w, i), box)
+        return boxes
+
+    def set_label_region(self, rect: tuple | None) -> None:
+        """Place labels only for wires in ``rect`` (left, top, right, bottom: what the view shows);
+        the others wait until they come into view. None: every wire (a picture of the whole)."""
+        self.label_region = rect
+        if not self.overview:
+            self.place_labels()
+
+    def place_labels(self) -> None:
+        """Place the labels of wires that changed, and of wires whose label or free room a card or
+        wire that came, went or moved may have touched, each clear of cards, wires and labels
+        (:mod:`layerloom.core.wire_labels`). Only wires in :attr:`label_region` are done now."""
+        wires, pending = self.wires, self._label_pending
+        if self._labels_all:
+            self._labels_all = False
+            self.pieces, self.label_places = Obstacles(), Obstacles()
+            self._pieces_pending, pending = set(wires), set(wires)
+            self._label_pending = pending
+            for item in wires.values():
+                item.place_label(None)
+        else:
+            areas = self._label_areas
+            for w in self._label_dirty:
+                if w in wires:
+                    areas += self._forget_pieces(w)
+                    self.label_places.drop(w)
+                    self._pieces_pending.add(w)
+                    pending.add(w)
+            for area in areas:  # where cards or wires came or went: labels there, and labels that may fit now
+                if area is None:
                     continue
-                if self._ov_valid:
-                    self._ov_lines[w] = item.lines
-                if src not in self.moving and dst not in self.moving:
-                    self.overview_revision += 1  # a still wire took another way
-        self._dirty_wires.clear()
+                left, top, right, bottom = area
+                for w in self.label_places.keys_within(left, top, right, bottom):
+                    self.label_places.drop(w)
+                    wires[w].place_label(None)
+                    pending.add(w)
+                pending |= {k[0] for k in self.pieces.keys_within(left - LABEL_REACH[0], top - LABEL_REACH[1],
+                                                                  right + LABEL_REACH[0], bottom + LABEL_REACH[1])
+                            if wires[k[0]].label_box is None}
+        self._label_dirty.clear()
+        self._label_areas = []
+        pending.intersection_update(wires)
+        region = self.label_region
+        if region is not None:  # the region, and the wires near it whose pieces a label there must avoid
+            dx, dy = 2 * LABEL_REACH[0], 2 * LABEL_REACH[1]
+            near = (region[0] - dx, region[1] - dy, region[2] + dx, region[3] + dy)
+        for w in [w for w in self._pieces_pending if w in wires and (region is None or _meets(wires[w].wire_box, near))]:
+            self._pieces_pending.discard(w)
+            self._index_pieces(w, wires[w])
+        todo = {w for w in pending if region is None or _meets(wires[w].wire_box, region)}
+        if not todo:
+            return
+        pending -= todo
+        cards, pieces, labels = self.obstacles, self.pieces, self.label_places
+
+        def blocked(left, top, right, bottom):
+            return (labels.blocked(left, top, right, bottom) or cards.blocked(left, top, right, bottom)
+                    or pieces.blocked(left, top, right, bottom))
+
+        for w in [w for w in wires if w in todo]:  # in the wires' own order: the same picture every time
+            item = wires[w]
+            item.place_label(label_spot(item.polyline(), item.label_size, item.width / 2, blocked)
+                             if item.label else None)
+            if item.label_box is not None:
+                labels.put(w, item.label_box)
 
     def _labelled(self, w, chosen: dict) -> bool:
         """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the
@@ -504,11 +684,12 @@ class CanvasScene(QGraphicsScene):
         key = (w.src, w.src_port)
         if key not in chosen:
             siblings = [x for x in self.graph.out_wires.get(w.src, ()) if x.src_port == w.src_port and x in self.wires]
-            here = self.blocks[self.card_of(w.src)].pos()
+            rects, card_of = self.obstacles.rects, self.card_of
+            x0, y0 = rects[card_of(w.src)][:2]
 
             def distance(x):
-                p = self.blocks[self.card_of(x.dst)].pos() - here
-                return (abs(p.x()) + abs(p.y()), x.dst)
+                left, top = rects[card_of(x.dst)][:2]
+                return (abs(left - x0) + abs(top - y0), x.dst)
 
             chosen[key] = min(siblings, key=distance) if len(siblings) > 1 else w
         return chosen[key] == w
@@ -560,7 +741,8 @@ class CanvasScene(QGraphicsScene):
         return mends_for(self.design, finding)
 
     def apply_mend(self, mend) -> bool:
-        return self.apply(mend.edit)
+        """Apply a mend (as the view wants it, see :attr:`mend_applier`, else as one edit)."""
+        return self.mend_applier(mend) if self.mend_applier is not None else self.apply(mend.edit)
 
     def total_macs(self) -> int:
         """MACs of the whole design per sample, as of the last refresh."""

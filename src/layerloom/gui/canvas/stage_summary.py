@@ -46,6 +46,7 @@ def _stage_texts(scene) -> list[tuple[str, QRectF]]:
     total = scene.total_macs()
     out = []
     number = 0
+    places = scene.obstacles.rects
     for key, cards in scene.stages():
         items = [scene.blocks[c] for c in cards if c in scene.blocks]
         if not items:
@@ -62,10 +63,9 @@ def _stage_texts(scene) -> list[tuple[str, QRectF]]:
         share = f"{100 * macs / total:.0f} % MACs" if total else "no MACs"
         handed = _stage_output(scene, results, set(cards), (scene.chips_of(cards[-1]) or cards)[-1])
         shape = str(handed) if handed is not None else "shape unknown"
-        left = min(i.pos().x() for i in items)
-        top = min(i.pos().y() for i in items)
-        right = max(i.pos().x() for i in items) + W
-        bottom = max(i.pos().y() for i in items) + H
+        rects = [places[c] for c in cards if c in places]  # the cards' rectangles as they stand now
+        left, top = min(r[0] for r in rects), min(r[1] for r in rects)
+        right, bottom = max(r[2] for r in rects), max(r[3] for r in rects)
         out.append((f"{name} · {shape} · {share}", QRectF(left, top, right - left, bottom - top)))
     return out
 

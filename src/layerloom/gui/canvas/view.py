@@ -9,9 +9,12 @@ items.
 """
 from __future__ import annotations
 
+import gc
+from contextlib import contextmanager
+
 from PySide6.QtCore import QEvent, QLineF, QPoint, QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import (QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen, QPixmap,
-                           QTransform)
+from PySide6.QtGui import (QCursor, QFont, QGuiApplication, QImage, QKeySequence, QPainter, QPalette, QPen,
+                           QPixmap, QTransform)
 from PySide6.QtWidgets import QGraphicsView, QMenu, QToolTip
 
 from layerloom.core import clipboard, edits, motif_ops
@@ -45,6 +48,18 @@ PASTE_STEP = 40.0  # each paste of the same blocks lands this much further down 
 ZOOM_STEP = 1.25
 
 
+@contextmanager
+def collector_paused():
+    """Python's cyclic garbage collector off for a bulk step (reference counting still frees)."""
+    was = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was:
+            gc.enable()
+
+
 class CanvasView(QGraphicsView):
     """The canvas for ``document``. ``message`` carries a refusal or hint for a status line;
     ``settings_wanted`` asks for the keyboard to go to Block settings (Enter on a selected block)."""
@@ -57,6 +72,7 @@ class CanvasView(QGraphicsView):
         super().__init__(parent)
         self.document = document
         self.canvas_scene = CanvasScene(document, self)
+        self.canvas_scene.mend_applier = self.apply_mend
         self.setScene(self.canvas_scene)
         self.canvas_scene.refused.connect(self.message)
         self.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.TextAntialiasing)
@@ -119,8 +135,22 @@ class CanvasView(QGraphicsView):
 
     def _sync_overview(self) -> None:
         """Below the zoom where cards are specks, draw them all at once (see CanvasScene.set_overview)."""
+        self._labels_in_view()
         self.canvas_scene.set_overview(self.shows_stage_summaries())
         self.zoom_changed.emit(self.transform().m11())
+
+    def _labels_in_view(self) -> None:
+        """Wire labels are placed for what the view shows (the rest as it comes into view)."""
+        r = self.mapToScene(self.viewport().rect()).boundingRect()
+        self.canvas_scene.set_label_region((r.left(), r.top(), r.right(), r.bottom()))
+
+    def scrollContentsBy(self, dx: int, dy: int) -> None:  # noqa: N802 (Qt naming)
+        super().scrollContentsBy(dx, dy)
+        self._labels_in_view()
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 (Qt naming)
+        super().resizeEvent(event)
+        self._labels_in_view()
 
     def drawForeground(self, painter, rect: QRectF) -> None:
         if self.canvas_scene.overview:
@@ -161,10 +191,11 @@ class CanvasView(QGraphicsView):
         """Far out, every wire and card in a few calls: cards as outlined rectangles (status and
         selection by outline colour; specks when tiny), each with its name at a readable size
         where the card is wide enough on screen to hold some of it."""
-        lines, rects = self.canvas_scene.overview_shapes(moving)
+        _, rects = self.canvas_scene.overview_shapes(moving)
         painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
         painter.setPen(QPen(theme.WIRE, 0))
-        painter.drawLines(lines)
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.drawPath(self.canvas_scene.overview_wires(moving))
         specks = self.zoom_level() < theme.SHAPE_MIN_DETAIL
         for colour, group in rects:
             if specks:
@@ -194,7 +225,7 @@ class CanvasView(QGraphicsView):
 
     def fit_all(self) -> None:
         """Show every block (never magnified beyond 1.25×)."""
-        self._fit(self.canvas_scene.itemsBoundingRect())
+        self._fit(self.canvas_scene.cards_rect())
 
     def zoom_to_selection(self) -> None:
         """Show the selected blocks as large as fits (a chip shows its card), or all when none is."""
@@ -204,7 +235,7 @@ class CanvasView(QGraphicsView):
             item = scene.blocks.get(scene.card_of(bid))
             if item is not None:
                 rect = rect.united(item.sceneBoundingRect())
-        self._fit(rect if not rect.isEmpty() else scene.itemsBoundingRect())
+        self._fit(rect if not rect.isEmpty() else scene.cards_rect())
 
     def actual_size(self) -> None:
         """Zoom to 100 % about the middle of the view."""
@@ -231,7 +262,7 @@ class CanvasView(QGraphicsView):
         flows left → right) at the smallest zoom whose text can still be read. The zoom is chosen
         before it is set: fitting a large design first would switch every item to the overview and
         back (a tenth of a second at 2,000 blocks)."""
-        rect = self.canvas_scene.itemsBoundingRect()
+        rect = self.canvas_scene.cards_rect()
         if rect.isEmpty():
             return
         room = self.viewport().rect().adjusted(2, 2, -2, -2)  # fitInView's own margin
@@ -619,15 +650,27 @@ class CanvasView(QGraphicsView):
         return before, name
 
     def _insert_on_wire(self, wire: Wire, kind: str, settings: dict, spot: QPointF, before, name) -> str | None:
+        flat = self._map_for_flat_input(kind, (wire.src, wire.src_port))
+        steps = [("Flatten", {})] * bool(flat) + [(kind, settings)]
         try:
-            edit = edits.insert_on_wire(self.document.design, wire, [(kind, settings)], self.document.graph_key,
+            edit = edits.insert_on_wire(self.document.design, wire, steps, self.document.graph_key,
                                         position=(round(spot.x() - W / 2), round(spot.y() - H / 2)), name=name)
         except (edits.EditError, SettingError) as e:
             self.message.emit(str(e))
             return None
         if before is not None:
             edit = edits.Edit(before.label, before.ops + edit.ops)
-        return self._added(edit, edits.added_blocks(edit)[-1])
+        return self._added(edit, edits.added_blocks(edit)[-1], flat)
+
+    def _map_for_flat_input(self, kind: str, source: tuple[str, int] | None):
+        """The feature map ``source`` (block id, port) carries when ``kind`` takes only a flat vector
+        (a Linear): a Flatten then goes before the new block in the same edit. None otherwise."""
+        spec = KINDS.get(kind)
+        if source is None or spec is None or not spec.flat_input:
+            return None
+        r = self.document.results().get(source[0])
+        shape = r.outs[source[1]] if r is not None and source[1] < len(r.outs) else None
+        return shape if shape is not None and shape.is_map else None
 
     def add_kind(self, kind: str, centre: QPointF, source: tuple[str, int] | None = None,
                  from_selection: bool = True, settings: dict | None = None, before: edits.Edit | None = None,
@@ -642,24 +685,37 @@ class CanvasView(QGraphicsView):
         takes_input = kind == "Motif" or spec.input_count(spec.defaults) > 0
         if source is None and from_selection and takes_input:
             source = self._selected_source()
-        design = self.document.design
+        design, key = self.document.design, self.document.graph_key
+        source = source if takes_input else None
+        flat = self._map_for_flat_input(kind, source)
+        at = (round(centre.x() - W / 2), round(centre.y() - H / 2))
         try:
-            edit, bid = edits.add_block(design, kind, settings or {}, graph=self.document.graph_key, name=name,
-                                        position=(round(centre.x() - W / 2), round(centre.y() - H / 2)),
-                                        inputs=[source] if source is not None and takes_input else ())
+            lead = ()
+            if flat:  # a Linear after a feature map: a Flatten first, where the Linear would have gone
+                first, fid = edits.add_block(design, "Flatten", {}, graph=key, position=at, inputs=[source])
+                lead, source = first.ops, (fid, 0)
+                at = edits.clear_spot((b.position for b in self.document.graph.blocks.values()), (at[0] + COLUMN, at[1]))
+            edit, bid = edits.add_block(design, kind, settings or {}, graph=key, name=name, position=at,
+                                        inputs=[source] if source is not None else ())
         except (edits.EditError, SettingError) as e:
             self.message.emit(str(e))
             return None
+        edit = edits.Edit(edit.label, lead + edit.ops)
         if into is not None:
-            edit = edits.Edit(edit.label, edit.ops + (edits.AddWire(self.document.graph_key, Wire(bid, 0, into, 0)),))
+            edit = edits.Edit(edit.label, edit.ops + (edits.AddWire(key, Wire(bid, 0, into, 0)),))
         if before is not None:
             edit = edits.Edit(before.label, before.ops + edit.ops)
-        return self._added(edit, bid)
+        return self._added(edit, bid, flat)
 
-    def _added(self, edit: edits.Edit, bid: str) -> str | None:
-        """Apply an edit that adds block ``bid``; select it, bring it into view, keys back to the canvas."""
+    def _added(self, edit: edits.Edit, bid: str, flattened=None) -> str | None:
+        """Apply an edit that adds block ``bid``; select it, bring it into view, keys back to the
+        canvas. ``flattened``: the feature map a Flatten added before it turns into a vector (said)."""
         if not self.canvas_scene.apply(edit):
             return None
+        if flattened is not None:
+            name = self.document.graph.blocks[bid].name
+            self.message.emit(f"Flatten added before {name} ({flattened} → {flattened.elements:,}): "
+                              f"a Linear takes a flat vector")
         self.document.select([bid])
         if bid in self.canvas_scene.blocks:
             self.ensureVisible(self._card_item(bid).sceneBoundingRect(), 60, 40)
@@ -873,12 +929,33 @@ class CanvasView(QGraphicsView):
                            (float(size.width()), float(size.height())))
 
     def tidy(self) -> None:
-        """Lay the graph shown out in stage rows with Tidy, as one undoable edit, and show it all."""
+        """Lay the graph shown out in stage rows with Tidy, as one undoable edit, and show it all.
+        Python's cycle collector waits meanwhile: the step makes tens of thousands of short-lived
+        tuples (freed as usual), and a collection in the middle would walk the whole heap."""
         design = self.document.graph
-        changed = {b: p for b, p in self.tidy_layout().positions.items() if tuple(design.blocks[b].position) != p}
-        if changed:
-            self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
-        self.fit_all()
+        with collector_paused():
+            changed = {b: p for b, p in self.tidy_layout().positions.items() if tuple(design.blocks[b].position) != p}
+            if changed:
+                self.canvas_scene.apply(edits.Edit("Tidy", edits.move(design, changed).ops))
+            self.fit_all()
+
+    def is_tidy(self, fold: bool | None = None) -> bool:
+        """Whether the graph shown stands as Tidy lays it out (with Fold ``fold``, else as shown)."""
+        graph = self.document.graph
+        return all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(fold).positions.items())
+
+    def apply_mend(self, mend) -> bool:
+        """Apply a mend as one undo step; a design laid out by Tidy is tidied again in that step
+        (the blocks a mend adds would otherwise land beside the rows, their wires crossing others)."""
+        was_tidy = self.is_tidy()
+        if not self.canvas_scene.apply(mend.edit):
+            return False
+        if was_tidy:
+            graph = self.document.graph
+            moved = {b: p for b, p in self.tidy_layout().positions.items() if tuple(graph.blocks[b].position) != p}
+            if moved:
+                self.document.apply_in_last_step(edits.Edit("Tidy", edits.move(graph, moved).ops))
+        return True
 
     def set_fold(self, on: bool) -> None:
         """Fold norms and activations into their convolution's card (on) or show each as a card. A
@@ -888,7 +965,7 @@ class CanvasView(QGraphicsView):
         if on == scene.fold:
             return
         graph = self.document.graph
-        was_tidy = all(tuple(graph.blocks[b].position) == p for b, p in self.tidy_layout(scene.fold).positions.items())
+        was_tidy = self.is_tidy(scene.fold)
         hidden = not on and any(tuple(graph.blocks[c].position) == tuple(graph.blocks[h].position)
                                 for c, h in scene.folds.items())
         scene.set_fold(on)
@@ -982,7 +1059,9 @@ class CanvasView(QGraphicsView):
 
     def save_png(self, path, scale: float = 2.0) -> bool:
         """Write a picture of the whole canvas (all blocks) to ``path`` as PNG."""
+        self.canvas_scene.label_region = None  # every wire's label, not only those in view
         self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
+        self.canvas_scene.place_labels()
         rect = self._picture_rect()
         image = QImage(QSize(max(int(rect.width() * scale), 1), max(int(rect.height() * scale), 1)),
                        QImage.Format.Format_ARGB32_Premultiplied)
@@ -998,7 +1077,9 @@ class CanvasView(QGraphicsView):
         """Write a picture of the whole canvas to ``path`` as SVG."""
         from PySide6.QtSvg import QSvgGenerator
 
+        self.canvas_scene.label_region = None  # every wire's label, not only those in view
         self.canvas_scene.set_overview(False)  # the items paint themselves, whatever the view's zoom
+        self.canvas_scene.place_labels()
         rect = self._picture_rect()
         gen = QSvgGenerator()
         gen.setFileName(str(path))

@@ -17,6 +17,7 @@ from PySide6.QtGui import QPainterPath, QPainterPathStroker, QPen
 from PySide6.QtWidgets import QGraphicsItem, QStyle
 
 from layerloom.core.graph import Wire
+from layerloom.core.wire_labels import curve_points
 from layerloom.gui import theme
 from layerloom.gui.canvas.block_item import advance, font, metrics
 
@@ -24,6 +25,7 @@ HIT_WIDTH = 10.0  # a thin wire is still easy to click
 SELECTED = QStyle.StateFlag.State_Selected
 
 
+@lru_cache(maxsize=256)
 def stroke_width(channels: int | None) -> float:
     """Stroke width for a wire carrying ``channels`` channels (or features): log scale, clamped."""
     if not channels:
@@ -74,6 +76,18 @@ def routed(points) -> QPainterPath:
     return p
 
 
+def polylines_path(polylines) -> QPainterPath:
+    """One path through every polyline (each a sequence of ``(x, y)`` scene points): far out, all
+    wires are one path drawn in one call, with no Qt object made per wire or leg."""
+    path = QPainterPath()
+    move, line = path.moveTo, path.lineTo
+    for pts in polylines:
+        move(*pts[0])
+        for p in pts[1:]:
+            line(*p)
+    return path
+
+
 class WireItem(QGraphicsItem):
     """One wire; lives in scene coordinates (its own position stays at the origin)."""
 
@@ -88,10 +102,14 @@ class WireItem(QGraphicsItem):
         self._ends: tuple = ()  # (a, b) of a curve, or the corner points of a route
         self._routed = False
         self._key: tuple = ()  # what the geometry was last made from
-        self._lines: list[QLineF] = []
+        self._lines: list[QLineF] | None = []
         self._hit: QPainterPath | None = QPainterPath()
         self._bounds = QRectF()
-        self._label_rect = QRectF()
+        self._label_box: tuple | None = None  # left, top, width, height of the label as placed
+        self._label_rect: QRectF | None = QRectF()
+        self.label_size = (0.0, 0.0)
+        self._wire_box = (0.0, 0.0, 0.0, 0.0)
+        self._polyline: tuple | None = None
         self.setFlags(QGraphicsItem.GraphicsItemFlag.ItemIsSelectable)
         self.setZValue(-1.0)
 
@@ -99,7 +117,8 @@ class WireItem(QGraphicsItem):
         """Draw the wire from scene point ``a`` to ``b`` (``(x, y)``) as a curve, or through corner
         ``points`` when given; width and label follow :attr:`carried` (no label when not
         ``labelled``: another wire from the same output already says the shape). Returns whether
-        anything changed (nothing is redone for a wire whose ends, route, shape and label stay)."""
+        anything changed (nothing is redone for a wire whose ends, route, shape and label stay).
+        Only plain numbers are kept here; Qt objects (path, lines, label box) are made on first use."""
         shape = self.carried
         key = (points or (a, b), shape, labelled)
         if key == self._key:
@@ -111,29 +130,66 @@ class WireItem(QGraphicsItem):
         self._routed = bool(points)
         if points:
             self._ends = points
-            self._lines = [QLineF(*p, *q) for p, q in zip(points, points[1:])]
             xs, ys = [p[0] for p in points], [p[1] for p in points]
             left, top, right, bottom = min(xs), min(ys), max(xs), max(ys)  # rounded corners stay inside
-            (mx, my), (nx, ny) = points[2], points[3]  # a routed wire: the middle of its lane
         else:
             self._ends = (a, b)
-            self._lines = [QLineF(*a, *b)]
-            (mx, my), (nx, ny) = a, b  # the curve is symmetric about the middle of its ends
-            reach = curve_reach(a[0], b[0])  # and stays within its control points' box
+            reach = curve_reach(a[0], b[0])  # a curve stays within its control points' box
             left, right = min(a[0], b[0], b[0] - reach), max(a[0], b[0], a[0] + reach)
             top, bottom = min(a[1], b[1]), max(a[1], b[1])
-        self._path = None  # built on first use (a close-up paint or a hit test)
-        self._hit = None  # stroked on first use (hit tests), then kept until the path changes
-        bounds = QRectF(left - width, top - width, right - left + 2 * width, bottom - top + 2 * width)
-        self.label, w, h = shape_label(shape) if labelled else NO_LABEL
-        if self.label:
-            x, y = (mx + nx) / 2, (my + ny) / 2
-            self._label_rect = QRectF(x - w / 2, y - width / 2 - h - 1.0, w, h)
-            bounds = bounds.united(self._label_rect)
-        else:
-            self._label_rect = QRectF()
-        self._bounds = bounds
+        self._path = self._hit = self._lines = self._label_rect = self._polyline = None  # made again on first use
+        self._wire_box = (left - width, top - width, right + width, bottom + width)
+        self.label, *size = shape_label(shape) if labelled else NO_LABEL
+        self.label_size = tuple(size)
+        self._label_box = None  # placed by the scene (place_label), clear of cards, wires and labels
+        self._bounds = QRectF(left - width, top - width, right - left + 2 * width, bottom - top + 2 * width)
         return True
+
+    def polyline(self) -> tuple:
+        """The wire as straight pieces: its route's corners, or points along its curve."""
+        if self._polyline is None:
+            pts = self._ends
+            self._polyline = pts if self._routed else curve_points(pts[0], pts[1], curve_reach(pts[0][0], pts[1][0]))
+        return self._polyline
+
+    def place_label(self, corner: tuple[float, float] | None) -> None:
+        """Show the label with its top-left at scene point ``corner`` (None: not shown)."""
+        box = None if corner is None or not self.label else (*corner, *self.label_size)
+        if box == self._label_box:
+            return
+        self.prepareGeometryChange()
+        self._label_box, self._label_rect = box, None
+        left, top, right, bottom = self._wire_box
+        if box is not None:
+            x, y, w, h = box
+            left, top, right, bottom = min(left, x), min(top, y), max(right, x + w), max(bottom, y + h)
+        self._bounds = QRectF(left, top, right - left, bottom - top)
+        self.update()
+
+    @property
+    def wire_box(self) -> tuple:
+        """``(left, top, right, bottom)`` the wire's stroke covers (its label aside)."""
+        return self._wire_box
+
+    @property
+    def label_box(self) -> tuple | None:
+        """``(left, top, right, bottom)`` of the label as placed, or None when it is not shown."""
+        if self._label_box is None:
+            return None
+        x, y, w, h = self._label_box
+        return (x, y, x + w, y + h)
+
+    @property
+    def points(self) -> tuple:
+        """The wire's polyline in scene coordinates: its two ends (drawn as a curve) or its route's corners."""
+        return self._ends
+
+    @property
+    def label_rect(self) -> QRectF:
+        """Where the shape label is drawn (empty when it is not shown)."""
+        if self._label_rect is None:
+            self._label_rect = QRectF(*self._label_box) if self._label_box is not None else QRectF()
+        return self._label_rect
 
     def path(self) -> QPainterPath:
         """The wire's drawn path (built from its ends or corner points on first use)."""
@@ -143,7 +199,10 @@ class WireItem(QGraphicsItem):
 
     @property
     def lines(self) -> list[QLineF]:
-        """Straight lines along the wire (what is drawn far out): its chord, or its route's legs."""
+        """Straight lines along the wire (what an item draws far out): its chord, or its route's legs."""
+        if self._lines is None:
+            pts = self._ends
+            self._lines = [QLineF(*p, *q) for p, q in zip(pts, pts[1:])]
         return self._lines
 
     def boundingRect(self) -> QRectF:
@@ -160,7 +219,7 @@ class WireItem(QGraphicsItem):
         lod = option.levelOfDetailFromTransform(painter.worldTransform())
         if lod < theme.SHAPE_MIN_DETAIL:  # far out: a hairline between the ends
             painter.setPen(theme.WIRE)
-            painter.drawLines(self._lines)
+            painter.drawLines(self.lines)
             return
         selected = bool(option.state & SELECTED)
         colour = theme.ACCENT if selected else (theme.WIRE if self.known else theme.WIRE_UNKNOWN)
@@ -169,14 +228,14 @@ class WireItem(QGraphicsItem):
         painter.setPen(pen)
         painter.setBrush(Qt.BrushStyle.NoBrush)
         painter.drawPath(self.path())
-        if not self.label or lod < theme.TEXT_MIN_DETAIL:
+        if self._label_box is None or lod < theme.TEXT_MIN_DETAIL:
             return
         painter.setPen(Qt.PenStyle.NoPen)
         painter.setBrush(theme.LABEL_BACK)
-        painter.drawRoundedRect(self._label_rect, 3.0, 3.0)
+        painter.drawRoundedRect(self.label_rect, 3.0, 3.0)
         painter.setPen(theme.ACCENT if selected else theme.TEXT_MUTED)
         painter.setFont(font("figure"))
-        painter.drawText(self._label_rect, Qt.AlignmentFlag.AlignCenter, self.label)
+        painter.drawText(self.label_rect, Qt.AlignmentFlag.AlignCenter, self.label)
 
 
 class DraftWire(QGraphicsItem):
