@@ -95,8 +95,8 @@ class DepthLedger(QWidget):
         menu.addAction("Export ledger as CSV…", self.export_csv)
         more.setMenu(menu)
         self.optimizer_box = QComboBox()
-        for key, label in OPTIMIZER_LABELS.items():
-            self.optimizer_box.addItem(label, key)
+        for key, text in OPTIMIZER_LABELS.items():
+            self.optimizer_box.addItem(text, key)
         self.mixed_box = QCheckBox("mixed precision")
         self.mixed_box.setToolTip("fp16 activations, fp32 master weights, gradients and optimizer state")
         top = QHBoxLayout()
