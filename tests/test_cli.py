@@ -153,13 +153,16 @@ def test_ledger_json_of_a_design_with_errors_is_marked_incomplete_and_exits_1():
     assert data["findings"][0]["numbers"] == [64, 128]
     clean = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json").stdout)
     assert clean["complete"] is True and clean["findings"] == []
-    assert run("ledger", CLASH).returncode == 1 and run("ledger", CLASH, "--csv").returncode == 1
+    partial = run("ledger", CLASH)
+    assert partial.returncode == 1 and run("ledger", CLASH, "--csv").returncode == 1
+    said = partial.stderr + partial.stdout
+    assert f"1 error finding: blocks after it are not counted; see `layerloom check {CLASH}`" in said
 
 
 def test_ledger_warns_when_the_baseline_has_errors():
     r = run("ledger", "samples/fastener_sorter.loom", "--baseline", CLASH)
     assert r.returncode == 0
-    assert f"the baseline {CLASH} has 1 error finding(s), so its totals are partial" in r.stdout
+    assert f"the baseline {CLASH} has 1 error finding, so its totals are partial" in r.stdout
     data = json.loads(run("ledger", "samples/fastener_sorter.loom", "--json", "--baseline", CLASH).stdout)
     assert data["baseline"]["complete"] is False
     assert "partial" not in run("ledger", "samples/fastener_sorter.loom", "--baseline",
@@ -187,3 +190,16 @@ def test_a_name_with_a_line_break_stays_on_one_line_in_errors(tmp_path):
     bad.write_text(json.dumps(data))
     err = _one_line_error(run("check", str(bad)))
     assert "'stem\\nsecond line'" in err
+
+
+def test_check_prints_a_direction_override_in_a_name_as_text(tmp_path):
+    """A name holding an unclosed right-to-left override would turn the rest of its line around."""
+    from layerloom import Design
+    from layerloom.core import fileformat
+
+    d = Design("bidi")
+    x = d.input(64, 8, 8, name="in")
+    d.add("Output", d.add("Add", d.add("Pointwise", x, out_channels=128), x, name="\u202eevil"))
+    fileformat.save(d, tmp_path / "bidi.loom")
+    r = run("check", str(tmp_path / "bidi.loom"))
+    assert r.returncode == 1 and "\\u202eevil adds 64 channels to 128 channels" in r.stdout and "\u202e" not in r.stdout

@@ -86,3 +86,13 @@ def test_pasted_text_with_an_infinite_position_or_invalid_text_is_refused():
     block["position"] = [3e9, 0]
     with pytest.raises(ClipboardError, match=r"copied block 1 \(r\): position .* beyond"):
         paste_edit(d, {"format": "layerloom-blocks", "version": 1, "blocks": [block], "wires": []})
+
+
+@pytest.mark.parametrize("port", [-1, 64])
+def test_pasted_text_with_a_port_no_file_can_hold_is_refused(port):
+    """A pasted wire to input -1 or 64 would be kept, and the saved file could not be read again."""
+    d, (x, a, *_rest) = bottleneck()
+    data = copy_blocks(d, [x, a])
+    data["wires"][0][3] = port
+    with pytest.raises(ClipboardError, match=rf"copied wire 1: .* to input {port}: ports are numbered 0 to 63"):
+        paste_edit(d, from_text(to_text(data)))

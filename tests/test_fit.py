@@ -174,3 +174,17 @@ def test_fit_command_writes_the_chosen_candidate(tmp_path):
     bad = subprocess.run([sys.executable, "-m", "layerloom", "fit", "samples/fastener_sorter.loom", "--macs", "ten"],
                          capture_output=True, text=True, cwd=ROOT, env={"PYTHONPATH": str(ROOT / "src")})
     assert bad.returncode == 2 and "--macs 'ten'" in bad.stderr and "Traceback" not in bad.stderr
+
+
+@pytest.mark.parametrize("typed, limit", [("2000µs", 2.0), ("2000μs", 2.0), ("2000us", 2.0), ("2MS", 2.0),
+                                          ("0.002s", 2.0), ("2", 2.0)])
+def test_a_latency_limit_reads_in_any_case_and_with_either_micro_sign(typed, limit):
+    """'µs' upper-cased is 'ΜS' (a Greek capital), so the micro sign was refused though listed."""
+    from types import SimpleNamespace
+
+    from layerloom.fit_command import budget_from
+
+    args = SimpleNamespace(macs="3m", weights=None, memory="4mib", latency=typed)
+    assert budget_from(args, Design()) == {"macs": 3_000_000, "memory": 4 << 20, "latency_ms": pytest.approx(limit)}
+    with pytest.raises(ValueError, match=r"units s, ms, us, µs$"):
+        budget_from(SimpleNamespace(macs=None, weights=None, memory=None, latency="2 parsecs"), Design())

@@ -128,3 +128,30 @@ def test_design_fields_are_checked_edits_and_each_element_type_has_its_size(dtyp
     for name, bad, why in (("dtype", "fp8", "not one of"), ("batch", 0, "whole number"), ("name", " ", "needs a name")):
         with pytest.raises(edits.EditError, match=why):
             d.field_edit(name, bad)
+
+
+@pytest.mark.parametrize("src_port, dst_port", [(0, -1), (-1, 0), (0, 64), (64, 0)])
+def test_a_wire_to_a_port_no_file_can_hold_is_refused(src_port, dst_port):
+    """Ports are numbered 0 to 63 in a file (resources/loom.schema.json); a wire to input -1 used to
+    be accepted (the editor wired into an Input block's 'last input'), and the saved file then
+    could not be opened again."""
+    d = Design()
+    x = d.input(3, 8, 8, name="frame")
+    y = d.add("ReLU", x, name="act")
+    with pytest.raises(edits.EditError, match=rf"frame to act from output {src_port} to input {dst_port}: "
+                                              r"ports are numbered 0 to 63"):
+        edits.replace_wire(d, Wire(x, src_port, y, dst_port))
+
+
+def test_a_batch_beyond_what_a_file_holds_is_refused():
+    """The schema holds a batch up to 65,536; a larger one was taken (Design settings' Batch field)
+    and the saved file could then not be opened again."""
+    from layerloom.core import fileformat
+
+    d = Design()
+    d.add("Output", d.input(3, 8, 8))
+    d.apply(d.field_edit("batch", 65_536))
+    assert fileformat.parse(fileformat.dumps(d)).batch == 65_536
+    for bad in (65_537, 10 ** 20, 0):
+        with pytest.raises(edits.EditError, match=rf"batch size must be a whole number from 1 to 65,536, not {bad}"):
+            d.field_edit("batch", bad)

@@ -9,6 +9,7 @@ import pytest
 from layerloom import Design
 from layerloom.core import edits
 from layerloom.core.fileformat import dumps, parse
+from layerloom.core.graph import Wire
 from layerloom.core.inference import GraphInference
 from layerloom.core.settings import SettingError
 
@@ -137,8 +138,6 @@ def test_closing_a_loop_names_the_same_faults_as_a_fresh_load():
     """A wire from a ReLU back into the Input closes input → pointwise → output → ReLU → input. The
     blocks on the loop lose their shapes; a result kept from before the loop must not make the
     ReLU report a wire from an Output that a fresh load of the same file does not report."""
-    from layerloom.core.graph import Wire
-
     d = Design()
     x = d.input(2, 4, 4)
     relu = d.add("ReLU", d.add("Output", d.add("Pointwise", x, out_channels=2)))
@@ -148,3 +147,17 @@ def test_closing_a_loop_names_the_same_faults_as_a_fresh_load():
     found = [(f.code, f.block, f.message) for f in d.analysis().all_findings()]
     assert found == [(f.code, f.block, f.message) for f in fresh.analysis().all_findings()]
     assert [c for c, b, _ in found if b == relu] == ["graph.cycle"]
+
+
+def test_closing_a_loop_through_an_output_gives_the_findings_of_a_fresh_load():
+    """Found by the editor's property test (tests/gui/test_properties_editor.py): blocks that join a
+    loop kept their results from before it, so a block on the loop read its source's stale shapes
+    and named a fault a fresh load of the same file does not name."""
+    d = Design("loop")
+    x = d.input(3, 8, 8)
+    norm = d.add("BatchNorm2d", x)
+    out = d.add("Output", d.add("ReLU", norm))
+    d.findings()  # results exist before the edit, so what follows is incremental
+    d.apply(edits.replace_wire(d, Wire(out, 0, norm, 0)))
+    assert d.findings() == parse(dumps(d)).findings()
+    assert "graph.cycle" in {f.code for f in d.findings()}

@@ -14,7 +14,7 @@ import textwrap
 
 from layerloom import fit_command
 from layerloom.core import units
-from layerloom.core.design import DTYPES, Design
+from layerloom.core.design import DTYPES, MAX_BATCH, Design
 from layerloom.core.fileformat import LoomFileError, load
 from layerloom.core.findings import ERROR
 from layerloom.core.json_text import layout
@@ -30,7 +30,6 @@ from layerloom import picture
 # a candidate fix): a process's start-up is most of the time of `check` or `ledger` on a file.
 
 COMMANDS = ("check", "ledger", "export", "import", "measure", "fit", "picture")
-MAX_BATCH = 65_536  # as the file format's schema
 
 
 class UsageError(Exception):
@@ -177,11 +176,15 @@ def _ledger(args) -> int:
 def _warn_partial(args, errors: list, base_errors: list, out) -> None:
     """Say that totals are partial: of the design, and of the baseline from ``--baseline``."""
     if errors:
-        print(f"{len(errors)} error finding(s): blocks after them are not counted; see `layerloom check {args.file}`",
-              file=out)
+        them = "them" if len(errors) > 1 else "it"
+        print(f"{_findings(errors)}: blocks after {them} are not counted; see `layerloom check {args.file}`", file=out)
     if base_errors:
-        print(f"warning: the baseline {args.baseline} has {len(base_errors)} error finding(s), so its totals are "
+        print(f"warning: the baseline {args.baseline} has {_findings(base_errors)}, so its totals are "
               f"partial; see `layerloom check {args.baseline}`", file=out)
+
+
+def _findings(errors: list) -> str:
+    return f"{len(errors)} error finding{'s' if len(errors) > 1 else ''}"
 
 
 def _pixels(pair) -> list | None:

@@ -10,16 +10,18 @@ from layerloom.core.fileformat import save
 from layerloom.core.fit import FAMILIES, fit, pareto, scaled_edit
 from layerloom.core.targets import CAUTION, PRESETS
 
+# units as written in messages; typed in any case ("3m", "4mib"; "µs" with the micro sign or the Greek mu)
 _SCALE = {"": 1, "K": 1e3, "M": 1e6, "G": 1e9, "T": 1e12}
-_BYTES = {"": 1, "B": 1, "KB": 1e3, "MB": 1e6, "GB": 1e9, "KIB": 1 << 10, "MIB": 1 << 20, "GIB": 1 << 30}
-_SECONDS = {"S": 1.0, "MS": 1e-3, "US": 1e-6, "µS": 1e-6}
+_BYTES = {"": 1, "B": 1, "KB": 1e3, "MB": 1e6, "GB": 1e9, "KiB": 1 << 10, "MiB": 1 << 20, "GiB": 1 << 30}
+_SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
 
 
 def _quantity(text: str, suffixes: dict, what: str) -> float:
-    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?)\s*([A-Za-zµ]*)\s*", text)
-    if not m or m.group(2).upper() not in suffixes:
+    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?)\s*([A-Za-zµμ]*)\s*", text)
+    by_case = {unit.casefold(): factor for unit, factor in suffixes.items()}
+    if not m or m.group(2).casefold() not in by_case:
         raise ValueError(f"{what} {text!r} is not a number with one of the units {', '.join(s for s in suffixes if s)}")
-    value = float(m.group(1)) * suffixes[m.group(2).upper()]
+    value = float(m.group(1)) * by_case[m.group(2).casefold()]
     if value <= 0:
         raise ValueError(f"{what} must be above 0, not {text!r}")
     return value

@@ -52,7 +52,7 @@ def test_design_settings_round_trip_set_save_reopen(qtbot, tmp_path):
     assert ds.inputs.text() == "input: 3×224×224 (1.15 MiB for batch 8 at int8)"  # 150,528 × 8 × 1 byte
     shoot(window, "design_settings_1280")
     type_into(qtbot, ds.batch_edit, "0")
-    assert d.batch == 8 and "batch size must be a whole number ≥ 1" in panel.message.text()
+    assert d.batch == 8 and "batch size must be a whole number from 1 to 65,536" in panel.message.text()
     assert ds.batch_edit.text() == "8"
     doc.undo_stack.undo()  # the notes
     assert ds.notes_edit.toPlainText() == ""

@@ -100,8 +100,13 @@ def paste_edit(design, data: dict, offset=(40.0, 40.0), graph: str = "") -> tupl
     for i, w in enumerate(wires):
         try:
             src, sp, dst, dp = w
-            ops.append(edits.AddWire(graph, Wire(fresh[str(src)], int(sp), fresh[str(dst)], int(dp))))
+            wire = Wire(fresh[str(src)], int(sp), fresh[str(dst)], int(dp))
         except (KeyError, TypeError, ValueError):
             raise ClipboardError(f"copied wire {i + 1} ({quote(w)}) does not join two copied blocks") from None
+        try:
+            edits.check_ports(wire, f"copied block {quote(src)} to {quote(dst)}")
+        except edits.EditError as e:
+            raise ClipboardError(f"copied wire {i + 1}: {e}") from None
+        ops.append(edits.AddWire(graph, wire))
     count = len(fresh)
     return edits.Edit(f"Paste {count} block{'s' if count != 1 else ''}", tuple(ops)), list(fresh.values())

@@ -25,6 +25,7 @@ from layerloom.core.graph import Graph
 from layerloom.core.values import quote
 
 DTYPES = {"fp32": 4, "fp16": 2, "bf16": 2, "int8": 1}
+MAX_BATCH = 65_536  # the largest batch a file holds (resources/loom.schema.json)
 """Element types for memory figures, with bytes per element."""
 
 
@@ -171,8 +172,8 @@ class Design(Graph):
             raise edits.EditError(f"a design has no field {quote(name)}")
         if name == "dtype" and value not in DTYPES:
             raise edits.EditError(f"element type {quote(value)} is not one of {', '.join(DTYPES)}")
-        if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or value < 1):
-            raise edits.EditError(f"batch size must be a whole number ≥ 1, not {quote(value)}")
+        if name == "batch" and (not isinstance(value, int) or isinstance(value, bool) or not 1 <= value <= MAX_BATCH):
+            raise edits.EditError(f"batch size must be a whole number from 1 to {MAX_BATCH:,}, not {quote(value)}")
         if name == "name" and (not isinstance(value, str) or not value.strip()):
             raise edits.EditError("a design needs a name")
         return edits.Edit(f"Set {name}", (edits.SetField(name, value),))

@@ -189,10 +189,22 @@ def add_block(design, kind: str, settings: dict | None = None, *, name: str | No
     return Edit(f"Add {kind}", tuple(ops)), bid
 
 
+PORT_LIMIT = 63  # the highest port index a file holds (resources/loom.schema.json)
+
+
+def check_ports(wire: Wire, ends: str) -> None:
+    """EditError unless both port indexes of ``wire`` are ones a file can hold (0 to 63); ``ends``
+    names the blocks wired, for the message."""
+    if not all(type(p) is int and 0 <= p <= PORT_LIMIT for p in (wire.src_port, wire.dst_port)):
+        raise EditError(f"cannot wire {ends} from output {quote(wire.src_port)} to input {quote(wire.dst_port)}: "
+                        f"ports are numbered 0 to {PORT_LIMIT}")
+
+
 def connect(g: Graph, wire: Wire) -> Edit:
     for bid in (wire.src, wire.dst):
         if bid not in g.blocks:
             raise EditError(f"cannot wire: there is no block {quote(bid)}")
+    check_ports(wire, f"{g.blocks[wire.src].name} to {g.blocks[wire.dst].name}")
     if wire in g.wires:
         raise EditError(f"{g.blocks[wire.src].name} is already wired to {g.blocks[wire.dst].name}")
     return Edit("Wire", (AddWire(g.key, wire),))

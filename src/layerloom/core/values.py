@@ -99,7 +99,13 @@ def label(name: str, limit: int = QUOTE_LIMIT) -> str:
     return name if len(name) <= limit and name.isprintable() else quote(name, limit)
 
 
+_DIRECTION = re.compile("[\u202a-\u202e\u2066-\u2069]")  # embeddings, overrides, isolates
+
+
 def one_line(message: str, limit: int = 2000) -> str:
-    """A message on one line: line breaks shown as ``⏎``, shortened to ``limit`` characters."""
+    """A message on one line: line breaks shown as ``⏎``, direction controls as ``\\u202e`` (a name
+    holding an unclosed right-to-left override would turn the rest of the message around),
+    shortened to ``limit`` characters."""
     message = re.sub(r"\r\n|[\r\n\v\f\x1c-\x1e\x85\u2028\u2029]", "⏎", message)
+    message = _DIRECTION.sub(lambda m: f"\\u{ord(m.group()):04x}", message)
     return message if len(message) <= limit else message[:limit - 1] + "…"

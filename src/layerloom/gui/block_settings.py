@@ -29,10 +29,12 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QFormLayout, QFrame, QHBoxL
 from layerloom.core import edits, motif_ops, units
 from layerloom.core.kinds import KINDS
 from layerloom.core.settings import Setting, SettingError
+from layerloom.core.values import one_line
 from layerloom.gui import theme
 from layerloom.gui.design_settings import DesignSettings
 from layerloom.gui.document import Document
 from layerloom.gui.files import Prompts
+from layerloom.gui.text_fit import WrappedLabel, breakable
 
 _SPLIT = re.compile(r"\s*[×xX*,\s]\s*")
 WHOLE_NUMBER_TYPES = ("int", "pair", "padding")  # settings that can hold one whole number, so can be parameters
@@ -89,6 +91,9 @@ class Field:
         elif t == "choice":
             self.widget = QComboBox()
             self.widget.addItems(list(setting.choices))
+            # as wide as the panel lets it be, not as its longest item (a motif's name may be any length)
+            self.widget.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            self.widget.setMinimumContentsLength(8)
             self.widget.activated.connect(lambda i: commit(self, self.widget.itemText(i)))
         else:
             self.widget = QLineEdit()
@@ -164,16 +169,14 @@ class BlockSettings(QWidget):
         self._kind_shown: tuple | None = None
         self.ask_name = Prompts(self).ask_name  # (title, label, suggested) → a name or None; the window sets its own
 
-        self.heading = QLabel()
+        self.heading = WrappedLabel()
         self.heading.setObjectName("panel_heading")
-        self.heading.setWordWrap(True)
         self.name_edit = QLineEdit()
         self.name_edit.setObjectName("block_name")
         self.name_edit.editingFinished.connect(self._commit_name)
         self.name_edit.installEventFilter(self)
-        self.message = QLabel()  # one line kept for refusals, so no field moves when one is said
+        self.message = WrappedLabel()  # two lines kept for refusals, so no field moves when one is said
         self.message.setObjectName("field_message")
-        self.message.setWordWrap(True)
         self.message.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
         self.message.setFixedHeight(2 * self.message.fontMetrics().lineSpacing() + 4)
         self.name_message = self.message
@@ -462,7 +465,8 @@ def _muted(text: str) -> str:
 
 
 def _escape(text: str) -> str:
-    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    """``text`` for the facts' rich text: one line that may break at long runs, markup escaped."""
+    return breakable(one_line(text)).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 def _table(rows: list[tuple[str, str]]) -> str:

@@ -28,6 +28,7 @@ from layerloom.core.ledger import Ledger, floats
 from layerloom.core.ledger_csv import ledger_csv
 from layerloom.core.targets import CAUTION
 from layerloom.core.training_memory import training_curve, training_memory, training_text
+from layerloom.core.values import label
 from layerloom.gui import theme
 
 METRICS = (  # key, menu label, axis unit formatter, budget key, baseline column
@@ -94,8 +95,8 @@ class DepthLedger(QWidget):
         menu.addAction("Export ledger as CSV…", self.export_csv)
         more.setMenu(menu)
         self.optimizer_box = QComboBox()
-        for key, label in OPTIMIZER_LABELS.items():
-            self.optimizer_box.addItem(label, key)
+        for key, text in OPTIMIZER_LABELS.items():
+            self.optimizer_box.addItem(text, key)
         self.mixed_box = QCheckBox("mixed precision")
         self.mixed_box.setToolTip("fp16 activations, fp32 master weights, gradients and optimizer state")
         top = QHBoxLayout()
@@ -234,7 +235,9 @@ class DepthLedger(QWidget):
         if key == "memory" and cumulative:
             key_text.append("dotted: running peak")
         if self.base_curve.xData is not None and len(self.base_curve.xData):
-            key_text.append(f"dashed: baseline “{design.baseline['name']}”")
+            name = design.baseline["name"]
+            shown = label(name, 40)  # a long or odd name shortened and quoted, so the chart keeps its height
+            key_text.append("dashed: baseline " + (f"“{name}”" if shown == name else shown))
         if show_budget:
             key_text.append("dash-dot: budget" + (", ○ where it is passed" if len(self.crossing.data) else ""))
         if measured:

@@ -11,11 +11,12 @@ from __future__ import annotations
 from math import prod
 
 from PySide6.QtCore import QEvent, Qt, Signal
-from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QPlainTextEdit, QWidget
+from PySide6.QtWidgets import QComboBox, QFormLayout, QLineEdit, QPlainTextEdit, QWidget
 
 from layerloom.core import edits, units
 from layerloom.core.design import DTYPES
 from layerloom.gui.document import Document
+from layerloom.gui.text_fit import WrappedLabel
 
 DTYPE_LABELS = {"fp32": "fp32 · 4 bytes", "fp16": "fp16 · 2 bytes", "bf16": "bf16 · 2 bytes", "int8": "int8 · 1 byte"}
 
@@ -46,9 +47,8 @@ class DesignSettings(QWidget):
         self.notes_edit.setPlaceholderText("What this design is for, what was tried…")
         self.notes_edit.setFixedHeight(72)
         self.notes_edit.setTabChangesFocus(True)
-        self.inputs = QLabel()
+        self.inputs = WrappedLabel()
         self.inputs.setObjectName("design_inputs")
-        self.inputs.setWordWrap(True)
         self.inputs.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
 
         form = QFormLayout(self)

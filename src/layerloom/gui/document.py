@@ -110,7 +110,12 @@ class Document(QObject):
                     len(self.trail))
         if keep < len(self.trail):
             self._go(self.trail[:keep], None, [])
+        kept = [b for b in self.selection if b in self.graph.blocks]
+        gone = kept != self.selection
+        self.selection = kept  # listeners of `changed` never see a selected block that is gone
         self.changed.emit(change)
+        if gone:
+            self.selection_changed.emit(list(kept))
 
     # ----- the graph shown
     @property

@@ -9,16 +9,19 @@ undoable edit. The list always shows the whole design's findings and follows ``d
 from __future__ import annotations
 
 from PySide6.QtCore import Signal
-from PySide6.QtWidgets import (QHBoxLayout, QHeaderView, QLabel, QMenu, QToolButton, QTreeWidget, QTreeWidgetItem,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QHBoxLayout, QHeaderView, QMenu, QToolButton, QTreeWidget, QTreeWidgetItem, QVBoxLayout,
+                               QWidget)
 
 from layerloom.core import edits
 from layerloom.core.findings import Finding
 from layerloom.core.mends import Mend, mends_for
+from layerloom.core.values import one_line
 from layerloom.gui import theme
 from layerloom.gui.document import Document
+from layerloom.gui.text_fit import ElidedLabel
 
 COLUMNS = ("Severity", "Code", "Block", "Message")
+BLOCK_COLUMN_WIDTH = 260  # pixels at most for the block path; a longer one is elided (hover shows it whole)
 
 
 def _key(f: Finding) -> tuple:
@@ -47,8 +50,9 @@ class FindingsList(QWidget):
         self.tree.setUniformRowHeights(True)
         self.tree.setAlternatingRowColors(True)
         header = self.tree.header()
-        for col in range(3):
+        for col in range(2):
             header.setSectionResizeMode(col, QHeaderView.ResizeMode.ResizeToContents)
+        header.setSectionResizeMode(2, QHeaderView.ResizeMode.Interactive)  # sized in refresh, long names elided
         header.setStretchLastSection(True)
         self.tree.currentItemChanged.connect(self._on_current)
         self.tree.itemActivated.connect(lambda item, _col: self._choose(item))
@@ -60,9 +64,9 @@ class FindingsList(QWidget):
         self.mend_menu = QMenu(self.mend_button)
         self.mend_button.setMenu(self.mend_menu)
         self.mend_button.clicked.connect(lambda: self.apply_mend(0))
-        self.mend_label = QLabel()
+        self.mend_label = ElidedLabel()
         self.mend_label.setObjectName("mend_label")
-        self.note = QLabel()
+        self.note = ElidedLabel()
         self.note.setObjectName("field_message")
 
         bar = QHBoxLayout()
@@ -93,12 +97,16 @@ class FindingsList(QWidget):
         self.tree.clear()
         keep = None
         for f in self.findings:
-            item = QTreeWidgetItem([f.severity, f.code, " › ".join(self._where(f)[1]) or "—", f.message])
+            where, message = one_line(" › ".join(self._where(f)[1]) or "—"), one_line(f.message)
+            item = QTreeWidgetItem([f.severity, f.code, where, message])
             item.setForeground(0, theme.SEVERITY_COLOURS[f.severity])
-            item.setToolTip(3, f.message)
+            item.setToolTip(2, where)
+            item.setToolTip(3, message)
             self.tree.addTopLevelItem(item)
             if current is not None and _key(f) == _key(current):
                 keep = item
+        self.tree.resizeColumnToContents(2)
+        self.tree.setColumnWidth(2, min(self.tree.columnWidth(2), BLOCK_COLUMN_WIDTH))  # the message stays in view
         if keep is not None:
             self.tree.setCurrentItem(keep)
         self.tree.blockSignals(False)

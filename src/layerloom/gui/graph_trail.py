@@ -3,13 +3,21 @@ shown inside come from.
 
 It reads ``‹ Back   leaf-grader › stage › bottleneck   shapes as in stage_2``: each step but the last
 is a button that goes back to it; Back goes one step. Hidden while the design itself is shown.
+However deep the way in and however long the names, the trail keeps the window's width: past
+:data:`SHOWN_STEPS` steps the middle ones fold into "…" (their names on hover), a long name is
+shortened on its button, and the motif's name and the note are cut to the room left.
 """
 from __future__ import annotations
 
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QPushButton, QWidget
 
+from layerloom.core.values import label
 from layerloom.gui import theme
 from layerloom.gui.document import Document
+from layerloom.gui.text_fit import ElidedLabel
+
+SHOWN_STEPS = 4  # steps back shown as buttons: the first, "…", then the last ones
+NAME_ROOM = 24  # characters of a name on a step's button
 
 STYLE = f"""
 QWidget#graph_trail {{ background: {theme.CARD.name()}; border-bottom: 1px solid {theme.CARD_EDGE.name()}; }}
@@ -34,9 +42,9 @@ class GraphTrail(QWidget):
         self.back_button.setToolTip("Back to the graph this motif was opened from (Alt+Left)")
         self.back_button.clicked.connect(lambda: self.document.back())
         self.crumbs: list[QPushButton] = []
-        self.here = QLabel()
+        self.here = ElidedLabel()
         self.here.setObjectName("trail_here")
-        self.note = QLabel()
+        self.note = ElidedLabel()
         self.note.setObjectName("trail_note")
         self.row = QHBoxLayout(self)
         self.row.setContentsMargins(6, 2, 10, 2)
@@ -48,8 +56,7 @@ class GraphTrail(QWidget):
         self.row.addLayout(self._steps)
         self.row.addWidget(self.here)
         self.row.addSpacing(16)
-        self.row.addWidget(self.note)
-        self.row.addStretch(1)
+        self.row.addWidget(self.note, 1)
         document.graph_changed.connect(self.refresh)
         document.replaced.connect(self.refresh)
         document.changed.connect(self._on_change)
@@ -68,10 +75,20 @@ class GraphTrail(QWidget):
             w.hide()
             w.deleteLater()
         self.crumbs = []
-        for i, (key, _) in enumerate(trail[:-1]):
-            crumb = QPushButton(key or self.document.design.name)
+        steps = list(enumerate(trail[:-1]))
+        folded = steps[1:len(steps) - SHOWN_STEPS + 1] if len(steps) > SHOWN_STEPS else []
+        for i, (key, _) in steps:
+            if folded and i == folded[0][0]:
+                more = QLabel("… ›")
+                more.setObjectName("trail_sep")
+                more.setToolTip(" › ".join(k for _, (k, _) in folded))
+                self._steps.addWidget(more)
+            if folded and folded[0][0] <= i <= folded[-1][0]:
+                continue
+            name = key or self.document.design.name
+            crumb = QPushButton(name if len(name) <= NAME_ROOM else name[:NAME_ROOM - 1] + "…")
             crumb.setObjectName("crumb")
-            crumb.setToolTip("Show the design" if not key else f"Show motif {key}")
+            crumb.setToolTip("Show the design" if not key else f"Show motif {label(name)}")
             crumb.clicked.connect(lambda checked=False, back=len(trail) - 1 - i: self.document.back(back))
             sep = QLabel("›")
             sep.setObjectName("trail_sep")

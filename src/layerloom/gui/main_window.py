@@ -16,6 +16,7 @@ from PySide6.QtWidgets import (QApplication, QDockWidget, QLabel, QMainWindow, Q
 
 from layerloom.core import units
 from layerloom.core.ledger import Ledger
+from layerloom.core.values import one_line
 from layerloom.gui import theme
 from layerloom.gui.block_settings import BlockSettings
 from layerloom.gui.canvas import CanvasView
@@ -315,8 +316,8 @@ class MainWindow(QMainWindow):
         self.shelf.show_findings()
 
     def say(self, text: str) -> None:
-        """A passing message in the status bar."""
-        self.statusBar().showMessage(text, 6000)
+        """A passing message in the status bar, on one line (a block name may hold a line break)."""
+        self.statusBar().showMessage(one_line(text, 500), 6000)
 
     def _refresh_title(self) -> None:
         self.setWindowTitle(f"{self.files.display_name}[*] — Layerloom")

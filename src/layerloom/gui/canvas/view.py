@@ -834,6 +834,8 @@ class CanvasView(QGraphicsView):
         if target is None or source not in self.document.graph.blocks:
             return
         graph, item = self.document.graph, self.canvas_scene.blocks[target]
+        if not item.state.n_in:
+            return
         taken = {w.dst_port for w in graph.in_wires[target]}
         port = next((p for p in range(item.state.n_in) if p not in taken), item.state.n_in - 1)
         try:
