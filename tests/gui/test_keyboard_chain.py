@@ -58,14 +58,18 @@ class Keyboard:
         self.presses += 1
 
 
-@pytest.mark.parametrize("script, expected_presses", [(WORDS, 60), (SHORTEST, 30)], ids=["words", "shortest"])
-def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, request, script, expected_presses):
+def active_window(qtbot, tmp_path):
+    """A new design's window at 1280×800, active, with its document, canvas and design."""
     window, _ = open_window(qtbot, tmp_path)
     window.resize(1280, 800)
     with qtbot.waitActive(window):
         window.activateWindow()
-    doc, canvas = window.document, window.canvas
-    d = doc.design
+    return window, window.document, window.canvas, window.document.design
+
+
+@pytest.mark.parametrize("script, expected_presses", [(WORDS, 60), (SHORTEST, 30)], ids=["words", "shortest"])
+def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, request, script, expected_presses):
+    window, doc, canvas, d = active_window(qtbot, tmp_path)
     assert [d.blocks[b].kind for b in doc.selection] == ["Input"]  # a new design starts with its Input selected
     assert QApplication.focusWidget() is canvas  # and the keys are on the canvas: no click needed
     keys = Keyboard(qtbot)
@@ -102,12 +106,7 @@ def test_a_12_block_residual_network_from_the_keyboard_alone(qtbot, tmp_path, re
 def test_a_linear_after_a_feature_map_gets_a_flatten_in_the_same_undo_step(qtbot, tmp_path, route):
     """`gap ⏎ fc ⏎` (or fc put on the wire out of the pool): a Flatten goes first, the status bar
     says so, one undo takes both away, and the result matches PyTorch's nn.Flatten + nn.Linear."""
-    window, _ = open_window(qtbot, tmp_path)
-    window.resize(1280, 800)
-    with qtbot.waitActive(window):
-        window.activateWindow()
-    doc, canvas = window.document, window.canvas
-    d = doc.design
+    window, doc, canvas, d = active_window(qtbot, tmp_path)
     keys = Keyboard(qtbot)
     for step in ("conv⏎", "gap⏎") if route == "after the selection" else ("conv⏎", "gap⏎", "out⏎"):
         keys.type(step)
