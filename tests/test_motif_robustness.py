@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from layerloom import Design
-from layerloom.core.edits import EditError
+from layerloom.core.edits import EditError, remove_blocks
 from layerloom.core.fileformat import dumps, parse
 from layerloom.core.findings import ERROR
 from layerloom.core.mends import mends_for
@@ -198,5 +198,9 @@ def test_no_output_is_offered_after_a_use_of_a_motif_without_output_ports():
     d.add("Output", d.add("BatchNorm2d", x))
     edit, inst = make_motif(d, [side], name="unused")
     d.apply(edit)
+    motif = d.graph("unused")
+    (port,) = [b for b, blk in motif.blocks.items() if blk.kind == "Output"]  # its end's port, taken away
+    d.apply(remove_blocks(motif, [port]))
+    assert "Output" not in [blk.kind for blk in motif.blocks.values()]
     f = next(f for f in d.findings() if f.code == "graph.dead_end" and f.block == inst)
     assert mends_for(d, f) == []  # an Output wired from an output it does not have would be an error

@@ -64,6 +64,24 @@ def test_make_motif_keeps_costs_and_undo_restores_exactly():
     assert dumps(d) == before
 
 
+def test_make_motif_of_a_chain_ending_nowhere_gives_its_end_an_output_port():
+    """A selection whose last block feeds nothing yet (a chain being built) still hands its tensor
+    on: the motif gets an Output port for it, so the use has the shape of that block and the motif
+    itself has no "no Output" finding. Shape from Conv2d's size formula (common practice)."""
+    d = Design()
+    x = d.input(16, 32, 32)
+    a = d.add("Conv2d", x, out_channels=32, kernel=3, padding=1, stride=2)
+    b = d.add("ReLU", a)
+    totals, flat_codes = d.ledger().totals, sorted(f.code for f in d.findings())
+    edit, inst = make_motif(d, [a, b], name="stem_unit")
+    d.apply(edit)
+    kinds = [blk.kind for blk in d.motifs["stem_unit"].blocks.values()]
+    assert kinds.count("Output") == 1
+    assert str(d.analysis().shape(inst)) == "32×16×16"  # (32 + 2·1 − 3) // 2 + 1 = 16
+    assert d.ledger().totals._replace(peak_block=None) == totals._replace(peak_block=None)
+    assert sorted(f.code for f in d.findings()) == flat_codes  # the same open end, now at the use
+
+
 def test_make_motif_of_a_branch_point_gives_ports_for_every_crossing():
     d = Design()
     x = d.input(8, 16, 16)

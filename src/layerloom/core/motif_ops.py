@@ -48,6 +48,8 @@ def make_motif(design, block_ids, name: str | None = None, graph: str = "") -> t
     wires_within = [w for w in g.wires if w.src in inside and w.dst in inside]
     sources = list(dict.fromkeys((w.src, w.src_port) for w in wires_in))
     results = list(dict.fromkeys((w.src, w.src_port) for w in wires_out))
+    feeding = {w.src for w in g.wires}
+    results += [(b, 0) for b in chosen if b not in feeding]  # an end of the selection still hands its tensor on
 
     xs = [g.blocks[b].position[0] for b in chosen]
     ys = [g.blocks[b].position[1] for b in chosen]
