@@ -10,7 +10,7 @@ import numpy as np
 from PySide6.QtWidgets import QApplication
 
 from layerloom.core import units
-from layerloom.core.fileformat import dumps, save
+from layerloom.core.fileformat import dumps, load, save
 from layerloom.core.fit import fit
 from layerloom.core.ledger import Ledger
 from layerloom.core.training_memory import training_curve, training_memory
@@ -89,6 +89,16 @@ def test_measure_runs_in_a_worker_can_be_cancelled_and_is_kept_as_one_edit(qtbot
     save(doc.design, saved)
     assert '"measurement"' in saved.read_text(encoding="utf-8")
     window.close()
+
+
+def test_a_design_batch_beyond_what_is_measured_is_said_not_silently_cut(qtbot, tmp_path):
+    design = load(SMALL)
+    design.batch = 65_536
+    save(design, tmp_path / "big_batch.loom")
+    window, _ = open_window(qtbot, tmp_path, [str(tmp_path / "big_batch.loom")])
+    dialog = _measure_dialog(qtbot, window)
+    assert dialog.batch.value() == 4096
+    assert "batch 65,536" in dialog.status.text() and "4,096 at most" in dialog.status.text()
 
 
 def test_fit_dialog_lists_candidates_plots_the_front_and_applies_one_undo_step(qtbot, tmp_path):

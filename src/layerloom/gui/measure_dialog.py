@@ -30,6 +30,7 @@ from layerloom.gui.result_parts import accept_buttons, caution_label, narrow_for
 
 RUNTIMES = ("torch", "onnxruntime")
 COLUMNS = ("block", "kind", "measured µs", "± spread", "estimated µs", "measured ÷ est.")
+MEASURE_MAX_BATCH = 4096  # samples per timed run: a larger batch rarely fits in a desktop's memory
 
 
 class MeasureWorker(QObject):
@@ -79,7 +80,7 @@ class MeasureDialog(QDialog):
         self._worker: MeasureWorker | None = None
         design = document.design
 
-        self.batch = QSpinBox(minimum=1, maximum=4096, value=design.batch)
+        self.batch = QSpinBox(minimum=1, maximum=MEASURE_MAX_BATCH, value=min(design.batch, MEASURE_MAX_BATCH))
         self.threads = QSpinBox(minimum=1, maximum=512, value=os.cpu_count() or 1)
         self.runtime = QComboBox()
         self.runtime.addItems(RUNTIMES)
@@ -93,8 +94,10 @@ class MeasureDialog(QDialog):
         self.cancel_button.setEnabled(False)
         self.progress = QProgressBar()
         self.progress.setFormat("%p %")
-        self.status = QLabel("Times the exported network (random weights, fp32) after two warm-up runs, then "
-                             "each block alone on its real inputs.")
+        beyond = (f"The design's batch {design.batch:,} is more than is measured here: batch "
+                  f"{MEASURE_MAX_BATCH:,} at most. " if design.batch > MEASURE_MAX_BATCH else "")
+        self.status = QLabel(beyond + "Times the exported network (random weights, fp32) after two warm-up runs, "
+                             "then each block alone on its real inputs.")
         self.status.setWordWrap(True)
         run_row = QHBoxLayout()
         run_row.addWidget(self.progress, 1)
