@@ -307,3 +307,19 @@ def test_findings_and_loop_mends_do_not_depend_on_the_order_wires_were_drawn():
             undo = d.apply(m.edit)
             assert sum(f.severity == "error" for f in d.findings()) <= errors, m.label
             d.apply(undo)
+
+
+def test_a_mend_its_kind_would_refuse_is_not_offered():
+    """A 4-channel 8,192² map added to an 8×1×1 one: the 1×1 projection would need stride 8,192,
+    beyond Pointwise's maximum (4,096), so that mend is left out instead of raising (found by the
+    editor's property test on a 65,536² map and a squeeze-and-excite gate)."""
+    d = Design()
+    x = d.input(4, 8192, 8192)
+    gate = d.add("AdaptiveAvgPool2d", d.add("Pointwise", x, out_channels=8))
+    d.add("Output", d.add("Add", x, gate))
+    (clash,) = [f for f in d.findings() if f.code == "join.channels"]
+    labels = [m.label for m in mends_for(d, clash)]
+    assert not any("stride 8192" in label for label in labels)
+    for m in mends_for(d, clash):  # what is offered applies
+        undo = d.apply(m.edit)
+        d.apply(undo)

@@ -16,6 +16,7 @@ from layerloom.core.findings import ERROR, Finding, Stop
 from layerloom.core.graph import Wire
 from layerloom.core.inference import GraphInference
 from layerloom.core.motif_view import feed
+from layerloom.core.settings import SettingError
 
 _BUILDERS: dict[str, Callable] = {}
 
@@ -102,12 +103,21 @@ def _locate(design, finding: Finding) -> Place | None:
     return Place(design, graph, block, inference)
 
 
-def _insert(place: Place, wire: Wire, steps: list[tuple[str, dict]], label: str) -> Mend:
-    return Mend(label, edits.insert_on_wire(place.design, wire, steps, graph=place.graph.key))
+def _insert(place: Place, wire: Wire, steps: list[tuple[str, dict]], label: str) -> Mend | None:
+    """The mend inserting ``steps`` on ``wire``; None when a kind refuses the settings it would need
+    (a stride beyond its maximum, say): such a mend is not offered."""
+    try:
+        return Mend(label, edits.insert_on_wire(place.design, wire, steps, graph=place.graph.key))
+    except (SettingError, edits.EditError):
+        return None
 
 
-def _set(place: Place, block: str, label: str, **settings) -> Mend:
-    return Mend(label, edits.set_settings(place.design, block, settings, graph=place.graph.key))
+def _set(place: Place, block: str, label: str, **settings) -> Mend | None:
+    """The mend setting ``settings`` on ``block``; None when its kind refuses them."""
+    try:
+        return Mend(label, edits.set_settings(place.design, block, settings, graph=place.graph.key))
+    except (SettingError, edits.EditError):
+        return None
 
 
 def _join_branches(place: Place, finding: Finding):
