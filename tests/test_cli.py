@@ -123,6 +123,11 @@ def test_a_mistyped_command_is_an_error_with_a_suggestion_not_the_editor():
     assert "did you mean 'check'" in err
 
 
+def test_two_files_for_the_editor_are_refused_in_one_line_not_half_opened():
+    err = _one_line_error(run("samples/fastener_sorter.loom", "samples/leaf_blight_grader.loom"))
+    assert "one design per window" in err and "not 2" in err and "leaf_blight_grader.loom" in err
+
+
 def test_without_a_display_the_editor_says_so_in_one_line():
     r = subprocess.run([sys.executable, "-m", "layerloom", "samples/fastener_sorter.loom"], capture_output=True,
                        text=True, cwd=ROOT, env={"PYTHONPATH": str(ROOT / "src"), "PATH": "/usr/bin:/bin"})

@@ -316,9 +316,13 @@ def main(argv: list[str] | None = None) -> int:
             print(f"layerloom: {quote(argv[0])} is not a command (and no such file); did you mean "
                   f"'{near[0]}'? Commands: {', '.join(COMMANDS)}", file=sys.stderr)
             return 2
+        if len(argv) > 1:
+            print(f"layerloom: the editor opens one design per window; give one file, not {len(argv)} "
+                  f"({', '.join(map(quote, argv))}), and start it once per design", file=sys.stderr)
+            return 2
         from layerloom.app import run_editor
 
-        return run_editor(argv[:1])
+        return run_editor(argv)
     args = parser.parse_args(argv)
     if args.command is None:
         parser.print_help()
