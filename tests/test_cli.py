@@ -118,6 +118,11 @@ def test_a_batch_beyond_the_file_format_range_is_refused():
     assert "at most 65,536" in err
 
 
+def test_a_negative_limit_with_a_unit_is_named_not_taken_for_an_option():
+    err = _one_line_error(run("fit", "samples/fastener_sorter.loom", "--memory", "-3MiB"))
+    assert "--memory must be above 0, not '-3MiB'" in err
+
+
 def test_a_mistyped_command_is_an_error_with_a_suggestion_not_the_editor():
     err = _one_line_error(run("chek", "samples/fastener_sorter.loom"))
     assert "did you mean 'check'" in err

@@ -305,6 +305,18 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+def _negative_values_attached(argv: list[str]) -> list[str]:
+    """``--memory -3MiB`` as ``--memory=-3MiB``: argparse takes a value that starts with a minus sign
+    and is not a bare number for an option, so the command's own check names the value instead."""
+    out: list[str] = []
+    for arg in argv:
+        if out and out[-1].startswith("--") and "=" not in out[-1] and arg[:1] == "-" and arg[1:2].isdecimal():
+            out[-1] = f"{out[-1]}={arg}"
+        else:
+            out.append(arg)
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     parser = _parser()
@@ -323,7 +335,7 @@ def main(argv: list[str] | None = None) -> int:
         from layerloom.app import run_editor
 
         return run_editor(argv)
-    args = parser.parse_args(argv)
+    args = parser.parse_args(_negative_values_attached(argv))
     if args.command is None:
         parser.print_help()
         return 2

@@ -17,7 +17,7 @@ _SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
 
 
 def _quantity(text: str, suffixes: dict, what: str) -> float:
-    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?)\s*([A-Za-zµμ]*)\s*", text)
+    m = re.fullmatch(r"\s*(-?[0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?)\s*([A-Za-zµμ]*)\s*", text)
     by_case = {unit.casefold(): factor for unit, factor in suffixes.items()}
     if not m or m.group(2).casefold() not in by_case:
         raise ValueError(f"{what} {text!r} is not a number with one of the units {', '.join(s for s in suffixes if s)}")
