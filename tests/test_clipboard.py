@@ -73,6 +73,9 @@ def test_bad_copied_blocks_name_the_place_and_value():
     data["blocks"][0]["kind"] = "Teleporter"
     with pytest.raises(ClipboardError, match="unknown block kind 'Teleporter'"):
         paste_edit(d, data)
+    data["blocks"][0]["kind"] = {"out_channels": -5}  # not text at all (found by LAYERLOOM_LONG=1)
+    with pytest.raises(ClipboardError, match="unknown block kind"):
+        paste_edit(d, data)
 
 
 def test_pasted_text_with_an_infinite_position_or_invalid_text_is_refused():

@@ -9,7 +9,7 @@ from layerloom.core.edits import EditError, remove_blocks
 from layerloom.core.fileformat import dumps, parse
 from layerloom.core.findings import ERROR
 from layerloom.core.mends import mends_for
-from layerloom.core.motif_ops import expand, make_motif
+from layerloom.core.motif_ops import expand, expose, make_motif
 
 
 def errors(d: Design) -> list:
@@ -204,3 +204,19 @@ def test_no_output_is_offered_after_a_use_of_a_motif_without_output_ports():
     assert "Output" not in [blk.kind for blk in motif.blocks.values()]
     f = next(f for f in d.findings() if f.code == "graph.dead_end" and f.block == inst)
     assert mends_for(d, f) == []  # an Output wired from an output it does not have would be an error
+
+
+def test_expanding_a_use_whose_repeat_is_a_motif_parameter_is_refused_not_raised():
+    """Inside a motif, a use's repeat exposed as a parameter has no one number of copies (found by
+    LAYERLOOM_LONG=1: TypeError comparing the reference with 1)."""
+    d = Design()
+    x = d.input(8, 16, 16)
+    relu = d.add("ReLU", x)
+    d.add("Output", relu)
+    edit, inner = make_motif(d, [relu], name="unit")
+    d.apply(edit)
+    edit, outer = make_motif(d, [inner], name="tower")
+    d.apply(edit)
+    d.apply(expose(d, "tower", inner, "repeat", "copies"))
+    with pytest.raises(EditError, match="repeat is motif parameter 'copies'"):
+        expand(d, inner, graph="tower")

@@ -156,7 +156,7 @@ class Edit:
 def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
     """Complete and check settings for a block of ``kind``. In a motif, a value ``{"param": name}``
     refers to a motif parameter; it is checked with the parameter's default."""
-    if kind not in KINDS:
+    if not isinstance(kind, str) or kind not in KINDS:
         raise EditError(f"unknown block kind {quote(kind)}; known kinds: {', '.join(KINDS)}")
     spec = KINDS[kind]
     params = design.motifs[graph].params if graph else {}

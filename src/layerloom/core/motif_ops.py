@@ -112,6 +112,9 @@ def expand(design, instance_id: str, graph: str = "") -> Edit:
     params = {**motif.params, **{k: v for k, v in inst.settings.items() if k not in ("motif", "repeat")}}
     in_ids, out_ids = motif.ports()
     repeat = inst.settings["repeat"]
+    if isinstance(repeat, dict):  # each use of the enclosing motif may give it another value
+        raise EditError(f"{inst.name}'s repeat is motif parameter {quote(repeat['param'])}, so its number of copies "
+                        f"is not known here; set repeat to a number to expand it")
     if repeat > 1 and len(in_ids) != len(out_ids):
         raise EditError(f"{inst.name} repeats motif {quote(motif.name)} ×{repeat} but the motif has {len(in_ids)} input "
                         f"and {len(out_ids)} output ports, so its copies cannot be chained; set repeat to 1 first")
