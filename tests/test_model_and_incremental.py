@@ -30,9 +30,9 @@ def counted(monkeypatch):
     calls = []
     real = GraphInference._compute
 
-    def spy(self, bid, wires):
-        calls.append(bid)
-        return real(self, bid, wires)
+    def spy(self, k):
+        calls.append(self.wiring.ids[k])
+        return real(self, k)
     monkeypatch.setattr(GraphInference, "_compute", spy)
     return calls
 

@@ -130,8 +130,8 @@ class GraphInference:
         """Infer every block."""
         self.reorder()
         compute = self._compute
-        for bid, wires in self.wiring.in_order():
-            compute(bid, wires)
+        for k in self.wiring.steps:
+            compute(k)
 
     def update(self, dirty: set[str], topology: bool) -> None:
         """Infer again the ``dirty`` blocks and whatever downstream changes because of them."""
@@ -140,7 +140,7 @@ class GraphInference:
             self.reorder()
             dirty = set(dirty) | (before ^ self.stuck)  # blocks that joined or left a loop
         position, out_wires, wiring = self.position, self.graph.out_wires, self.wiring
-        feeds, steps = wiring.feeds, wiring.steps
+        steps = wiring.steps
         heap = [(position[b], b) for b in dirty if b in position]
         heapq.heapify(heap)
         done = set()
@@ -149,7 +149,7 @@ class GraphInference:
             if bid in done:
                 continue
             done.add(bid)
-            if self._compute(bid, feeds[steps[p]]):
+            if self._compute(steps[p]):
                 for w in out_wires[bid]:
                     if w.dst not in done:
                         heapq.heappush(heap, (position[w.dst], w.dst))
@@ -221,14 +221,53 @@ class GraphInference:
                 for b in self.wiring.unreached if not out_wires[b]]
 
     # ----- one step
-    def _compute(self, bid: str, wires) -> bool:
-        """Infer one block from its input ``wires`` (in port order); return True when its outputs
-        or receptive field changed."""
-        blk = self.graph.blocks[bid]
+    def _compute(self, k: int) -> bool:
+        """Infer block ``k`` (its index in :attr:`wiring`) from its input wires; return True when its
+        outputs or receptive field changed."""
+        wiring = self.wiring
+        bid, wires = wiring.ids[k], wiring.feeds[k]
+        if len(wires) == 1 and self.params is None and bid not in self.stuck:  # the usual block, seen before
+            w = wires[0]
+            r = self.results.get(w.src)
+            if (r is not None and len(r.outs) == 1 and not w.dst_port and not w.src_port and r.fields is None
+                    and wiring.kinds[wiring.srcs[k][0]] != "Output"):
+                blk = self.graph.blocks[bid]
+                known = self.memo.get((blk.kind, tuple(blk.settings.values()), r.outs))
+                if known is not None:  # kept only for finding-free blocks of one input
+                    return self._settle(bid, r.outs, known, r.rf, r.jump)
+        return self._infer(bid, wires)
+
+    def _settle(self, bid: str, ins: tuple, known: tuple, rf: tuple, jump: tuple, found: list | None = None) -> bool:
+        """Store the result of a block whose kind's rules gave ``known`` = (outputs, cost, window)
+        for inputs ``ins`` reached by receptive field ``rf`` and ``jump``."""
+        outs, cost, window = known
+        if window is not None:  # a window of 1 or a stride of 1 keeps the tuples it is given
+            kh, kw, sh, sw = window
+            if kh != 1 or kw != 1:
+                rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
+            if sh != 1 or sw != 1:
+                jump = (jump[0] * sh, jump[1] * sw)
+        return self._store(bid, _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None)), found)
+
+    def _store(self, bid: str, result: Result | None, found: list | None) -> bool:
+        """Keep ``bid``'s result and findings; True when its outputs or receptive field changed."""
         results = self.results
         old = results.get(bid)
+        results[bid] = result
+        if found:
+            self.findings[bid] = found
+        elif bid in self.findings:
+            del self.findings[bid]
+        if old is None or result is None:
+            return old is not result
+        return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump or old.fields != result.fields
+
+    def _infer(self, bid: str, wires) -> bool:
+        """:meth:`_compute` for any block: every rule applied and every fault named."""
+        blk = self.graph.blocks[bid]
+        results = self.results
         if bid in self.stuck:
-            return self._on_loop(blk, wires, old)
+            return self._on_loop(blk, wires, results.get(bid))
         kind_name = blk.kind
         found: list[Finding] = []
         result = None
@@ -245,7 +284,8 @@ class GraphInference:
                 r = results.get(w.src)
                 port = w.src_port
                 if r is not None and port < len(r.outs) and self.graph.blocks[w.src].kind != "Output":
-                    ins, (rf, jump), given = (r.outs[port],), _field(r, port), None
+                    outs = r.outs  # one output: its tuple serves as the inputs (nothing new kept per block)
+                    ins, (rf, jump), given = outs if len(outs) == 1 else (outs[port],), _field(r, port), None
                 else:
                     ins = None
                     if r is not None:
@@ -267,22 +307,10 @@ class GraphInference:
                     known = self._rule(blk, kind, s, ins, found)
                     if not found and len(self.memo) < MEMO_LIMIT:
                         self.memo[key] = known
-                outs, cost, window = known
-                if window is not None:
-                    kh, kw, sh, sw = window
-                    rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
-                    jump = (jump[0] * sh, jump[1] * sw)
-                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None))
+                return self._settle(bid, ins, known, rf, jump, found)
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
-        results[bid] = result
-        if found:
-            self.findings[bid] = found
-        elif bid in self.findings:
-            del self.findings[bid]
-        if old is None or result is None:
-            return old is not result
-        return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump or old.fields != result.fields
+        return self._store(bid, result, found)
 
     @staticmethod
     def _rule(blk, kind, s, ins, found) -> tuple:

@@ -57,6 +57,7 @@ from typing import TYPE_CHECKING, NamedTuple
 
 from layerloom.core.design import DTYPES
 from layerloom.core.kinds import KINDS
+from layerloom.core.kinds.base import FREE
 from layerloom.core.shapes import Shape
 from layerloom.core.targets import Target
 from layerloom.core.units import ratio
@@ -138,17 +139,22 @@ class Ledger:
         self._rows: list[Row] | None = None
         results = analysis.top.results
         self._results = [results.get(b) for b in self.order]
-        free = (0, 0, 0, 0)
-        self.counts = [(w, b, m * n, o * n)
-                       for w, b, m, o in [r.cost if r is not None else free for r in self._results]]
+        self._costs = [r.cost if r is not None else FREE for r in self._results]  # per sample
         scale = n * self.bytes_per_element
         self.live: list[int] = [v * scale for v in analysis.live_profile()]
         peak_at = self.live.index(max(self.live)) if self.live else None
-        weights, buffers, macs, other = (sum(column) for column in zip(*self.counts)) if self.counts else free
+        weights, buffers, macs, other = (sum(column) for column in zip(*self._costs)) if self._costs else FREE
+        macs, other = macs * n, other * n
         self.latency: list[float] | None = self._latency() if self.target is not None else None
         self.totals = Totals(weights, buffers, macs, other, self.live[peak_at] if peak_at is not None else 0,
                              self.order[peak_at] if peak_at is not None else None, weights * self.bytes_per_element,
                              fsum(self.latency) if self.latency is not None else None)
+
+    @cached_property
+    def counts(self) -> list[tuple[int, int, int, int]]:
+        """Per step: (weights, buffers, MACs, other operations), the last two for the whole batch."""
+        n = self.batch
+        return [(w, b, m * n, o * n) for w, b, m, o in self._costs]
 
     def _latency(self) -> list[float]:
         """Estimated seconds per block on the target (0 for blocks that do no work; a motif use the

@@ -71,24 +71,31 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
     ``kind``, ``in_wires`` ids to their input wires; ``outputs`` lists its output ports (by default
     its Output blocks in insertion order, which numbers them)."""
     ids = list(blocks)
-    index = {b: i for i, b in enumerate(ids)}
+    index = dict(zip(ids, range(len(ids))))
     kinds = [blk.kind for blk in blocks.values()]
     feeds = [in_wires[b] for b in ids]
     srcs: list[tuple] = []
     levels: list[int] = []
+    add_srcs, add_level, single = srcs.append, levels.append, _singles(len(ids))
     ordered = True  # every block after its sources in insertion order: levels in the same walk
     for k, ws in enumerate(feeds):
-        if not ws:
-            srcs.append(())
-            levels.append(0)
+        if len(ws) == 1:  # the usual block
+            s = index[ws[0].src]
+            add_srcs(single[s])
+            if s < k:
+                add_level(levels[s] + 1)
+                continue
+            ordered = False
+            add_level(0)
             continue
-        if len(ws) == 1:
-            ss = (index[ws[0].src],)
-        else:
-            if not _one_per_port(ws):  # by port; several wires on one port (an error) by their sources' insertion
-                ws = feeds[k] = sorted(ws, key=lambda w: (w.dst_port, w.src_port, index[w.src]))
-            ss = tuple([index[w.src] for w in ws])
-        srcs.append(ss)
+        if not ws:
+            add_srcs(())
+            add_level(0)
+            continue
+        if not _one_per_port(ws):  # by port; several wires on one port (an error) by their sources' insertion
+            ws = feeds[k] = sorted(ws, key=lambda w: (w.dst_port, w.src_port, index[w.src]))
+        ss = tuple([index[w.src] for w in ws])
+        add_srcs(ss)
         m = 0
         for s in ss:
             if s >= k:
@@ -96,7 +103,7 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
                 break
             if levels[s] >= m:
                 m = levels[s] + 1
-        levels.append(m)
+        add_level(m)
     stuck: list[int] = []
     if not ordered:
         levels, stuck = _levels(srcs)
@@ -109,6 +116,17 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
         unreached = [k for k in range(len(ids)) if k not in reached]
         steps = _with_unreached(steps, unreached, srcs, levels, kinds, feeds)
     return Wiring(ids, kinds, levels, feeds, srcs, steps, stuck, unreached)
+
+
+_SINGLES: list[tuple[int]] = []
+
+
+def _singles(n: int) -> list[tuple[int]]:
+    """``(k,)`` for every index k below ``n``: one-source tuples shared by every wiring, so a full
+    pass keeps no new object per block for them (fewer cycle collections along the pass)."""
+    if len(_SINGLES) < n:
+        _SINGLES.extend((k,) for k in range(len(_SINGLES), n))
+    return _SINGLES
 
 
 def _one_per_port(ws: list) -> bool:
@@ -163,9 +181,14 @@ def _finish_order(srcs: list, roots: list[int]) -> list[int]:
             seen[v] = 1
             push(~v)
             ss = srcs[v]
-            if len(ss) == 1:
-                push(ss[0])
-            elif ss:
+            while len(ss) == 1:  # down a chain of one-input blocks without going round the loop
+                v = ss[0]
+                if seen[v]:
+                    break
+                seen[v] = 1
+                push(~v)
+                ss = srcs[v]
+            else:
                 extend(ss[::-1])
     return post
 
