@@ -316,19 +316,15 @@ def _shuffled(draw, d: Design) -> Design:
 
 
 def _figures_by_block(d: Design):
-    """Order, totals, rows, live memory and findings. Left out of the order: blocks that reach no
-    Output (two alike in kind and sources keep the order they were added: core/wiring.py) and
-    blocks on a loop of wires (no shapes, run last); from the findings, which walk names a loop. A
-    design with two wires into one port (an error, port.multiple) is compared without its order:
-    which of the two is walked first is the order they were drawn in."""
+    """Order, totals, rows, live memory and findings. Left out of the order: blocks on a loop of
+    wires (no shapes, run last); from the findings, which walk names a loop. Blocks that reach no
+    Output and designs with two wires into one port (an error, port.multiple) are compared too."""
     L = Ledger(d.analysis())
     rows = {r.block: r for r in L.rows}
     live = dict(zip(L.order, L.live))
-    aside = set(d.analysis().top.wiring.unreached) | d.analysis().top.stuck
-    found = d.findings()
-    findings = sorted((f.code, f.block, "" if f.code == "graph.cycle" else f.message) for f in found)
-    order = [] if any(f.code == "port.multiple" for f in found) else [b for b in L.order if b not in aside]
-    return order, L.totals, rows, live, findings
+    stuck = d.analysis().top.stuck
+    findings = sorted((f.code, f.block, "" if f.code == "graph.cycle" else f.message) for f in d.findings())
+    return [b for b in L.order if b not in stuck], L.totals, rows, live, findings
 
 
 @settings(max_examples=examples(60), **SLOW)

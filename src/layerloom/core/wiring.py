@@ -9,9 +9,13 @@ added, on their names or on how they are grouped into motifs:
   order: so of two blocks of one level, the one feeding the earlier input of the join where their
   paths meet runs first, as a hand-written forward pass would run them;
 - then blocks that reach no Output, ordered by where their sources run (in input-port order),
-  then by kind; blocks alike in all of these (same kind, same sources, feeding no output) keep
-  the order they were added;
+  then by kind, then by what they feed;
 - blocks on a loop of wires, or after one, run last (they have no shapes).
+
+Several wires on one input port (an error) are walked in the order of their sources' rank by
+their upstream wiring (level, kind, Input number, the wires into them). Blocks alike in all the
+wiring shows are put in the order of their ids, which the file keeps: so the order never depends
+on the order of blocks or wires in a file.
 
 Ports are the one thing whose order is part of the design: a design's (or motif's) Output blocks
 are its output ports in the order they were added (:mod:`layerloom.core.kinds.ends`).
@@ -28,7 +32,7 @@ class Wiring:
     """A graph's blocks by index (insertion order) and their execution order.
 
     ``ids``, ``kinds``, ``levels``: each block's id, kind and level; ``feeds[k]``: block ``k``'s
-    input wires by (input port, output port, source's index) and ``srcs[k]`` the indices of their
+    input wires in input-port order (several on one port: see above) and ``srcs[k]`` the indices of their
     sources; ``steps``: the indices in execution order, ``order`` their ids; ``stuck``: the ids of
     blocks on a loop or after one; ``unreached``: the ids of blocks from which no Output is reached.
     """
@@ -78,6 +82,7 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
     levels: list[int] = []
     add_srcs, add_level, single = srcs.append, levels.append, _singles(len(ids))
     ordered = True  # every block after its sources in insertion order: levels in the same walk
+    crowded: list[int] = []  # blocks with several wires on one input port
     for k, ws in enumerate(feeds):
         if len(ws) == 1:  # the usual block
             s = index[ws[0].src]
@@ -92,8 +97,10 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
             add_srcs(())
             add_level(0)
             continue
-        if not _one_per_port(ws):  # by port; several wires on one port (an error) by their sources' insertion
-            ws = feeds[k] = sorted(ws, key=lambda w: (w.dst_port, w.src_port, index[w.src]))
+        if not _one_per_port(ws):  # by port; several wires on one port (an error): ranked below
+            ws = feeds[k] = sorted(ws, key=lambda w: (w.dst_port, w.src_port))
+            if any(a.dst_port == b.dst_port for a, b in zip(ws, ws[1:])):
+                crowded.append(k)
         ss = tuple([index[w.src] for w in ws])
         add_srcs(ss)
         m = 0
@@ -107,6 +114,8 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
     stuck: list[int] = []
     if not ordered:
         levels, stuck = _levels(srcs)
+    if crowded:
+        _rank_crowded(crowded, ids, kinds, levels, set(stuck), feeds, srcs)
     roots = [k for k, kind in enumerate(kinds) if kind == "Output"] if outputs is None else [index[b] for b in outputs]
     post = _finish_order(srcs, roots)
     steps = sorted(post, key=levels.__getitem__)  # a stable sort: by rank within a level
@@ -114,7 +123,7 @@ def wire_up(blocks, in_wires, outputs: list | None = None) -> Wiring:
     if len(steps) < len(ids):
         reached = set(post)
         unreached = [k for k in range(len(ids)) if k not in reached]
-        steps = _with_unreached(steps, unreached, srcs, levels, kinds, feeds)
+        steps = _with_unreached(steps, unreached, srcs, levels, kinds, feeds, ids)
     return Wiring(ids, kinds, levels, feeds, srcs, steps, stuck, unreached)
 
 
@@ -137,6 +146,37 @@ def _one_per_port(ws: list) -> bool:
             return False
         port = w.dst_port
     return True
+
+
+def _rank_crowded(crowded: list[int], ids: list, kinds: list, levels: list, stuck: set, feeds: list,
+                  srcs: list) -> None:
+    """Puts the input wires of each ``crowded`` block (several wires on one port, an error) in port
+    order, and those on one port by their sources' ranks: level by level, the blocks upstream are
+    ranked by kind, Input port number and their own wires (ports and sources' ranks), so by the
+    wiring alone; sources alike in all of that by id (kept in the file, never renamed)."""
+    cone: set[int] = set()
+    stack = [s for k in crowded for s in srcs[k]]
+    while stack:
+        v = stack.pop()
+        if v not in cone:
+            cone.add(v)
+            stack.extend(srcs[v])
+    inputs = {k: n for n, k in enumerate(k for k, kind in enumerate(kinds) if kind == "Input")}
+    by_level: dict[int, list[int]] = {}
+    for v in cone:
+        by_level.setdefault(levels[v], []).append(v)
+    rank: dict[int, int] = {}
+    for lv in sorted(by_level):
+        keys = {v: (kinds[v], inputs.get(v, -1), () if v in stuck else  # a loop: its kind alone
+                    tuple(sorted((w.dst_port, w.src_port, rank[s]) for s, w in zip(srcs[v], feeds[v]))))
+                for v in by_level[lv]}
+        place = {key: len(rank) + i for i, key in enumerate(sorted(set(keys.values())))}
+        for v, key in keys.items():
+            rank[v] = place[key]
+    for k in crowded:
+        pairs = sorted(zip(feeds[k], srcs[k]), key=lambda p: (p[0].dst_port, p[0].src_port, rank[p[1]], ids[p[1]]))
+        feeds[k] = [w for w, _ in pairs]
+        srcs[k] = tuple([s for _, s in pairs])
 
 
 def _levels(srcs: list) -> tuple[list[int], list[int]]:
@@ -194,13 +234,17 @@ def _finish_order(srcs: list, roots: list[int]) -> list[int]:
 
 
 def _with_unreached(reached: list[int], unreached: list[int], srcs: list, levels: list, kinds: list,
-                    feeds: list) -> list[int]:
+                    feeds: list, ids: list) -> list[int]:
     """``reached`` (in order) with the ``unreached`` blocks (that reach no Output) put after those of
-    their level, by their sources' places and then kind."""
+    their level, by their sources' places, kind, then what they feed (ports and kinds); blocks alike
+    in all of that by id (kept in the file, never renamed)."""
     n = len(srcs)
     rest: dict[int, list[int]] = {}
+    fed: dict[int, list[tuple]] = {}  # what each unreached block feeds (only unreached blocks)
     for i in unreached:
         rest.setdefault(levels[i], []).append(i)
+        for s, w in zip(srcs[i], feeds[i]):
+            fed.setdefault(s, []).append((w.src_port, w.dst_port, kinds[i]))
     step = [n] * n  # not placed yet
     order: list[int] = []
     k = 0
@@ -211,7 +255,7 @@ def _with_unreached(reached: list[int], unreached: list[int], srcs: list, levels
             k += 1
         group = rest.get(lv, [])
         group.sort(key=lambda i: (tuple((step[s], w.src_port, w.dst_port) for s, w in zip(srcs[i], feeds[i])),
-                                  kinds[i]))
+                                  kinds[i], sorted(fed.get(i, ())), ids[i]))
         for i in group:
             step[i] = len(order)
             order.append(i)
