@@ -1,6 +1,6 @@
 """Import contract: ``layerloom check`` on a valid file imports neither numpy (only drawing and
 measuring need it) nor jsonschema (only a broken file needs its words), ``layerloom ledger`` (as a
-table, JSON or CSV) no numpy, and reading a design, its whole pass and its ledger import no numpy,
+table, JSON or CSV, against a pinned baseline or another file) no numpy, and reading a design, its whole pass and its ledger import no numpy,
 since a process's start-up is most of the time of a check. Checked in a fresh interpreter."""
 from __future__ import annotations
 
@@ -54,7 +54,8 @@ def test_loading_and_finding_import_no_numpy():
     assert done.returncode == 0, done.stderr[-2000:]
 
 
-@pytest.mark.parametrize("options", [[], ["--json"], ["--csv"], ["--target", PRESETS[0].name, "--batch", "4"]])
+@pytest.mark.parametrize("options", [[], ["--json"], ["--csv"], ["--target", PRESETS[0].name, "--batch", "4"],
+                                     ["--baseline", str(SAMPLE)], ["--baseline", str(SAMPLE), "--json"]])
 def test_ledger_imports_no_numpy(tmp_path, options):
     path = _budgeted(tmp_path)
     done = _run("import sys; from layerloom.cli import main; "
@@ -64,6 +65,9 @@ def test_ledger_imports_no_numpy(tmp_path, options):
     assert "part_class" in done.stdout  # the table, the JSON and the CSV name each block
     if not options:
         assert "over budget: weights" in done.stdout and "against baseline 'before'" in done.stdout
+    if options[:1] == ["--baseline"]:  # the sample itself: its weights unchanged
+        assert ("weights                       162 K  was      162 K  change          0 (+0.0 %)" in done.stdout
+                or '"metric": "weights", "current": 162148, "baseline": 162148, "delta": 0' in done.stdout)
 
 
 def test_ledger_still_comes_from_the_package():

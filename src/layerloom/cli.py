@@ -251,7 +251,7 @@ def _baseline(args, design, errors: list) -> dict | None:
 
     if not getattr(args, "baseline", None):
         return design.baseline
-    return snapshot_of_file(args.baseline, design.target, errors=errors)
+    return snapshot_of_file(args.baseline, design.target, errors=errors, curves=False)  # totals are compared
 
 
 def _targets_text() -> str:

@@ -34,8 +34,9 @@ class Difference(NamedTuple):
         return ratio(100 * self.delta, self.baseline) if self.baseline else None
 
 
-def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
-    """Freeze ``ledger`` as a baseline called ``name`` (dated ``when``, default today)."""
+def snapshot(ledger, name: str, when: _dt.date | None = None, curves: bool = True) -> dict:
+    """Freeze ``ledger`` as a baseline called ``name`` (dated ``when``, default today). Without
+    ``curves``, its totals alone: all a comparison of totals needs, and numpy is not imported."""
     t = ledger.totals
     data = {
         "name": name,
@@ -43,26 +44,31 @@ def snapshot(ledger, name: str, when: _dt.date | None = None) -> dict:
         "batch": ledger.batch,
         "dtype": ledger.dtype,
         "totals": {"weights": t.weights, "macs": t.macs, "peak_memory": t.peak_memory},
-        "blocks": {
+    }
+    timed = ledger.latency is not None and math.isfinite(t.latency)  # a file holds no infinity
+    if curves:
+        data["blocks"] = {
             "name": [ledger.analysis.design.blocks[b].name for b in ledger.order],
             "step": [int(v) for v in ledger.steps],
             "weights": [int(v) for v in ledger.cumulative_weights],
             "macs": [int(v) for v in ledger.cumulative_macs],
             "live": [int(v) for v in ledger.live],
-        },
-    }
-    if ledger.latency is not None and math.isfinite(t.latency):  # a file holds no infinity
+        }
+        if timed:
+            data["blocks"]["latency"] = [float(v) for v in ledger.cumulative_latency]
+    if timed:
         data["totals"]["latency"] = t.latency
-        data["blocks"]["latency"] = [float(v) for v in ledger.cumulative_latency]
         data["target"] = ledger.target.name
     return data
 
 
-def snapshot_of_file(path, target=None, name: str | None = None, errors: list | None = None) -> dict:
-    """A baseline from another design file (named ``name``, else the design's own name). Without a
-    target of its own, the other design is estimated on ``target`` so latencies compare. The other
-    design's error findings, whose blocks onward are not counted, are appended to ``errors`` when
-    given. Raises :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
+def snapshot_of_file(path, target=None, name: str | None = None, errors: list | None = None,
+                     curves: bool = True) -> dict:
+    """A baseline from another design file (named ``name``, else the design's own name; its totals
+    alone without ``curves``). Without a target of its own, the other design is estimated on
+    ``target`` so latencies compare. The other design's error findings, whose blocks onward are not
+    counted, are appended to ``errors`` when given. Raises
+    :class:`~layerloom.core.fileformat.LoomFileError` for a file that cannot be read."""
     from layerloom.core.fileformat import load
     from layerloom.core.ledger import Ledger
 
@@ -73,7 +79,7 @@ def snapshot_of_file(path, target=None, name: str | None = None, errors: list | 
         from layerloom.core.findings import ERROR
 
         errors += [f for f in other.findings() if f.severity == ERROR]
-    return snapshot(Ledger(other.analysis()), name or other.name)
+    return snapshot(Ledger(other.analysis()), name or other.name, curves=curves)
 
 
 def compare(ledger, baseline: dict) -> list[Difference]:
