@@ -14,7 +14,7 @@ from layerloom import Design
 from layerloom.core.fileformat import dumps, parse
 from layerloom.core.settings import SettingError
 from layerloom.export import VerifyRefused, load_module, module_source, verify
-from layerloom.importing import import_module
+from layerloom.importing import ImportFailed, import_module
 
 
 @pytest.fixture(scope="module")
@@ -93,3 +93,36 @@ def test_an_operation_with_several_outputs_gives_one_block_per_output():
     assert [b.settings["operation"] for b in blocks] == ["chunk → getitem [1 of 2]", "chunk → getitem [2 of 2]"]
     assert [str(imported.design.analysis().shape(b.id)) for b in blocks] == ["4×8×8", "4×8×8"]
     assert imported.design.ledger().totals.weights == 3 * 8 * 9 + 8  # PyTorch: Conv2d(3, 8, 3) parameters
+
+
+class _Fan(torch.nn.Module):
+    """``n`` 1×1 convolutions of the input joined by ``join`` (torch.cat or torch.stack, which take
+    any number of tensors: PyTorch documentation)."""
+
+    def __init__(self, n: int, join: str):
+        super().__init__()
+        self.convs = torch.nn.ModuleList(torch.nn.Conv2d(3, 2, 1) for _ in range(n))
+        self.join = join
+
+    def forward(self, x):
+        ys = [c(x) for c in self.convs]
+        return torch.cat(ys, dim=1) if self.join == "cat" else torch.stack(ys, dim=1).flatten(1, 2)
+
+
+@pytest.mark.parametrize("join, kind", [("cat", "Concat"), ("stack", "Unmapped")])
+def test_a_join_of_twelve_tensors_imports_with_torchs_shape_and_counts(join, kind):
+    """Before, a cat of more than 8 tensors was left unmapped and an unmapped operation reading more
+    than 8 raised a SettingError out of import."""
+    model = _Fan(12, join).eval()
+    d = import_module(model, (3, 8, 8)).design
+    joins = [b for b in d.blocks.values() if b.kind == kind]
+    assert len(joins) == 1 and len(d.in_wires[joins[0].id]) == 12
+    assert d.analysis().shape(joins[0].id) == (24, 8, 8) == model(torch.zeros(1, 3, 8, 8)).shape[1:]
+    t = d.ledger().totals
+    assert (t.weights, t.macs) == torch_counts(model, (3, 8, 8))
+
+
+@pytest.mark.parametrize("join", ["cat", "stack"])
+def test_a_join_of_more_tensors_than_a_block_has_ports_is_refused_by_name(join):
+    with pytest.raises(ImportFailed, match=rf"^{join} \({join}.*\) reads 70 tensors; a block has at most 64 inputs$"):
+        import_module(_Fan(70, join), (3, 8, 8))

@@ -159,6 +159,9 @@ CASES += [Case("Add", {}, ((4, 5, 6),) * 2), Case("Add", {"inputs": 3}, ((4, 5, 
           Case("Add", {}, ((4, 5, 6),) * 2, flat=True), Case("Add", {"inputs": 3}, ((2, 1, 1),) * 3, flat=True),
           Case("Concat", {}, ((4, 5, 6), (2, 5, 6))), Case("Concat", {"inputs": 3}, ((4, 5, 6), (2, 5, 6), (7, 5, 6))),
           Case("Concat", {}, ((4, 5, 6), (2, 3, 3)), flat=True),
+          # many branches: torch.cat and a sum take any number of tensors (PyTorch documentation)
+          Case("Concat", {"inputs": 16}, tuple((c, 5, 6) for c in range(1, 17))),
+          Case("Concat", {"inputs": 64}, ((3, 2, 2),) * 64), Case("Add", {"inputs": 16}, ((4, 5, 6),) * 16),
           Case("Multiply", {}, ((4, 5, 6),) * 2), Case("Multiply", {}, ((4, 5, 6), (4, 1, 1))),
           Case("Multiply", {}, ((4, 1, 1), (4, 5, 6))), Case("Multiply", {}, ((4, 5, 6),) * 2, flat=True)]
 

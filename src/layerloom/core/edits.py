@@ -12,6 +12,7 @@ from typing import Any, NamedTuple
 
 from layerloom.core.graph import Block, Graph, Wire, kind_stem
 from layerloom.core.kinds import KINDS
+from layerloom.core.kinds.base import PORTS
 from layerloom.core.settings import SettingError
 from layerloom.core.stage_rows import CARD_HEIGHT, CARD_WIDTH, STACK
 from layerloom.core.stage_rows import COLUMN as COLUMN_STEP
@@ -189,7 +190,7 @@ def add_block(design, kind: str, settings: dict | None = None, *, name: str | No
     return Edit(f"Add {kind}", tuple(ops)), bid
 
 
-PORT_LIMIT = 63  # the highest port index a file holds (resources/loom.schema.json)
+PORT_LIMIT = PORTS - 1  # the highest port index a file holds (resources/loom.schema.json)
 
 
 def check_ports(wire: Wire, ends: str) -> None:

@@ -318,7 +318,7 @@ def _join(kind):
 
 def _cat(n, ins, out):
     dim = _arg(n, 1, "dim", 0)
-    if dim not in (1, -len(ins[0])) or not 2 <= len(ins) <= 8 or len(n.args[0]) != len(ins):
+    if dim not in (1, -len(ins[0])) or len(ins) < 2 or len(n.args[0]) != len(ins):
         return None
     return [("Concat", {"inputs": len(ins)})]
 

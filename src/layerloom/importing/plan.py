@@ -16,6 +16,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from layerloom.core.kinds.base import PORTS
 from layerloom.core.kinds.unmapped import shape_text
 from layerloom.core.shapes import Shape
 
@@ -141,6 +142,8 @@ def _add_group(blocks, source, members, shapes, readers, ops, returned) -> None:
              if v in returned or any(id(ops[r]) not in member_ids for r in readers.get(v, []))]
     labels = [op.label for op in members]
     label = " → ".join(lab for k, lab in enumerate(labels) if k == 0 or lab != labels[k - 1])
+    if len(ins) > PORTS:
+        raise ImportFailed(f"{members[0].name} ({label}) reads {len(ins)} tensors; a block has at most {PORTS} inputs")
     params: dict = {}
     for op in members:
         params.update(op.params)

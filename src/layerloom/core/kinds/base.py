@@ -42,6 +42,8 @@ class Cost(NamedTuple):
 
 
 FREE = Cost()
+PORTS = 64
+"""Ports a block may have on each side: numbered 0 to 63, all a file holds (resources/loom.schema.json)."""
 
 KINDS: dict[str, "Kind"] = {}
 

@@ -6,11 +6,12 @@ per output element; Concat none (it only copies its inputs side by side).
 from __future__ import annotations
 
 from layerloom.core.findings import Stop
-from layerloom.core.kinds.base import Cost, Kind, register
+from layerloom.core.kinds.base import PORTS, Cost, Kind, register
 from layerloom.core.settings import int_setting
 from layerloom.core.shapes import Shape
 
-INPUTS = int_setting("inputs", 2, "Inputs", minimum=2, maximum=8, help="number of branches joined")
+INPUTS = int_setting("inputs", 2, "Inputs", minimum=2, maximum=PORTS, help="number of branches joined")
+"""As many branches as a block has ports (torch.cat and a sum take any number)."""
 
 
 def _same_rank(ins, name):

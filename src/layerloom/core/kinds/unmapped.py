@@ -11,7 +11,7 @@ placeholder module whose forward the user must write, so an export with one is n
 from __future__ import annotations
 
 from layerloom.core.findings import Stop
-from layerloom.core.kinds.base import Cost, Kind, register
+from layerloom.core.kinds.base import PORTS, Cost, Kind, register
 from layerloom.core.settings import Setting, SettingError, int_setting
 from layerloom.core.shapes import Shape
 from layerloom.core.values import quote
@@ -58,7 +58,7 @@ class Unmapped(Kind):
     scriptable = False
     verifiable = False
     settings = (Setting("operation", "text", "operation", "Operation", help="what import found (module or function)"),
-                int_setting("inputs", 1, "Inputs", maximum=8),
+                int_setting("inputs", 1, "Inputs", maximum=PORTS),
                 Setting("in_shapes", "text", "64×56×56", "Traced input shapes", help="per input port, joined by ;"),
                 Setting("out_shape", "text", "64×56×56", "Traced output shape"),
                 int_setting("weights", 0, "Weights", **COUNT, help="learned parameters, measured at import"),
