@@ -4,6 +4,7 @@ never absolute times; calibration is checked exactly on times made by a known ro
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -12,11 +13,12 @@ import numpy as np
 import pytest
 
 import small_designs
-from layerloom.core.calibrate import Sample, calibrate, mape, predict, samples, split_halves
+from layerloom.core.calibrate import PLAUSIBLE, Implausible, Sample, calibrate, mape, predict, samples, split_halves
 from layerloom.core.fileformat import LoomFileError, dumps, load, parse, save
 from layerloom.core.ledger import Ledger
 from layerloom.core.measurement import compare
 from layerloom.core.targets import Target
+from layerloom.measure import timing
 from layerloom.measure.timing import Cancelled, measure
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -77,6 +79,91 @@ def test_calibration_recovers_a_synthetic_roofline_exactly():
     assert fitted.bytes_per_second == pytest.approx(true.bytes_per_second, rel=1e-9)
     assert fitted.overhead == pytest.approx(true.overhead, rel=1e-9)
     assert mape(fitted, data) == pytest.approx(0, abs=1e-9)
+
+
+def _sample_rows(ledger):
+    return [Sample(r.name, float(r.macs), float(r.moved), 0.0) for r in ledger.rows if r.kind != "Motif" and r.moved]
+
+
+def test_blocks_without_macs_timed_at_the_overhead_give_no_millionfold_bandwidth():
+    """A loaded machine: blocks without MACs take the per-layer overhead and no more, so the times
+    leave the bandwidth undetermined. It was set to a million times the MAC rate (33.1 GMAC/s gave
+    3.31e+07 GB/s); now no fit uses a placeholder and the one kept is within PLAUSIBLE."""
+    data = _sample_rows(load(ROOT / "samples" / "fastener_sorter.loom").ledger())
+    data = [s._replace(seconds=s.macs / 33.1e9 + 6e-6) for s in data]
+    assert any(s.macs == 0 for s in data) and any(s.macs > 0 for s in data)
+    fitted = calibrate(data, "this machine, 1 thread")
+    assert fitted.bytes_per_second < 1e13 and fitted.macs_per_second == pytest.approx(33.1e9, rel=0.01)
+    assert mape(fitted, data) < 1  # every block predicted within 1 %
+
+
+@pytest.mark.parametrize("bytes_per_second, overhead, figure", [
+    (1e15, 7e-6, "memory bandwidth, 1e+06 GB/s"),  # copies timed faster than any memory moves them
+    (5.5e9, 2.0, "per-layer overhead, 2e+06 µs")])  # a stall of seconds in every block
+def test_a_calibration_no_computer_has_is_refused_naming_the_figure(bytes_per_second, overhead, figure):
+    """(Times at the timer's resolution, a MAC rate beyond any computer's: the two tests below.)"""
+    data = _sample_rows(load(ROOT / "samples" / "fastener_sorter.loom").ledger())
+    true = Target("impossible", 37e9, bytes_per_second, overhead)
+    data = [s._replace(seconds=float(t)) for s, t in zip(data, predict(true, data))]
+    with pytest.raises(Implausible, match="^" + re.escape(f"the calibrated {figure}, is not one a computer has (")):
+        calibrate(data, "this machine, 1 thread")
+    assert [p[0] for p in PLAUSIBLE] == ["MAC rate", "memory bandwidth", "per-layer overhead"]
+
+
+class _Clock:
+    """A fake ``time`` for the timing module: each timed call (a reading before, one after) lasts
+    the next of ``durations``."""
+
+    def __init__(self, durations):
+        self.durations, self.now, self.readings = iter(durations), 0.0, 0
+
+    def perf_counter(self) -> float:
+        self.readings += 1
+        if self.readings % 2 == 0:
+            self.now += next(self.durations)
+        return self.now
+
+
+def _timed_rows(design):
+    """Samples (seconds 0) of the blocks ``measure`` times, in the order it times them."""
+    ledger = design.ledger()
+    working = {b for b, w in zip(ledger.order, ledger.working) if w}
+    return [Sample(r.name, float(r.macs), float(r.moved), 0.0) for r in ledger.rows if r.block in working]
+
+
+def test_an_implausible_calibration_is_measured_again_and_never_kept(tmp_path, monkeypatch, capsys):
+    """With --repeat 1 every block is timed once after the whole network. The first measurement
+    times every call at 1 ns (the timer's resolution); the second follows a known roofline, which
+    is what is kept."""
+    from layerloom.cli import main
+
+    design = small_designs.plain_stack()
+    path = tmp_path / "a.loom"
+    save(design, path)
+    rows = _timed_rows(design)
+    true = Target("known", 37e9, 5.5e9, 7e-6)
+    roofline = [float(t) for t in predict(true, rows)]
+    monkeypatch.setattr(timing, "time", _Clock([1e-9] * (1 + len(rows)) + [sum(roofline)] + roofline))
+    assert main(["measure", str(path), "--repeat", "1", "--threads", "1", "--save"]) == 0
+    note = capsys.readouterr().err
+    assert note.startswith("note: the calibrated MAC rate, ") and "measuring again (2 of 3)" in note
+    kept = load(path).target
+    assert kept.macs_per_second == pytest.approx(37e9, rel=1e-6)
+    assert kept.bytes_per_second == pytest.approx(5.5e9, rel=1e-6) and kept.overhead == pytest.approx(7e-6, rel=1e-6)
+
+
+def test_a_calibration_implausible_three_times_is_refused_and_nothing_is_saved(tmp_path, monkeypatch, capsys):
+    from layerloom.cli import main
+
+    design = small_designs.plain_stack()
+    path = tmp_path / "a.loom"
+    save(design, path)
+    before = path.read_text(encoding="utf-8")
+    monkeypatch.setattr(timing, "time", _Clock(iter(lambda: 1e-9, None)))  # every call: 1 ns
+    assert main(["measure", str(path), "--repeat", "1", "--threads", "1", "--save"]) == 2
+    err = capsys.readouterr().err
+    assert "the calibrated MAC rate, " in err and err.rstrip().endswith("refused after 3 measurements")
+    assert "Traceback" not in err and path.read_text(encoding="utf-8") == before
 
 
 def test_calibration_on_a_measurement_predicts_held_out_blocks(measured):

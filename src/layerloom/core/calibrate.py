@@ -7,9 +7,15 @@ the blocks sorted by intensity split into a memory-bound lower part and a comput
 Every split is tried: it makes the model linear in (1 / rate, 1 / bandwidth, overhead), solved by
 least squares on relative error (each block weighs the same, whatever its size), with no coefficient
 below zero (each subset of the three is tried). A rate the split leaves undetermined (a part that
-is empty, or a coefficient at zero) is set as high as keeps every block on its side. The fit whose
-full roofline predicts the blocks best wins. On times that follow a roofline exactly, the true split
-gives a zero residual, so its rates come back exactly.
+is empty, or a coefficient at zero) is set as high as keeps every block with MACs on its side; with
+no block of that side, the split gives no fit. The fit whose full roofline predicts the blocks best
+wins. On times that follow a roofline exactly, the true split gives a zero residual, so its rates
+come back exactly.
+
+A fit outside :data:`PLAUSIBLE` is refused (:class:`Implausible`), never returned: block times near
+the timer's resolution, or a loaded machine whose blocks without MACs take no longer than the
+per-layer overhead, can fit a bandwidth or rate no computer has (once 3.31e+07 GB/s, a millionfold
+placeholder for a bandwidth the times left undetermined).
 
 Samples are plain blocks (motif instances hold many layers, each with its own overhead) that do
 work; the measured module runs in fp32, so bytes are counted at 4 per element.
@@ -23,6 +29,18 @@ import numpy as np
 from layerloom.core.targets import Target
 
 MEASURED_BYTES = 4  # the exported module runs in fp32
+
+PLAUSIBLE = (("MAC rate", "macs_per_second", 1e6, 1e15, 1e9, "GMAC/s"),
+             ("memory bandwidth", "bytes_per_second", 1e6, 1e13, 1e9, "GB/s"),
+             ("per-layer overhead", "overhead", 0.0, 1.0, 1e-6, "µs"))
+"""(figure, Target field, lowest, highest, unit scale, unit) a calibration may give. Generous bounds
+from common practice: CPU memory moves tens to hundreds of GB/s (a few TB/s from caches summed over
+many cores), the largest CPUs do a few TMAC/s in fp32; a millionth of either is slower than any
+computer that runs PyTorch, and an overhead of a second per layer is a stall, not an overhead."""
+
+
+class Implausible(ValueError):
+    """A calibration whose figure no computer has: the times should be measured again."""
 
 
 class Sample(NamedTuple):
@@ -78,7 +96,18 @@ def calibrate(data: list[Sample], name: str, assumptions: str = "") -> Target:
         raise ValueError(f"calibration needs blocks that do work, compute-bound and memory-bound, with measured "
                          f"times: {int(usable.sum())} of {len(data)} samples are usable")
     x, y, o = best[1]
-    return Target(name, 1 / x, 1 / y, o, assumptions)
+    return plausible(Target(name, 1 / x, 1 / y, o, assumptions))
+
+
+def plausible(target: Target) -> Target:
+    """``target``, or :class:`Implausible` naming the first figure outside :data:`PLAUSIBLE`."""
+    for label, field, low, high, scale, unit in PLAUSIBLE:
+        value = getattr(target, field)
+        if not low <= value <= high:
+            raise Implausible(f"the calibrated {label}, {value / scale:.3g} {unit}, is not one a computer has "
+                              f"({low / scale:g} to {high / scale:g} {unit}): the block times are too short or "
+                              "too noisy to fit (a loaded machine, or blocks near the timer's resolution)")
+    return target
 
 
 def _solve(m, b, t, compute) -> tuple[float, float, float] | None:
@@ -100,10 +129,12 @@ def _solve(m, b, t, compute) -> tuple[float, float, float] | None:
     x, y, o = (float(c) for c in best[1])
     if x <= 0 and y <= 0:
         return None
+    if (x <= 0 or y <= 0) and not (m > 0).any():  # no block shows either rate
+        return None
     if x <= 0:  # as fast as keeps every block with MACs memory-bound
-        x = float(np.min(y * b[m > 0] / m[m > 0])) if (m > 0).any() else y * 1e-6
-    if y <= 0:  # as wide as keeps every block compute-bound
-        y = float(np.min(x * m / b)) if (m > 0).all() else x * 1e-6
+        x = float(np.min(y * b[m > 0] / m[m > 0]))
+    if y <= 0:  # as wide as keeps every block with MACs compute-bound
+        y = float(np.min(x * m[m > 0] / b[m > 0]))
     return (x, y, o) if x > 0 and y > 0 else None
 
 

@@ -5,12 +5,14 @@ from __future__ import annotations
 import csv
 import io
 import json
+import sys
 
 from layerloom.core.fileformat import load, save
 from layerloom.core.measurement import compare
 from layerloom.core.targets import CAUTION, PRESETS
 
 RUNTIMES = ("torch", "onnxruntime")
+ATTEMPTS = 3  # measurements taken before an implausible calibration is refused
 
 
 def add_parser(sub) -> None:
@@ -35,25 +37,25 @@ def add_parser(sub) -> None:
 
 def run(args) -> int:
     from layerloom.cli import UsageError, _open
-    from layerloom.core.calibrate import calibrate, mape, samples, split_halves  # numpy: only when measuring
+    from layerloom.core.calibrate import Implausible, mape, samples  # numpy: only when measuring
     from layerloom.core.ledger import Ledger
 
     for option, value in (("--repeat", args.repeat), ("--threads", args.threads)):
         if value is not None and value < 1:
             raise UsageError(f"{option} must be at least 1, not {value}")
     design = _open(args)
-    ledger, measurement = _measure(design, args)
-    target_name = f"this machine, {measurement.machine.threads} thread{'s' if measurement.machine.threads > 1 else ''}"
-    data = samples(ledger, measurement)
-    try:
-        kept = calibrate(data, target_name, f"calibrated {measurement.date} on {measurement.machine.describe()}, "
-                         f"torch {measurement.machine.torch_version}: least squares over {len(data)} blocks of "
-                         f"'{design.name}' at batch {measurement.batch}")
-        fit_half, held = split_halves(data)
-        half = calibrate(fit_half, target_name)
-        checks = {"other half of the blocks": mape(half, held) if held else None}
-    except ValueError as e:
-        raise UsageError(f"{args.file}: {e}") from None
+    for attempt in range(1, ATTEMPTS + 1):  # an implausible fit: measured again, then refused, never kept
+        ledger, measurement = _measure(design, args)
+        data = samples(ledger, measurement)
+        try:
+            kept, half, checks = _calibrated(design, measurement, data)
+            break
+        except Implausible as e:
+            if attempt == ATTEMPTS:
+                raise UsageError(f"{args.file}: {e}; refused after {ATTEMPTS} measurements") from None
+            print(f"note: {e}; measuring again ({attempt + 1} of {ATTEMPTS})", file=sys.stderr)
+        except ValueError as e:
+            raise UsageError(f"{args.file}: {e}") from None
     if args.holdout:
         other = load(args.holdout)
         other.set_field("batch", measurement.batch)
@@ -81,6 +83,22 @@ def run(args) -> int:
     else:
         _print(args, ledger, measurement, rows, kept, checks)
     return 0
+
+
+def _calibrated(design, measurement, data):
+    """The target calibrated on all blocks, the one on half of them, and how well that half predicts
+    the other half; ValueError (:class:`~layerloom.core.calibrate.Implausible` for a figure no
+    computer has) when the times cannot give one."""
+    from layerloom.core.calibrate import calibrate, mape, split_halves
+
+    threads = measurement.machine.threads
+    name = f"this machine, {threads} thread{'s' if threads > 1 else ''}"
+    kept = calibrate(data, name, f"calibrated {measurement.date} on {measurement.machine.describe()}, torch "
+                     f"{measurement.machine.torch_version}: least squares over {len(data)} blocks of "
+                     f"'{design.name}' at batch {measurement.batch}")
+    fit_half, held = split_halves(data)
+    half = calibrate(fit_half, name)
+    return kept, half, {"other half of the blocks": mape(half, held) if held else None}
 
 
 def _measure(design, args):
