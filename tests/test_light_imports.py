@@ -1,7 +1,8 @@
 """Import contract: ``layerloom check`` on a valid file imports neither numpy (only drawing and
 measuring need it) nor jsonschema (only a broken file needs its words), ``layerloom ledger`` (as a
-table, JSON or CSV, against a pinned baseline or another file) no numpy, and reading a design, its whole pass and its ledger import no numpy,
-since a process's start-up is most of the time of a check. Checked in a fresh interpreter."""
+table, JSON or CSV, against a pinned baseline or another file) no numpy, and reading a design, its
+whole pass and its ledger import no numpy, since a process's start-up is most of the time of a
+check. Checked in a fresh interpreter."""
 from __future__ import annotations
 
 import os

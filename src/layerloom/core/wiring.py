@@ -32,8 +32,8 @@ class Wiring:
     """A graph's blocks by index (insertion order) and their execution order.
 
     ``ids``, ``kinds``, ``levels``: each block's id, kind and level; ``feeds[k]``: block ``k``'s
-    input wires in input-port order (several on one port: see above) and ``srcs[k]`` the indices of their
-    sources; ``steps``: the indices in execution order, ``order`` their ids; ``stuck``: the ids of
+    input wires in input-port order (several on one port: see above) and ``srcs[k]`` the indices
+    of their sources; ``steps``: the indices in execution order, ``order`` their ids; ``stuck``: the ids of
     blocks on a loop or after one; ``unreached``: the ids of blocks from which no Output is reached.
     """
 
