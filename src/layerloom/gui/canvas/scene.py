@@ -28,7 +28,7 @@ from layerloom.core.folding import chip_label, chips_of, fold_groups
 from layerloom.core.kinds import KINDS
 from layerloom.core.mends import mends_for
 from layerloom.core.settings import SettingError
-from layerloom.core.stage_rows import stage_groups
+from layerloom.core.stage_rows import resolution, stage_groups
 from layerloom.core.wire_labels import label_spot, piece_boxes, tile_of, tile_rect
 from layerloom.core.wire_route import Obstacles, route
 from layerloom.gui import theme
@@ -121,6 +121,7 @@ class CanvasScene(QGraphicsScene):
         self._pieces_pending: set = set()  # wires whose pieces are not in :attr:`pieces` yet
         self.label_region: tuple | None = None  # where labels are placed now (see set_label_region)
         self._stages: dict | None = None  # stages and their labels, made on demand (see stage_cache)
+        self._staged: tuple = (None, [])  # (each block's resolution, the stages made from them), see stages()
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
         self._dirty_wires: set = set()
@@ -275,6 +276,7 @@ class CanvasScene(QGraphicsScene):
         self._ov_valid = False
         self.overview_revision += 1
         self._stages = None
+        self._staged = (None, [])
         design = self.design
         graph = self.graph
         old = self.folds
@@ -491,9 +493,14 @@ class CanvasScene(QGraphicsScene):
         return self.stage_cache("stages", self._make_stages)
 
     def _make_stages(self) -> list:
+        """The stages, made again only when the wiring, the folds or some block's resolution
+        changed (an edit of a width leaves them as they were)."""
         results = self.document.results()
         shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
-        return stage_groups(self.graph, shapes, self.folds)
+        key = {b: resolution(shape) for b, shape in shapes.items()}
+        if key != self._staged[0]:
+            self._staged = (key, stage_groups(self.graph, shapes, self.folds))
+        return self._staged[1]
 
     def _forget_places(self) -> None:
         """Drop what :meth:`stage_cache` keeps that depends on where cards are (the stages
@@ -586,8 +593,10 @@ class CanvasScene(QGraphicsScene):
             labelled = len(out_wires.get(w.src, ())) < 2 or self._labelled(w, chosen)
             if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), labelled):
                 continue
-            self._ov_lines[w] = item.points
             self._label_dirty.add(w)
+            if self._ov_lines.get(w) == item.points:
+                continue  # its shape or label changed, not its way: the overview is the same
+            self._ov_lines[w] = item.points
             self.wires_revision += 1
             if src not in moving and dst not in moving:
                 self.overview_revision += 1  # a still wire took another way
