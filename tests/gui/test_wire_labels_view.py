@@ -67,3 +67,29 @@ def test_labels_stand_where_the_design_puts_them_whatever_was_viewed_first(qtbot
     boxes = [box for box in forwards.values() if box is not None]
     for i, a in enumerate(boxes):  # and no two overlap
         assert not any(a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3] for b in boxes[i + 1:]), a
+
+
+def test_after_edits_and_their_undo_the_labels_stand_where_they_stood(qtbot):
+    """A change places again, from the start, the labels of the tiles it touches: after moving
+    a card across others and changing a width, undo both and every label is back at its spot."""
+    design = crowded()
+    view = CanvasView(Document(design))
+    qtbot.addWidget(view)
+    view.resize(900, 600)
+    view.show()
+    qtbot.waitExposed(view)
+    scene, doc = view.canvas_scene, view.document
+    scene.set_fold(False)
+    scene.set_label_region(None)
+    before = {w: item.label_box for w, item in scene.wires.items()}
+    d = doc.design
+    conv = next(b for b in d.analysis().order if d.blocks[b].kind == "Conv2d" and b != d.analysis().order[1])
+    x, y = d.blocks[conv].position
+    doc.apply(edits.move(d, {conv: (x + 260.0, y + 90.0)}))
+    doc.apply(edits.set_settings(d, conv, {"out_channels": 1024}))  # wider shape labels after it
+    changed = {w: item.label_box for w, item in scene.wires.items()}
+    assert changed != before
+    doc.undo_stack.undo()
+    doc.undo_stack.undo()
+    assert {w: item.label_box for w, item in scene.wires.items()} == before
+    view.close()

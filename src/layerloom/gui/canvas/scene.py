@@ -73,6 +73,7 @@ def detail_text(block, motif=None) -> str:
 
 
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
+AROUND = Qt.ItemSelectionMode.IntersectsItemBoundingRect  # a wire that goes around a place spans it
 
 
 def _overview_colour(item: BlockItem):
@@ -125,6 +126,7 @@ class CanvasScene(QGraphicsScene):
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
         self._dirty_wires: set = set()
+        self._vacated: list = []  # rectangles where cards stood still before they moved (see _on_changed)
         self._flush_queued = False
         self._syncing_selection = False
         self._total_macs = 0
@@ -233,11 +235,16 @@ class CanvasScene(QGraphicsScene):
             self._forget_places()
             if many:  # every route may change
                 self._dirty_wires.update(self.wires)
-            for bid in () if many else change.moved[key]:
-                item = self.blocks.get(bid)
-                if isinstance(item, BlockItem):
-                    self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
+            else:
+                for bid in change.moved[key]:
+                    item = self.blocks.get(bid)
+                    if isinstance(item, BlockItem):
+                        self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
+                                                 if isinstance(i, WireItem))
+                for x0, y0, x1, y1 in filter(None, self._vacated):  # wires that went around a card's old place
+                    self._dirty_wires.update(i.wire for i in self.items(QRectF(x0, y0, x1 - x0, y1 - y0), AROUND)
                                              if isinstance(i, WireItem))
+        self._vacated.clear()
         for bid in change.renamed.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
@@ -551,6 +558,7 @@ class CanvasScene(QGraphicsScene):
             self.moving.add(block_id)
             self.overview_revision += 1
             self.wires_revision += 1
+            self._vacated.append(self.obstacles.rects.get(block_id))
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
         self._label_areas += (self.obstacles.rects.get(block_id), _rect(item))
