@@ -28,12 +28,12 @@ def chain(n: int) -> tuple[Design, list[str]]:
 def counted(monkeypatch):
     """Count how many blocks inference computes (after the memo, which would hide repeats)."""
     calls = []
-    real = GraphInference._compute
+    real = GraphInference._infer
 
-    def spy(self, k):
-        calls.append(self.wiring.ids[k])
-        return real(self, k)
-    monkeypatch.setattr(GraphInference, "_compute", spy)
+    def spy(self, bid, wires):
+        calls.append(bid)
+        return real(self, bid, wires)
+    monkeypatch.setattr(GraphInference, "_infer", spy)
     return calls
 
 

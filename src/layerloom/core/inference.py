@@ -93,6 +93,17 @@ def _widen(rf: float, extent: float, jump: float) -> float:
     return rf if extent == 1 else rf + (extent - 1) * jump
 
 
+def _through(window: tuple, rf: tuple, jump: tuple) -> tuple:
+    """(rf, jump) after a window (kh, kw, sh, sw); a window of 1 or a stride of 1 keeps the tuple
+    it is given (fewer objects kept per block)."""
+    kh, kw, sh, sw = window
+    if kh != 1 or kw != 1:
+        rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
+    if sh != 1 or sw != 1:
+        jump = (jump[0] * sh, jump[1] * sw)
+    return rf, jump
+
+
 def _short(shape: Shape) -> str:
     """A shape for a message, sizes beyond 10⁹ in powers of ten."""
     return "×".join(str(d) if d < 10 ** 9 else f"{d:.3g}" for d in shape)
@@ -127,11 +138,39 @@ class GraphInference:
 
     # ----- passes
     def run(self) -> None:
-        """Infer every block."""
+        """Infer every block. The usual block (its wires one to each port, from blocks with one
+        output, other than an Output, and its kind's answer known for these settings and inputs)
+        is settled here; every other block goes through :meth:`_infer`."""
         self.reorder()
-        compute = self._compute
-        for k in self.wiring.steps:
-            compute(k)
+        results = self.results
+        results.clear()
+        self.findings.clear()
+        wiring = self.wiring
+        ids, feeds, kinds, srcs = wiring.ids, wiring.feeds, wiring.kinds, wiring.srcs
+        blocks, memo, stuck, infer, get = self.graph.blocks, self.memo, self.stuck, self._infer, results.get
+        plain = self.params is None  # settings hold no motif parameters
+        for k in wiring.steps:
+            bid, wires = ids[k], feeds[k]
+            ins = None
+            if plain and wires and bid not in stuck:
+                if len(wires) == 1:
+                    w = wires[0]
+                    r = get(w.src)
+                    if (r is not None and len(r.outs) == 1 and not w.dst_port and not w.src_port
+                            and r.fields is None and kinds[srcs[k][0]] != "Output"):
+                        ins, rf, jump = r.outs, r.rf, r.jump
+                else:
+                    ins, rf, jump = _plain_join(results, wires, kinds, srcs[k])
+            if ins is not None:
+                blk = blocks[bid]
+                known = memo.get((blk.kind, tuple(blk.settings.values()), ins))
+                if known is not None:  # kept only for finding-free blocks with as many inputs as ports
+                    outs, cost, window = known
+                    if window is not None:
+                        rf, jump = _through(window, rf, jump)
+                    results[bid] = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None))
+                    continue
+            infer(bid, wires)
 
     def update(self, dirty: set[str], topology: bool) -> None:
         """Infer again the ``dirty`` blocks and whatever downstream changes because of them."""
@@ -140,7 +179,7 @@ class GraphInference:
             self.reorder()
             dirty = set(dirty) | (before ^ self.stuck)  # blocks that joined or left a loop
         position, out_wires, wiring = self.position, self.graph.out_wires, self.wiring
-        steps = wiring.steps
+        steps, feeds = wiring.steps, wiring.feeds
         heap = [(position[b], b) for b in dirty if b in position]
         heapq.heapify(heap)
         done = set()
@@ -149,7 +188,7 @@ class GraphInference:
             if bid in done:
                 continue
             done.add(bid)
-            if self._compute(steps[p]):
+            if self._infer(bid, feeds[steps[p]]):
                 for w in out_wires[bid]:
                     if w.dst not in done:
                         heapq.heappush(heap, (position[w.dst], w.dst))
@@ -221,32 +260,12 @@ class GraphInference:
                 for b in self.wiring.unreached if not out_wires[b]]
 
     # ----- one step
-    def _compute(self, k: int) -> bool:
-        """Infer block ``k`` (its index in :attr:`wiring`) from its input wires; return True when its
-        outputs or receptive field changed."""
-        wiring = self.wiring
-        bid, wires = wiring.ids[k], wiring.feeds[k]
-        if len(wires) == 1 and self.params is None and bid not in self.stuck:  # the usual block, seen before
-            w = wires[0]
-            r = self.results.get(w.src)
-            if (r is not None and len(r.outs) == 1 and not w.dst_port and not w.src_port and r.fields is None
-                    and wiring.kinds[wiring.srcs[k][0]] != "Output"):
-                blk = self.graph.blocks[bid]
-                known = self.memo.get((blk.kind, tuple(blk.settings.values()), r.outs))
-                if known is not None:  # kept only for finding-free blocks of one input
-                    return self._settle(bid, r.outs, known, r.rf, r.jump)
-        return self._infer(bid, wires)
-
     def _settle(self, bid: str, ins: tuple, known: tuple, rf: tuple, jump: tuple, found: list | None = None) -> bool:
         """Store the result of a block whose kind's rules gave ``known`` = (outputs, cost, window)
         for inputs ``ins`` reached by receptive field ``rf`` and ``jump``."""
         outs, cost, window = known
-        if window is not None:  # a window of 1 or a stride of 1 keeps the tuples it is given
-            kh, kw, sh, sw = window
-            if kh != 1 or kw != 1:
-                rf = (_widen(rf[0], kh, jump[0]), _widen(rf[1], kw, jump[1]))
-            if sh != 1 or sw != 1:
-                jump = (jump[0] * sh, jump[1] * sw)
+        if window is not None:
+            rf, jump = _through(window, rf, jump)
         return self._store(bid, _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None)), found)
 
     def _store(self, bid: str, result: Result | None, found: list | None) -> bool:
@@ -263,7 +282,8 @@ class GraphInference:
         return old.outs != result.outs or old.rf != result.rf or old.jump != result.jump or old.fields != result.fields
 
     def _infer(self, bid: str, wires) -> bool:
-        """:meth:`_compute` for any block: every rule applied and every fault named."""
+        """Infer one block from its input ``wires`` (in port order): every rule applied and every
+        fault named. Returns True when its outputs or receptive field changed."""
         blk = self.graph.blocks[bid]
         results = self.results
         if bid in self.stuck:
@@ -539,6 +559,30 @@ def _joined(ins: list, given: list) -> tuple:
     for (a, b), (c, e) in given:
         rf0, rf1, j0, j1 = max(rf0, a), max(rf1, b), min(j0, c), min(j1, e)
     return tuple(ins), (rf0, rf1), (j0, j1), tuple(given)
+
+
+def _plain_join(results: dict, wires: list, kinds: list, srcs: tuple) -> tuple:
+    """(input shapes, rf, jump) of a join whose wires go one to each port in order, each from the
+    one output of a block other than an Output with a known result; Nones otherwise."""
+    ins = []
+    rf0 = rf1 = 1.0
+    j0 = j1 = float("inf")
+    for port, w in enumerate(wires):
+        r = results.get(w.src)
+        if (r is None or w.dst_port != port or w.src_port or len(r.outs) != 1 or r.fields is not None
+                or kinds[srcs[port]] == "Output"):
+            return None, None, None
+        ins.append(r.outs[0])
+        (a, b), (c, e) = r.rf, r.jump
+        if a > rf0:
+            rf0 = a
+        if b > rf1:
+            rf1 = b
+        if c < j0:
+            j0 = c
+        if e < j1:
+            j1 = e
+    return tuple(ins), (rf0, rf1), (j0, j1)
 
 
 def _field(r: Result, port: int) -> tuple:

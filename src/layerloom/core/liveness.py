@@ -75,17 +75,18 @@ def live_profile(wiring: Wiring, results, inputs_outside: bool = False, plan: Pl
     order = wiring.order
     plan = plan or Plan(wiring, inputs_outside)
     allocates, death, last_reader = plan.allocates, plan.death, plan.last_reader
-    freed = [0] * (len(order) + 1)  # elements freed after each step
-    live, total = [], 0
-    for i, r in enumerate(map(results.get, order)):
+    freed = [0] * (len(order) + 1)  # elements freed after each step (written before the step is reached)
+    live: list[int] = []
+    add, total = live.append, 0
+    for r, allocated, dies, last, gone in zip(map(results.get, order), allocates, death, last_reader, freed):
         if r is None:
-            live.append(total)
+            add(total)
         else:
-            if allocates[i]:
+            if allocated:
                 outs = r.outs
                 size = prod(outs[0]) if len(outs) == 1 else sum(map(prod, outs))
                 total += size
-                freed[death[i]] += size
-            live.append(total + (r.extra_freed if last_reader[i] else r.extra))
-        total -= freed[i]
+                freed[dies] += size
+            add(total + (r.extra_freed if last else r.extra))
+        total -= gone
     return live
