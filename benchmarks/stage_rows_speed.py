@@ -6,7 +6,9 @@ editor runs it (fold groups, stages, columns, wrap width, positions; shapes read
 analysis); routing every wire around the cards is timed on its own (it runs when a layout lands,
 not per frame). A frame is a repaint of the viewport as the event loop does it (far out, the
 overview is drawn once into a pixmap and blitted while nothing changes), also timed after a change
-that redraws the overview, and as a full render into an offscreen image (what a picture costs).
+that redraws the overview, after an edit (a convolution's width: shapes after it and a clash, so
+cards and findings change but no wire's way), and as a full render into an offscreen image (what a
+picture costs).
 
     QT_QPA_PLATFORM=offscreen PYTHONPATH=src:benchmarks python benchmarks/stage_rows_speed.py
 """
@@ -116,6 +118,16 @@ def main() -> None:
         repaint_cpu.append((time.process_time() - c) * 1000)
 
     repaint_cpu: list[float] = []
+    document = view.document
+    convs = [b for b in design.analysis().order if design.blocks[b].kind == "Conv2d"]
+    edited = convs[len(convs) // 2]
+
+    def edited_repaint():  # one convolution's width changed (shapes after it, a clash at its Add): the repaint
+        width = design.blocks[edited].settings["out_channels"]
+        document.apply(edits.set_settings(design, edited, {"out_channels": 33 if width == 32 else 32}))
+        t = time.perf_counter()
+        view.viewport().repaint()
+        return (time.perf_counter() - t) * 1000
 
     print(f"fit to view: zoom {view.zoom_level():.3f}, overview drawing {'on' if scene.overview else 'off'}, "
           f"stage labels {'on' if view.shows_stage_summaries() else 'off'}")
@@ -140,6 +152,7 @@ def main() -> None:
         repaint_cpu.clear()
         report("  the same after a change (overview redrawn)", timed(changed_repaint, FRAMES), 16)
         report("    its CPU time", repaint_cpu, 16)
+        report("  the first repaint after an edit", [edited_repaint() for _ in range(FRAMES)], 16)
         report("  full render into an image (as a picture)", timed(frame, FRAMES), 16)
         scene.set_fold(False)
         view.fit_all()

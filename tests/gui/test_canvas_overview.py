@@ -101,3 +101,42 @@ def test_far_out_a_dragged_card_is_drawn_live_over_the_still_picture(qtbot):
     doc.apply(edits.move(d, {b: (x + 5, y) for b, (x, y) in ((b, d.blocks[b].position) for b in ids)}))
     assert not scene.moving
     view.close()
+
+
+def test_far_out_a_change_of_cards_alone_keeps_the_wires_picture_and_shows_the_change(qtbot):
+    """Far out the still wires are a picture of their own: a finding on a card redraws the cards
+    over the same wires picture; taking a wire away redraws the wires; undo gives back the picture."""
+    import numpy as np
+    from PySide6.QtGui import QImage
+
+    def picture():
+        view.viewport().repaint()
+        image = view.viewport().grab().toImage().convertToFormat(QImage.Format.Format_RGB32)
+        return np.array(image.constBits(), dtype=np.uint8).reshape(image.height(), image.bytesPerLine() // 4, 4).copy()
+
+    d, ids, doc, view = chain_view(qtbot)
+    view.fit_all()
+    scene = view.canvas_scene
+    assert scene.overview
+    before = picture()
+    wires_picture = view._ov_wires[2]
+    doc.apply(edits.set_settings(d, ids[30], {"groups": 3}))  # an error: a red outline, the same wires
+    red = picture()
+    assert view._ov_wires[2] is wires_picture
+    x, y, right, bottom = scene.obstacles.rects[ids[30]]
+    corner = view.mapFromScene(x, y)
+    near = red[max(corner.y() - 1, 0):corner.y() + 3, max(corner.x() - 1, 0):corner.x() + 3, :3].reshape(-1, 3)
+    error = theme.ERROR
+    assert any(abs(int(b) - error.blue()) + abs(int(g) - error.green()) + abs(int(r) - error.red()) < 60
+               for b, g, r in near), "the card's outline turns red"
+    doc.undo_stack.undo()
+    assert (picture() == before).all()
+    (wire,) = [w for w in scene.wires if w.src == ids[40]]
+    a, b = scene.wires[wire].points[0], scene.wires[wire].points[-1]
+    doc.apply(edits.disconnect(d, wire))
+    cut = picture()
+    assert view._ov_wires[2] is not wires_picture
+    middle = view.mapFromScene((a[0] + b[0]) / 2, (a[1] + b[1]) / 2)
+    around = (slice(middle.y() - 2, middle.y() + 3), slice(middle.x() - 2, middle.x() + 3))
+    assert (cut[around] != before[around]).any(), "the wire is gone from the picture"
+    view.close()

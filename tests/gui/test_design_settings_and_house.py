@@ -1,6 +1,6 @@
 """The design's own settings in Block settings (set by typing, one undo step each, saved and read
 back), keys handed back to the canvas from Block settings, and a steady house: the right column
-keeps its width, the Parts shelf reaches every family at 1280 px and folds them, a refusal moves no
+keeps its width, the Parts shelf shows every part at 1280×800 without scrolling and folds families, a refusal moves no
 field, dock sizes and the ledger's metric are remembered.
 """
 from __future__ import annotations
@@ -119,32 +119,37 @@ def test_the_right_column_keeps_its_width_when_the_legend_grows(qtbot, tmp_path)
     shoot(window, "legend_long_1280")
 
 
-def test_at_1280_every_family_is_reachable_and_a_family_folds(qtbot, tmp_path):
+def test_at_1280_every_part_shows_without_scrolling_and_a_family_folds(qtbot, tmp_path):
     window, _ = open_window(qtbot, tmp_path)
     window.resize(1280, 800)
     QApplication.processEvents()
     parts = window.shelf.parts
-    strip = parts.scroll.widget()
+    strip, viewport = parts.scroll.widget(), parts.scroll.viewport()
     groups = [*parts.groups, parts.motif_group]
-    assert parts.scroll.horizontalScrollBar().maximum() == 0
-    for g in groups:  # each within the shelf's width, none hidden past its right edge
-        assert g.isVisible() and g.geometry().right() <= strip.width(), g.family
-        for tile in g.tiles:
-            assert tile.label.width() >= tile.label.sizeHint().width(), tile.label.text()  # no cut-off title
-    bar = parts.scroll.verticalScrollBar()
-    bar.setValue(bar.maximum())
-    QApplication.processEvents()
-    assert parts.motif_group.visibleRegion().boundingRect().height() > 0  # Motifs reachable by scrolling
-    shoot(window, "shelf_1280_scrolled_to_motifs")
-    before = strip.height()
+    assert parts.scroll.verticalScrollBar().maximum() == 0 and not parts.scroll.verticalScrollBar().isVisible()
+    assert strip.height() <= viewport.height() and strip.width() <= viewport.width()
+    seen = viewport.rect()
+    for g in groups:
+        assert g.heading.isVisible() and seen.contains(g.heading.geometry()), g.family
+        for tile in g.tiles:  # whole, inside the shelf's view, its name not cut
+            assert tile.isVisible() and seen.contains(tile.geometry()), tile.payload
+            assert tile.label.width() >= tile.label.sizeHint().width(), tile.label.text()
+            assert tile.label.text() in tile.toolTip() and tile.matches(tile.label.text())
+    assert parts.tiles["Add"].label.text() == "Add" and "Add (residual)" in parts.tiles["Add"].toolTip()
+    assert parts.tiles["Add"].matches("residual")  # the filter still finds the bracketed words
+    shoot(window, "shelf_1280")
+    window.shelf.setCurrentWidget(window.shelf.findings)
+    assert not parts.filter.isVisible()  # the filter in the tab bar belongs to Parts
+    window.shelf.setCurrentWidget(parts)
+    assert parts.filter.isVisible()
+    before = parts.motif_group.tiles[0].y()
     for g in parts.groups:
         g.heading.click()
-    assert all(g.folded and not g.body.isVisible() for g in parts.groups)
-    qtbot.waitUntil(lambda: strip.height() < before, timeout=2000)
-    bar.setValue(0)
+    assert all(g.folded and not any(t.isVisible() for t in g.tiles) and g.heading.isVisible() for g in parts.groups)
+    qtbot.waitUntil(lambda: parts.motif_group.tiles[0].y() < before, timeout=2000)  # Motifs move up
     shoot(window, "shelf_1280_folded")
     parts.groups[0].heading.click()
-    assert not parts.groups[0].folded and parts.groups[0].body.isVisible()
+    assert not parts.groups[0].folded and all(t.isVisible() for t in parts.groups[0].tiles)
 
 
 def test_dock_sizes_the_ledger_metric_and_folded_families_are_remembered(qtbot, tmp_path):

@@ -266,7 +266,7 @@ def test_dropping_a_library_motif_defines_it_and_adds_an_instance_in_one_step(qt
     assert {p for p, t in parts.motif_tiles.items() if t.isVisible()} == {
         "library:bottleneck", "library:bottleneck_projection", "design:bottleneck"}
     parts.filter.clear()
-    parts.scroll.ensureWidgetVisible(parts.motif_group)
+    parts.scroll.ensureWidgetVisible(parts.motif_group.heading)
     QApplication.processEvents()
     parts.grab().save(str(SHOTS / "parts_motifs_group.png"))
     doc.undo_stack.undo()

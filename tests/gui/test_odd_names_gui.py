@@ -3,6 +3,7 @@ marks keep the window at the size it was given, wrap in Block settings and are e
 hover) in the Findings list and its mend line; nothing is cut off at the panel's edge."""
 from __future__ import annotations
 
+import pytest
 from PySide6.QtWidgets import QApplication, QWidget
 from test_window_files import open_window
 
@@ -156,3 +157,48 @@ def test_a_name_with_an_unclosed_right_to_left_override_leaves_the_message_reada
     assert "\\u202eevil adds 64 channels to 128 channels" in window.block_settings.facts.text()
     assert window.document.design.blocks[join].name == "\u202eevil"  # the name itself is kept as typed
     window.close()
+
+
+STACKED = "a" + "\u0301" * 40  # 'a' under forty combining acute accents
+
+
+def card_picture(qtbot, name: str, zoom: float):
+    """A canvas showing one convolution named ``name`` at ``zoom``: its viewport picture as an
+    array of pixels, and the card's rectangle in it."""
+    import numpy as np
+    from PySide6.QtGui import QImage, QTransform
+
+    from layerloom.gui.canvas import CanvasView
+    from layerloom.gui.canvas.block_item import H, W
+    from layerloom.gui.document import Document
+
+    d = Design()
+    d.add("Conv2d", d.input(3, 32, 32), out_channels=8, name=name, position=(600.0, 0.0))
+    view = CanvasView(Document(d))
+    qtbot.addWidget(view)
+    view.resize(700, 420)
+    view.show()
+    qtbot.waitExposed(view)
+    view.setTransform(QTransform.fromScale(zoom, zoom))
+    view.centerOn(600.0 + W / 2, H / 2)
+    QApplication.processEvents()
+    image = view.viewport().grab().toImage().convertToFormat(QImage.Format.Format_RGB32)
+    pixels = np.array(image.constBits(), dtype=np.uint8).reshape(image.height(), image.bytesPerLine() // 4, 4)
+    card = view.mapFromScene(600.0, 0.0), view.mapFromScene(600.0 + W, H)
+    view.close()
+    return pixels[:, :image.width()].copy(), card
+
+
+@pytest.mark.parametrize("zoom", [2.0, 1.0, 0.5, 0.47, 0.25])  # close up; far: name and shape, name only; overview
+def test_combining_marks_stacked_on_a_name_stay_inside_its_card(qtbot, zoom):
+    """A name drawn with forty accents stacked on one letter differs from the plain name only
+    inside the card: the marks beyond what a line holds are dropped, never drawn above the card."""
+    import numpy as np
+
+    plain, (top_left, bottom_right) = card_picture(qtbot, "a", zoom)
+    stacked, _ = card_picture(qtbot, STACKED, zoom)
+    assert plain.shape == stacked.shape
+    rows, cols = np.nonzero((plain != stacked).any(axis=2))
+    assert len(rows), "the accents are drawn somewhere"
+    assert rows.min() >= top_left.y() and rows.max() <= bottom_right.y(), (rows.min(), top_left.y())
+    assert cols.min() >= top_left.x() and cols.max() <= bottom_right.x()

@@ -7,18 +7,23 @@
   refuses itself.)
 - :func:`quote` shows a value in a one-line message: quoted, control characters escaped, shortened
   to :data:`QUOTE_LIMIT` characters.
+- :func:`few_marks` keeps a drawn name within its line: at most :data:`MARKS_KEPT` combining marks
+  stacked on one letter.
 """
 from __future__ import annotations
 
 import json
 import math
 import re
+import unicodedata
 from typing import Any
 
 POSITION_LIMIT = 1e9
 """Farthest a block may lie from the canvas origin, in scene units."""
 QUOTE_LIMIT = 60
 """Most characters of a value quoted in a message."""
+MARKS_KEPT = 2
+"""Most combining marks drawn on one letter (written languages stack two at most, e.g. Vietnamese ệ)."""
 
 _SURROGATE = re.compile("[\ud800-\udfff]")
 _SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F]")  # how a lone surrogate is written in JSON
@@ -100,6 +105,23 @@ def label(name: str, limit: int = QUOTE_LIMIT) -> str:
 
 
 _DIRECTION = re.compile("[\u202a-\u202e\u2066-\u2069]")  # embeddings, overrides, isolates
+
+
+def few_marks(text: str, most: int = MARKS_KEPT) -> str:
+    """``text`` with the combining marks beyond the first ``most`` on each letter left out, so
+    that marks stacked on one letter (``'a'`` and forty accents) are not drawn far above its line.
+
+    >>> few_marks("a" + "\u0301" * 40) == "a\u0301\u0301"
+    True
+    """
+    if text.isascii():
+        return text
+    kept, run = [], 0
+    for ch in text:
+        run = run + 1 if unicodedata.category(ch) in ("Mn", "Me") else 0
+        if run <= most:
+            kept.append(ch)
+    return "".join(kept)
 
 
 def one_line(message: str, limit: int = 2000) -> str:

@@ -8,6 +8,11 @@ label is tried above and below the middle of the wire's longest level stretch, t
 places along the wire; the first place that touches nothing wins, and a label with no such place is
 not shown (the card it leaves shows the same shape at its right edge).
 
+Labels are placed tile by tile (:data:`TILE`): a label stands wholly inside the tile holding the
+middle of its wire's first stretch (:func:`tile_of`) and is placed against that tile's labels
+only, in the order of the wires' names, so its spot follows from the design alone, whichever part
+of the canvas was shown (and placed) first.
+
 >>> from layerloom.core.wire_route import Obstacles
 >>> cards = Obstacles({"a": (0, 0, 100, 50), "b": (170, 0, 270, 50)})
 >>> label_spot(((101, 25), (169, 25)), (40, 12), 1.0, cards.blocked)
@@ -17,10 +22,16 @@ True
 """
 from __future__ import annotations
 
+from math import floor
+
+from layerloom.core.stage_rows import CARD_WIDTH, COLUMN
+
 GAP = 1.0  # room between a label and the wire it names
 CURVE_PIECES = 10  # straight pieces a curve is sampled into
 PLACES = (0.5, 0.3, 0.7, 0.1, 0.9)  # where along a stretch a label is tried, in order
 STRETCHES = 3  # the longest level pieces (then others) a label is tried beside
+TILE = (4 * COLUMN, 640.0)  # width and height of the tiles in which labels are placed, scene pixels
+TILE_ORIGIN = (CARD_WIDTH / 2, 0.0)  # a corner of a tile: tiles' sides run through the middle of Tidy's columns of cards
 
 
 def curve_points(a, b, reach: float) -> tuple:
@@ -70,3 +81,21 @@ def label_spot(points, size, half: float, blocked) -> tuple[float, float] | None
                 if not blocked(left, top, left + w, top + h):
                     return (left, top)
     return None
+
+
+def tile_of(points) -> tuple[int, int]:
+    """The tile (column, row) of the label of the wire with polyline ``points``: the one holding
+    the middle of the stretch its label is tried beside first.
+
+    >>> tile_of(((100, 25), (1100, 25)))
+    (0, 0)
+    """
+    (xa, ya), (xb, yb) = _stretches(points)[0]
+    return floor(((xa + xb) / 2 - TILE_ORIGIN[0]) / TILE[0]), floor(((ya + yb) / 2 - TILE_ORIGIN[1]) / TILE[1])
+
+
+def tile_rect(tile: tuple[int, int]) -> tuple[float, float, float, float]:
+    """``(left, top, right, bottom)`` of ``tile``."""
+    (col, row), (w, h), (x, y) = tile, TILE, TILE_ORIGIN
+    return x + col * w, y + row * h, x + (col + 1) * w, y + (row + 1) * h
+

@@ -1,18 +1,30 @@
 """A layout that places widgets left to right and starts a new row when the width runs out, like
-words on a line; its height follows its width (so a scroll area around it scrolls vertically)."""
+words on a line, with run-in headings; its height follows its width (so a scroll area around it
+scrolls vertically)."""
 from __future__ import annotations
 
 from PySide6.QtCore import QPoint, QRect, QSize, Qt
-from PySide6.QtWidgets import QLayout
+from PySide6.QtWidgets import QLayout, QWidget
 
 
 class FlowLayout(QLayout):
-    """Rows of widgets, each at its size hint, ``spacing`` pixels apart both ways; rows top-aligned."""
+    """Rows of widgets, each at its size hint, ``spacing`` pixels apart both ways; rows top-aligned
+    and each as tall as its tallest widget, widgets centred in it. A widget added as a heading
+    (:meth:`add_heading`) never ends a row (it moves to the next row with the widget after it) and
+    stands ``heading_gap`` pixels from the widget before it."""
 
-    def __init__(self, parent=None, spacing: int = 12):
+    def __init__(self, parent=None, spacing: int = 12, heading_gap: int = 0):
         super().__init__(parent)
         self._items = []
-        self._gap = spacing
+        self._headings: set[int] = set()
+        self._gap, self._heading_gap = spacing, heading_gap
+
+    def add_heading(self, widget: QWidget) -> None:
+        self._headings.add(id(widget))
+        self.addWidget(widget)
+
+    def _is_heading(self, item) -> bool:
+        return item.widget() is not None and id(item.widget()) in self._headings
 
     def addItem(self, item) -> None:  # noqa: N802 (Qt naming)
         self._items.append(item)
@@ -54,15 +66,28 @@ class FlowLayout(QLayout):
         """Lay the items out in ``rect`` (moving them when ``place``); the height used."""
         m = self.contentsMargins()
         area = rect.adjusted(m.left(), m.top(), -m.right(), -m.bottom())
-        x, y, row_height = area.x(), area.y(), 0
-        for item in self._items:
-            if item.isEmpty():
-                continue
-            hint = item.sizeHint()
-            if x > area.x() and x + hint.width() > area.right() + 1:
-                x, y, row_height = area.x(), y + row_height + self._gap, 0
+        rows: list[list] = [[]]
+        x = area.x()
+        shown = [item for item in self._items if not item.isEmpty()]
+        for i, item in enumerate(shown):
+            width = item.sizeHint().width()
+            heading = self._is_heading(item)
+            if heading and x > area.x():
+                x += self._heading_gap
+            need = width
+            if heading and i + 1 < len(shown) and not self._is_heading(shown[i + 1]):
+                need += self._gap + shown[i + 1].sizeHint().width()
+            if rows[-1] and x + need > area.right() + 1:
+                rows.append([])
+                x = area.x()
+            rows[-1].append((item, x))
+            x += width + self._gap
+        y = area.y()
+        for row in rows:
+            height = max((item.sizeHint().height() for item, _ in row), default=0)
             if place:
-                item.setGeometry(QRect(QPoint(x, y), hint))
-            x += hint.width() + self._gap
-            row_height = max(row_height, hint.height())
-        return y + row_height - rect.y() + m.bottom()
+                for item, left in row:
+                    hint = item.sizeHint()
+                    item.setGeometry(QRect(QPoint(left, y + (height - hint.height()) // 2), hint))
+            y += height + self._gap
+        return y - self._gap - rect.y() + m.bottom() if shown else m.top() + m.bottom()

@@ -4,16 +4,17 @@ Motifs group, to drag up onto the canvas) and Findings as its second tab.
 A kind's tile carries its name as MIME type ``KIND_MIME`` (UTF-8); a motif's tile carries
 ``library:<key>`` (a motif of the library, defined in the design when dropped) or ``design:<name>``
 (a motif the open design defines) as ``MOTIF_MIME``. The canvas accepts both as drops. The filter
-box keeps the tiles whose title, name or family contains the typed text (``1x1`` also finds ``1×1``).
-Families are placed like words on a line and wrap to further rows (the shelf scrolls vertically),
-so every family, Motifs included, can be reached at any width; clicking a family's heading folds
-its tiles away.
+box (in the shelf's tab bar) keeps the tiles whose title, name or family contains the typed text
+(``1x1`` also finds ``1×1``). Each family's heading runs in before its tiles and all are placed
+like words on lines, so at 1280×800 every part shows without scrolling (the shelf scrolls
+vertically when it is smaller); a tile shows its title without a bracketed qualifier, which its
+tooltip keeps. Clicking a family's heading folds its tiles away.
 """
 from __future__ import annotations
 
 from PySide6.QtCore import QMimeData, QPoint, QSize, Qt
 from PySide6.QtGui import QDrag, QPainter, QPen, QPixmap
-from PySide6.QtWidgets import (QApplication, QFrame, QGridLayout, QHBoxLayout, QLabel, QLineEdit, QScrollArea,
+from PySide6.QtWidgets import (QApplication, QFrame, QHBoxLayout, QLabel, QLineEdit, QScrollArea,
                                QTabWidget, QToolButton, QVBoxLayout, QWidget)
 
 from layerloom.core.kinds import KINDS
@@ -29,13 +30,21 @@ from layerloom.gui.flow_layout import FlowLayout
 FAMILY_ORDER = ("Ends", "Convolution", "Norm & activation", "Pooling & resizing", "Joins", "Dense", "Plumbing")
 """Families left to right in the order data usually meets them; other families follow."""
 HIDDEN_KINDS = {"Motif", "Unmapped"}  # an instance needs a motif of the design; an unmapped operation comes from import
-TILE_ROWS = 3  # tiles per column at least; more when the shelf is taller
 TILE_GAP = 3
-GLYPH_PX = 16
+FAMILY_GAP = 12  # more pixels before a family's heading than between tiles
+GLYPH_PX = 14
+FILTER_WIDTH = 260
 
 
 def _fold(text: str) -> str:
     return text.lower().replace("×", "x")
+
+
+def tile_text(title: str) -> str:
+    """What a tile shows: ``title`` without a closing qualifier in brackets (``Add (residual)`` →
+    ``Add``), which its tooltip and the filter keep."""
+    head, bracket, _ = title.rpartition(" (")
+    return head if bracket and title.endswith(")") and head else title
 
 
 def families() -> dict[str, list[str]]:
@@ -71,15 +80,15 @@ class DragTile(QFrame):
 
     def __init__(self, glyph: str, title: str, payload: str, words: tuple[str, ...], tip: str, parent=None):
         super().__init__(parent)
-        self.payload, self._words = payload, words
+        self.payload, self._words = payload, (title, *words)
         self.setObjectName("part_tile")
         self.setCursor(Qt.CursorShape.OpenHandCursor)
         self.setToolTip(tip + "\nDrag onto the canvas to add it.")
         row = QHBoxLayout(self)
-        row.setContentsMargins(5, 2, 8, 2)
-        row.setSpacing(5)
+        row.setContentsMargins(3, 0, 6, 0)
+        row.setSpacing(4)
         row.addWidget(GlyphMark(glyph))
-        self.label = QLabel(title)
+        self.label = QLabel(tile_text(title))
         row.addWidget(self.label)
         self._press: QPoint | None = None
 
@@ -152,12 +161,18 @@ def motif_tiles(design) -> list[MotifTile]:
     return tiles
 
 
-class FamilyGroup(QWidget):
-    """A family's heading above its tiles, laid out in columns of :attr:`rows` tiles (as many as
-    the shelf's height holds); clicking the heading folds the tiles away (and back)."""
+class FilterBox(QLineEdit):
+    """The Parts filter, in the shelf's tab bar: wide enough for its hint, narrower when room is short."""
 
-    def __init__(self, family: str, tiles: list[DragTile], parent=None):
-        super().__init__(parent)
+    def sizeHint(self) -> QSize:  # noqa: N802 (Qt naming)
+        return QSize(FILTER_WIDTH, super().sizeHint().height())
+
+
+class FamilyGroup:
+    """A family's heading and its tiles, placed by the shelf's column flow; clicking the heading
+    folds the tiles away (and back)."""
+
+    def __init__(self, family: str, tiles: list[DragTile]):
         self.family = family
         self.heading = QToolButton()
         self.heading.setObjectName("family_heading")
@@ -170,70 +185,45 @@ class FamilyGroup(QWidget):
         self.heading.setToolTip(f"Fold or unfold {family}")
         self.heading.toggled.connect(self._unfold)
         self.tiles = tiles
+        self._shown: list[DragTile] = []
         self._shown_text = ""
-        self.rows = TILE_ROWS
-        self.body = QWidget()
-        self.grid = QGridLayout(self.body)
-        self.grid.setContentsMargins(0, 0, 0, 0)
-        self.grid.setSpacing(TILE_GAP)
-        col = QVBoxLayout(self)
-        col.setContentsMargins(0, 0, 0, 0)
-        col.setSpacing(2)
-        col.addWidget(self.heading, 0, Qt.AlignmentFlag.AlignLeft)
-        col.addWidget(self.body)
-        col.addStretch(1)
-        self.show_matching("")
 
     @property
     def folded(self) -> bool:
         return not self.heading.isChecked()
 
+    @property
+    def shown(self) -> list[DragTile]:
+        """The tiles matching the filter (folded or not)."""
+        return self._shown
+
     def _unfold(self, on: bool) -> None:
         self.heading.setArrowType(Qt.ArrowType.DownArrow if on else Qt.ArrowType.RightArrow)
-        self.body.setVisible(on)
-        self.updateGeometry()
-
-    def set_tiles(self, tiles: list[DragTile]) -> None:
-        """Replace the tiles (the Motifs group, when the design's motifs change)."""
-        for tile in self.tiles:
-            self.grid.removeWidget(tile)
-            tile.hide()
-            tile.deleteLater()
-        self.tiles = tiles
         self.show_matching(self._shown_text)
 
-    def set_rows(self, rows: int) -> None:
-        """Lay the tiles out in columns of ``rows``."""
-        if rows != self.rows:
-            self.rows = rows
-            self.show_matching(self._shown_text)
-
     def show_matching(self, text: str) -> int:
-        """Show only tiles matching ``text``, packed without gaps; returns how many are shown."""
+        """Show only tiles matching ``text`` (none while folded) and the heading if any matches;
+        returns how many match."""
         self._shown_text = text
+        self._shown = [t for t in self.tiles if t.matches(text)]
         for tile in self.tiles:
-            self.grid.removeWidget(tile)
-        shown = [t for t in self.tiles if t.matches(text)]
-        for i, tile in enumerate(shown):
-            self.grid.addWidget(tile, i % self.rows, i // self.rows)
-        for tile in self.tiles:
-            tile.setVisible(tile in shown)
-        self.setVisible(bool(shown))
-        return len(shown)
+            tile.setVisible(tile in self._shown and not self.folded)
+        self.heading.setVisible(bool(self._shown))
+        return len(self._shown)
 
 
 class PartsPanel(QWidget):
-    """The Parts tab: a filter box, the family groups side by side, and the Motifs group (the
-    library's and, with a ``document``, the open design's)."""
+    """The Parts tab: each family's heading followed by its tiles, placed like words on lines, and
+    the Motifs group (the library's and, with a
+    ``document``, the open design's). Its filter box sits in the shelf's tab bar."""
 
     def __init__(self, document: Document | None = None, parent=None):
         super().__init__(parent)
         self.document = document
-        self.filter = QLineEdit()
+        self.filter = FilterBox()
         self.filter.setObjectName("parts_filter")
         self.filter.setPlaceholderText("Filter parts (e.g. 1x1, pool, add)")
         self.filter.setClearButtonEnabled(True)
-        self.filter.setMaximumWidth(320)
         self.filter.textChanged.connect(self.apply_filter)
         self.empty = QLabel("No part matches.")
         self.empty.setObjectName("muted")
@@ -243,11 +233,14 @@ class PartsPanel(QWidget):
 
         strip = QWidget()
         strip.setObjectName("parts_strip")
-        flow = FlowLayout(strip, spacing=14)
+        self.flow = flow = FlowLayout(strip, spacing=TILE_GAP, heading_gap=FAMILY_GAP)
         flow.setContentsMargins(0, 0, 0, 0)
-        for g in (*self.groups, self.motif_group):
-            flow.addWidget(g)
         flow.addWidget(self.empty)
+        for g in (*self.groups, self.motif_group):
+            flow.add_heading(g.heading)
+            for tile in g.tiles:
+                flow.addWidget(tile)
+            g.show_matching("")
         self.scroll = scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
@@ -256,9 +249,7 @@ class PartsPanel(QWidget):
         scroll.setWidget(strip)
 
         col = QVBoxLayout(self)
-        col.setContentsMargins(6, 5, 6, 2)
-        col.setSpacing(4)
-        col.addWidget(self.filter)
+        col.setContentsMargins(6, 4, 6, 2)
         col.addWidget(scroll, 1)
         if document is not None:
             document.replaced.connect(self.refresh_motifs)
@@ -274,7 +265,14 @@ class PartsPanel(QWidget):
         return {t.payload: t for t in self.motif_group.tiles}
 
     def refresh_motifs(self) -> None:
-        self.motif_group.set_tiles(motif_tiles(self.document.design))
+        """New tiles for the Motifs group (the last in the flow, so they are added at its end)."""
+        for tile in self.motif_group.tiles:
+            self.flow.removeWidget(tile)
+            tile.hide()
+            tile.deleteLater()
+        self.motif_group.tiles = motif_tiles(self.document.design)
+        for tile in self.motif_group.tiles:
+            self.flow.addWidget(tile)
         self.apply_filter(self.filter.text())
 
     def remember_folds(self, settings) -> None:
@@ -284,16 +282,6 @@ class PartsPanel(QWidget):
             group.heading.setChecked(group.family not in folded)
             group.heading.toggled.connect(lambda _on: settings.setValue(
                 "parts/folded", [g.family for g in (*self.groups, self.motif_group) if g.folded]))
-
-    def resizeEvent(self, event) -> None:  # noqa: N802 (Qt naming)
-        """As many tiles per column as the shelf's height holds below a family's heading."""
-        super().resizeEvent(event)
-        group = self.groups[0]
-        tile = max(t.sizeHint().height() for t in group.tiles) + TILE_GAP
-        room = self.scroll.viewport().height() - group.heading.sizeHint().height() - 2
-        rows = max(TILE_ROWS, (room + TILE_GAP) // tile)
-        for g in (*self.groups, self.motif_group):
-            g.set_rows(rows)
 
     def apply_filter(self, text: str) -> None:
         shown = sum(g.show_matching(text) for g in (*self.groups, self.motif_group))
@@ -311,6 +299,8 @@ class Shelf(QTabWidget):
         self.findings = FindingsList(document)
         self.addTab(self.parts, "Parts")
         self.addTab(self.findings, "Findings")
+        self.setCornerWidget(self.parts.filter, Qt.Corner.TopRightCorner)
+        self.currentChanged.connect(lambda _i: self.parts.filter.setVisible(self.currentWidget() is self.parts))
 
         self.findings.counts_changed.connect(self._count)
         self._count(*self.findings.counts())

@@ -17,6 +17,7 @@ from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QBrush, QFont, QFontMetricsF, QPainterPath, QPen
 from PySide6.QtWidgets import QGraphicsItem, QStyle
 
+from layerloom.core.values import few_marks
 from layerloom.gui import theme
 from layerloom.gui.canvas.glyphs import glyph_for
 
@@ -148,6 +149,7 @@ class BlockItem(QGraphicsItem):
         self.block_id = block_id
         self.state = state
         self._title = self._detail = self._cost = ""
+        self.name_shown = ""  # the name as drawn: marks stacked beyond a line's height left out
         self._shape_row = DETAIL_BASE
         self.chip_items: list = []  # ChipItems (children), set by the scene, placed by the card
         self._chip_x: list[float] = []  # left edge of each chip on the second line
@@ -181,16 +183,17 @@ class BlockItem(QGraphicsItem):
         """Elide the texts once; the output shape shares the second line, or moves up beside the
         title when the settings need the whole line (a motif's name)."""
         s = self.state
+        self.name_shown = name = few_marks(s.title)
         room = W - TITLE_LEFT - theme.PADDING
         shape_w = advance("figure", s.shape) + 8 if s.shape else 0
         detail_room = W - 2 * theme.PADDING - theme.NOTCH_DEPTH
         if s.cost:  # three lines: the title, the detail, the cost beside the shape
             self._shape_row = MOTIF_BASES[2]
-            self._title = metrics("title").elidedText(s.title, ELIDE, room)
+            self._title = metrics("title").elidedText(name, ELIDE, room)
             self._detail = metrics("detail").elidedText(s.detail, ELIDE, detail_room)
             self._cost = metrics("figure").elidedText(s.cost, ELIDE, detail_room - shape_w)
             return
-        title_w = advance("title", s.title)
+        title_w = advance("title", name)
         widths = [chip_width(label) for label in s.chips]
         chips_w = sum(ARROW + w for w in widths)
         detail_w = advance("detail", s.detail) + chips_w
@@ -201,7 +204,7 @@ class BlockItem(QGraphicsItem):
             detail_room -= shape_w
         if self._shape_row == TITLE_BASE:
             room -= shape_w
-        self._title = s.title if title_w <= room else metrics("title").elidedText(s.title, ELIDE, room)
+        self._title = name if title_w <= room else metrics("title").elidedText(name, ELIDE, room)
         text_room = max(detail_room - chips_w, 24.0)
         self._detail = s.detail if detail_w <= detail_room else metrics("detail").elidedText(s.detail, ELIDE, text_room)
         x = theme.PADDING + advance("detail", self._detail)
@@ -221,7 +224,7 @@ class BlockItem(QGraphicsItem):
         step = px * LINE_STEP
         lines: list[TextLine] = []
         room = W - 2 * theme.PADDING
-        texts = [("title", self.state.title)]
+        texts = [("title", self.name_shown)]
         shape = self.state.shape or (self.state.detail if self.state.kind == "Input" else "")  # an Input's is its detail
         if shape and 2 * step + 4 <= H:
             texts.append(("figure", shape))

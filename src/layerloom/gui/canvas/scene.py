@@ -28,8 +28,8 @@ from layerloom.core.folding import chip_label, chips_of, fold_groups
 from layerloom.core.kinds import KINDS
 from layerloom.core.mends import mends_for
 from layerloom.core.settings import SettingError
-from layerloom.core.stage_rows import stage_groups
-from layerloom.core.wire_labels import label_spot, piece_boxes
+from layerloom.core.stage_rows import resolution, stage_groups
+from layerloom.core.wire_labels import label_spot, piece_boxes, tile_of, tile_rect
 from layerloom.core.wire_route import Obstacles, route
 from layerloom.gui import theme
 from layerloom.gui.canvas.badge_item import BadgeItem
@@ -73,7 +73,7 @@ def detail_text(block, motif=None) -> str:
 
 
 NO_CONTENTS = QGraphicsItem.GraphicsItemFlag.ItemHasNoContents
-LABEL_REACH = (100.0, 24.0)  # how far from a wire its label may stand (a wide shape label, beside it)
+AROUND = Qt.ItemSelectionMode.IntersectsItemBoundingRect  # a wire that goes around a place spans it
 
 
 def _overview_colour(item: BlockItem):
@@ -116,13 +116,17 @@ class CanvasScene(QGraphicsScene):
         self._label_dirty: set = set()  # wires whose label goes somewhere again (see place_labels)
         self._label_areas: list = []  # rectangles where cards or wires came or went since the last placing
         self._labels_all = True  # every label is placed afresh
-        self._label_pending: set = set()  # wires whose label waits to be placed (out of view, or far out)
+        self._tile_of: dict = {}  # wire → the tile its label belongs to (core.wire_labels.tile_of)
+        self._tile_wires: dict = {}  # tile → wires whose label belongs to it
+        self._tiles_placed: dict = {}  # tile → wires whose label was placed in it, for the tiles placed
         self._pieces_pending: set = set()  # wires whose pieces are not in :attr:`pieces` yet
         self.label_region: tuple | None = None  # where labels are placed now (see set_label_region)
         self._stages: dict | None = None  # stages and their labels, made on demand (see stage_cache)
+        self._staged: tuple = (None, [])  # (each block's resolution, the stages made from them), see stages()
         self.badges: dict[str, list[BadgeItem]] = {}
         self._findings: dict[str, tuple] = {}
         self._dirty_wires: set = set()
+        self._vacated: list = []  # rectangles where cards stood still before they moved (see _on_changed)
         self._flush_queued = False
         self._syncing_selection = False
         self._total_macs = 0
@@ -231,11 +235,16 @@ class CanvasScene(QGraphicsScene):
             self._forget_places()
             if many:  # every route may change
                 self._dirty_wires.update(self.wires)
-            for bid in () if many else change.moved[key]:
-                item = self.blocks.get(bid)
-                if isinstance(item, BlockItem):
-                    self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
+            else:
+                for bid in change.moved[key]:
+                    item = self.blocks.get(bid)
+                    if isinstance(item, BlockItem):
+                        self._dirty_wires.update(i.wire for i in self.items(item.sceneBoundingRect())
+                                                 if isinstance(i, WireItem))
+                for x0, y0, x1, y1 in filter(None, self._vacated):  # wires that went around a card's old place
+                    self._dirty_wires.update(i.wire for i in self.items(QRectF(x0, y0, x1 - x0, y1 - y0), AROUND)
                                              if isinstance(i, WireItem))
+        self._vacated.clear()
         for bid in change.renamed.get(key, ()):
             item = self.blocks.get(bid)
             if item is not None:
@@ -274,6 +283,7 @@ class CanvasScene(QGraphicsScene):
         self._ov_valid = False
         self.overview_revision += 1
         self._stages = None
+        self._staged = (None, [])
         design = self.design
         graph = self.graph
         old = self.folds
@@ -288,8 +298,8 @@ class CanvasScene(QGraphicsScene):
         self.wires_revision += 1
         for w in [w for w in self.wires if w not in graph.wires or folds.get(w.src, w.src) == folds.get(w.dst, w.dst)]:
             self._ov_lines.pop(w, None)
-            self._forget_pieces(w)
-            self.label_places.drop(w)
+            self._label_areas += self._forget_pieces(w)
+            self._label_dirty.add(w)
             self.removeItem(self.wires.pop(w))
             self._dirty_wires.discard(w)
         for bid, block in graph.blocks.items():
@@ -458,7 +468,7 @@ class CanvasScene(QGraphicsScene):
         """``(scene rectangle, name)`` of every card far out (``moving`` as for :meth:`overview_shapes`)."""
         self.overview_shapes()
         blocks, dragged = self.blocks, self.moving
-        return [(r, blocks[b].state.title) for _, rs in self._ov_rects.values() for b, r in rs.items()
+        return [(r, blocks[b].name_shown) for _, rs in self._ov_rects.values() for b, r in rs.items()
                 if moving is None or (b in dragged) == moving]
 
     def _moving_wires(self) -> set:
@@ -490,9 +500,14 @@ class CanvasScene(QGraphicsScene):
         return self.stage_cache("stages", self._make_stages)
 
     def _make_stages(self) -> list:
+        """The stages, made again only when the wiring, the folds or some block's resolution
+        changed (an edit of a width leaves them as they were)."""
         results = self.document.results()
         shapes = {b: (r.outs[0] if r is not None and r.outs else None) for b, r in results.items()}
-        return stage_groups(self.graph, shapes, self.folds)
+        key = {b: resolution(shape) for b, shape in shapes.items()}
+        if key != self._staged[0]:
+            self._staged = (key, stage_groups(self.graph, shapes, self.folds))
+        return self._staged[1]
 
     def _forget_places(self) -> None:
         """Drop what :meth:`stage_cache` keeps that depends on where cards are (the stages
@@ -543,6 +558,7 @@ class CanvasScene(QGraphicsScene):
             self.moving.add(block_id)
             self.overview_revision += 1
             self.wires_revision += 1
+            self._vacated.append(self.obstacles.rects.get(block_id))
         if self._ov_valid and block_id in self._ov_where:
             self._ov_rects[self._ov_where[block_id]][1][block_id] = CARD_RECT.translated(item.pos())
         self._label_areas += (self.obstacles.rects.get(block_id), _rect(item))
@@ -585,8 +601,10 @@ class CanvasScene(QGraphicsScene):
             labelled = len(out_wires.get(w.src, ())) < 2 or self._labelled(w, chosen)
             if not item.set_geometry(a, b, route(a, b, obstacles, (src, dst)), labelled):
                 continue
-            self._ov_lines[w] = item.points
             self._label_dirty.add(w)
+            if self._ov_lines.get(w) == item.points:
+                continue  # its shape or label changed, not its way: the overview is the same
+            self._ov_lines[w] = item.points
             self.wires_revision += 1
             if src not in moving and dst not in moving:
                 self.overview_revision += 1  # a still wire took another way
@@ -619,62 +637,75 @@ class CanvasScene(QGraphicsScene):
             self.place_labels()
 
     def place_labels(self) -> None:
-        """Place the labels of wires that changed, and of wires whose label or free room a card or
-        wire that came, went or moved may have touched, each clear of cards, wires and labels
-        (:mod:`layerloom.core.wire_labels`). Only wires in :attr:`label_region` are done now."""
-        wires, pending = self.wires, self._label_pending
+        """Place the labels of the tiles in :attr:`label_region` not placed yet, after dropping the
+        tiles where wires changed or cards or wires came, went or moved: each tile's labels afresh,
+        in the order of the wires' names, each clear of cards, wires and the tile's other labels
+        (:mod:`layerloom.core.wire_labels`), so what is placed does not depend on what was shown first."""
+        wires, placed, tile_wires = self.wires, self._tiles_placed, self._tile_wires
         if self._labels_all:
             self._labels_all = False
             self.pieces, self.label_places = Obstacles(), Obstacles()
-            self._pieces_pending, pending = set(wires), set(wires)
-            self._label_pending = pending
-            for item in wires.values():
+            self._pieces_pending = set(wires)
+            self._tile_of, self._tile_wires, self._tiles_placed = {}, {}, {}
+            tile_wires, placed = self._tile_wires, self._tiles_placed
+            for w, item in wires.items():
                 item.place_label(None)
+                self._assign_tile(w, item)
         else:
-            areas = self._label_areas
+            areas, dirty = self._label_areas, set()
             for w in self._label_dirty:
+                old = self._tile_of.pop(w, None)
+                if old is not None:
+                    tile_wires[old].discard(w)
+                    dirty.add(old)
                 if w in wires:
                     areas += self._forget_pieces(w)
-                    self.label_places.drop(w)
+                    areas.append(wires[w].wire_box)
                     self._pieces_pending.add(w)
-                    pending.add(w)
-            for area in areas:  # where cards or wires came or went: labels there, and labels that may fit now
-                if area is None:
-                    continue
-                left, top, right, bottom = area
-                for w in self.label_places.keys_within(left, top, right, bottom):
+                    dirty.add(self._assign_tile(w, wires[w]))
+                else:
+                    self._pieces_pending.discard(w)
+            for area in areas:
+                if area is not None:
+                    dirty.update(t for t in placed if _meets(tile_rect(t), area))
+            for tile in dirty & placed.keys():
+                for w in placed.pop(tile):
                     self.label_places.drop(w)
-                    wires[w].place_label(None)
-                    pending.add(w)
-                pending |= {k[0] for k in self.pieces.keys_within(left - LABEL_REACH[0], top - LABEL_REACH[1],
-                                                                  right + LABEL_REACH[0], bottom + LABEL_REACH[1])
-                            if wires[k[0]].label_box is None}
+                    if w in wires:
+                        wires[w].place_label(None)
         self._label_dirty.clear()
         self._label_areas = []
-        pending.intersection_update(wires)
         region = self.label_region
-        if region is not None:  # the region, and the wires near it whose pieces a label there must avoid
-            dx, dy = 2 * LABEL_REACH[0], 2 * LABEL_REACH[1]
-            near = (region[0] - dx, region[1] - dy, region[2] + dx, region[3] + dy)
-        for w in [w for w in self._pieces_pending if w in wires and (region is None or _meets(wires[w].wire_box, near))]:
-            self._pieces_pending.discard(w)
+        for tile in sorted(t for t, ws in tile_wires.items()
+                           if ws and t not in placed and (region is None or _meets(tile_rect(t), region))):
+            self._place_tile(tile)
+
+    def _assign_tile(self, w, item) -> tuple:
+        tile = self._tile_of[w] = tile_of(item.polyline())
+        self._tile_wires.setdefault(tile, set()).add(w)
+        return tile
+
+    def _place_tile(self, tile: tuple) -> None:
+        """Place the labels of the wires of ``tile``, inside it."""
+        wires, pending = self.wires, self._pieces_pending
+        left, top, right, bottom = box = tile_rect(tile)
+        for w in [w for w in pending if _meets(wires[w].wire_box, box)]:  # the pieces a label here must avoid
+            pending.discard(w)
             self._index_pieces(w, wires[w])
-        todo = {w for w in pending if region is None or _meets(wires[w].wire_box, region)}
-        if not todo:
-            return
-        pending -= todo
         cards, pieces, labels = self.obstacles, self.pieces, self.label_places
 
-        def blocked(left, top, right, bottom):
-            return (labels.blocked(left, top, right, bottom) or cards.blocked(left, top, right, bottom)
-                    or pieces.blocked(left, top, right, bottom))
+        def blocked(x0, y0, x1, y1):
+            return (x0 < left or y0 < top or x1 > right or y1 > bottom or labels.blocked(x0, y0, x1, y1)
+                    or cards.blocked(x0, y0, x1, y1) or pieces.blocked(x0, y0, x1, y1))
 
-        for w in [w for w in wires if w in todo]:  # in the wires' own order: the same picture every time
+        done = self._tiles_placed[tile] = []
+        for w in sorted(self._tile_wires[tile]):
             item = wires[w]
             item.place_label(label_spot(item.polyline(), item.label_size, item.width / 2, blocked)
                              if item.label else None)
             if item.label_box is not None:
                 labels.put(w, item.label_box)
+                done.append(w)
 
     def _labelled(self, w, chosen: dict) -> bool:
         """Whether wire ``w`` shows its shape: of the wires leaving one output, only the one to the

@@ -47,7 +47,9 @@ def _stage_texts(scene) -> list[tuple[str, QRectF]]:
     out = []
     number = 0
     places = scene.obstacles.rects
-    for key, cards in scene.stages():
+    stages = scene.stages()
+    handed_on = _stage_outputs(scene, results, {c: i for i, (_, cards) in enumerate(stages) for c in cards})
+    for i, (key, cards) in enumerate(stages):
         items = [scene.blocks[c] for c in cards if c in scene.blocks]
         if not items:
             continue
@@ -61,7 +63,7 @@ def _stage_texts(scene) -> list[tuple[str, QRectF]]:
         members = [*cards, *(chip for c in cards for chip in scene.chips_of(c))]
         macs = sum(results[b].cost.macs for b in members if results.get(b) is not None)
         share = f"{100 * macs / total:.0f} % MACs" if total else "no MACs"
-        handed = _stage_output(scene, results, set(cards), (scene.chips_of(cards[-1]) or cards)[-1])
+        handed = handed_on.get(i) or _output(results, (scene.chips_of(cards[-1]) or cards)[-1])
         shape = str(handed) if handed is not None else "shape unknown"
         rects = [places[c] for c in cards if c in places]  # the cards' rectangles as they stand now
         left, top = min(r[0] for r in rects), min(r[1] for r in rects)
@@ -70,20 +72,27 @@ def _stage_texts(scene) -> list[tuple[str, QRectF]]:
     return out
 
 
-def _stage_output(scene, results, cards: set, last: str):
-    """What a stage hands on: the largest tensor on a wire leaving it (a ResNet stage hands on its
-    last unit's output, not the narrower 1×1 that opens the next stage), else its last block's output."""
-    best = None
+def _stage_outputs(scene, results, stage_of: dict) -> dict:
+    """What each stage (by index in ``stage_of``: card → stage) hands on: the largest tensor on a
+    wire leaving it (a ResNet stage hands on its last unit's output, not the narrower 1×1 that
+    opens the next stage); stages with no such wire are left out."""
+    best: dict = {}
+    folds = scene.folds  # chip → its card (scene.card_of, without a call per wire end)
     for w in scene.graph.wires:
-        if scene.card_of(w.src) in cards and scene.card_of(w.dst) not in cards:
-            r = results.get(w.src)
-            shape = r.outs[w.src_port] if r is not None and w.src_port < len(r.outs) else None
-            if shape is not None and (best is None or shape.elements > best.elements):
-                best = shape
-    if best is None:
-        r = results.get(last)
-        best = r.outs[0] if r is not None and r.outs else None
+        stage = stage_of.get(folds.get(w.src, w.src))
+        if stage is None or stage_of.get(folds.get(w.dst, w.dst)) == stage:
+            continue
+        r = results.get(w.src)
+        shape = r.outs[w.src_port] if r is not None and w.src_port < len(r.outs) else None
+        if shape is not None and (stage not in best or shape.elements > best[stage].elements):
+            best[stage] = shape
     return best
+
+
+def _output(results, block: str):
+    """A block's first output, or None."""
+    r = results.get(block)
+    return r.outs[0] if r is not None and r.outs else None
 
 
 def labels(view) -> list[StageLabel]:

@@ -91,6 +91,7 @@ class CanvasView(QGraphicsView):
         self.setPalette(palette)
         self._pan_from: QPoint | None = None
         self._ov_cache: tuple | None = None  # (key, QPixmap) of the overview last drawn
+        self._ov_wires: tuple | None = None  # (key, QPixmap) of its still wires, kept while only cards change
         self._space = False
         self._draft: DraftWire | None = None
         self._draft_from: tuple[str, int] | None = None
@@ -162,18 +163,25 @@ class CanvasView(QGraphicsView):
 
     def _blit_overview(self, painter) -> None:
         """The overview of what the viewport shows, drawn once into a pixmap and kept until the
-        view's transform, size or what the scene shows changes (a still frame is one blit)."""
+        view's transform, size or what the scene shows changes (a still frame is one blit). Its
+        still wires are a pixmap of their own, kept while their path is (a change of cards alone,
+        such as a finding after an edit, redraws only the cards over them)."""
         t = self.viewportTransform()
         size = self.viewport().size()
-        key = (t.m11(), t.m22(), t.dx(), t.dy(), size.width(), size.height(), self.canvas_scene.overview_revision)
+        view = (t.m11(), t.m22(), t.dx(), t.dy(), size.width(), size.height())
+        key = (*view, self.canvas_scene.overview_revision)
+        exposed = self.mapToScene(self.viewport().rect()).boundingRect()
         if self._ov_cache is None or self._ov_cache[0] != key:
-            ratio = self.viewport().devicePixelRatioF()
-            pixmap = QPixmap(size * ratio)
-            pixmap.setDevicePixelRatio(ratio)
-            pixmap.fill(Qt.GlobalColor.transparent)
+            wires = self.canvas_scene.overview_wires(False)
+            if self._ov_wires is None or self._ov_wires[0] != view or self._ov_wires[1] is not wires:
+                p, pixmap = self._still_painter(t)
+                self._draw_wires(p, wires)
+                p.end()
+                self._ov_wires = (view, wires, pixmap)
+            pixmap = QPixmap(self._ov_wires[2])  # a copy: the cards are drawn over the wires
             p = QPainter(pixmap)
             p.setTransform(t)
-            self._draw_overview(p, self.mapToScene(self.viewport().rect()).boundingRect(), moving=False)
+            self._draw_overview(p, exposed, moving=False, wires=False)
             p.end()
             self._ov_cache = (key, pixmap)
         painter.save()
@@ -181,21 +189,38 @@ class CanvasView(QGraphicsView):
         painter.drawPixmap(0, 0, self._ov_cache[1])
         painter.restore()
         # the selection, and cards being dragged with their wires, drawn live on top
-        self._draw_overview(painter, self.mapToScene(self.viewport().rect()).boundingRect(), moving=True)
+        self._draw_overview(painter, exposed, moving=True)
+
+    def _still_painter(self, transform) -> tuple:
+        """A painter on a new transparent pixmap of the viewport's size, drawing in scene units."""
+        ratio = self.viewport().devicePixelRatioF()
+        pixmap = QPixmap(self.viewport().size() * ratio)
+        pixmap.setDevicePixelRatio(ratio)
+        pixmap.fill(Qt.GlobalColor.transparent)
+        p = QPainter(pixmap)
+        p.setTransform(transform)
+        return p, pixmap
 
     def shows_stage_summaries(self) -> bool:
         """Whether cards are too small here to show name and shape, so stage rows are labelled."""
         return self.transform().m11() < summary_zoom()
 
-    def _draw_overview(self, painter, exposed: QRectF, moving: bool | None = None) -> None:
-        """Far out, every wire and card in a few calls: cards as outlined rectangles (status and
-        selection by outline colour; specks when tiny), each with its name at a readable size
-        where the card is wide enough on screen to hold some of it."""
-        _, rects = self.canvas_scene.overview_shapes(moving)
-        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
+    @staticmethod
+    def _draw_wires(painter, path) -> None:
+        """Far out, wires as hairlines."""
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)
         painter.setPen(QPen(theme.WIRE, 0))
         painter.setBrush(Qt.BrushStyle.NoBrush)
-        painter.drawPath(self.canvas_scene.overview_wires(moving))
+        painter.drawPath(path)
+
+    def _draw_overview(self, painter, exposed: QRectF, moving: bool | None = None, wires: bool = True) -> None:
+        """Far out, every wire (unless not ``wires``) and card in a few calls: cards as outlined
+        rectangles (status and selection by outline colour; specks when tiny), each with its name
+        at a readable size where the card is wide enough on screen to hold some of it."""
+        _, rects = self.canvas_scene.overview_shapes(moving)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, False)  # hairlines and rectangles: no need
+        if wires:
+            self._draw_wires(painter, self.canvas_scene.overview_wires(moving))
         specks = self.zoom_level() < theme.SHAPE_MIN_DETAIL
         for colour, group in rects:
             if specks:
