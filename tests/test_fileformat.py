@@ -298,3 +298,31 @@ def test_messages_quote_and_shorten_values():
     with pytest.raises(LoomFileError) as e:
         parse(json.dumps(data), "n.loom")
     assert "\n" not in str(e.value) and "'two\\nlines'" in str(e.value)
+
+
+@pytest.mark.parametrize("limit", [2 ** 64 - 1, 2 ** 64 + 1, 2 ** 70 + 3, -(2 ** 63) - 1])
+def test_integers_beyond_64_bits_are_read_exactly(limit):
+    """A reader that keeps integers in 64 bits turns 2**70 + 3 into a float; Python's json (the
+    reference) keeps every integer exact. A budget limit is a whole number of any size."""
+    data = _sample_data()
+    data["budget"] = {"weights": limit}
+    text = json.dumps(data)
+    assert json.loads(text)["budget"]["weights"] == limit
+    if limit > 0:
+        assert parse(text).budget["weights"] == limit
+    else:
+        with pytest.raises(LoomFileError, match=f"budget.weights: {limit} is less than the minimum of 1"):
+            parse(text)
+
+
+def test_the_fast_reader_and_json_agree_on_every_sample():
+    """Every sample read by the reader used on open equals what Python's json reads."""
+    from pathlib import Path
+
+    from layerloom.core.values import JsonReader
+
+    for path in sorted(Path(__file__).parent.parent.joinpath("samples").glob("*.loom")):
+        text = path.read_text("utf-8")
+        reader = JsonReader()
+        assert reader.loads(text) == json.loads(text), path.name
+        assert reader.checked  # read by the fast reader, not the fallback

@@ -25,6 +25,7 @@ from layerloom.core.values import POSITION_LIMIT, JsonReader, bad_value, label, 
 from layerloom.core.layout import tidy_positions
 
 FORMAT, VERSION = "layerloom-design", 1
+_wire = tuple.__new__  # a Wire from checked values without NamedTuple's keyword handling (one per wire read)
 
 
 class LoomFileError(ValueError):
@@ -197,7 +198,7 @@ def _fill(design: Design, graph: str, blocks: list, wires: list, where: str) -> 
         if src not in made or dst not in made:
             end, bid = ("from", src) if src not in made else ("to", dst)
             raise LoomFileError(f"{where}wires[{i}].{end}: there is no block with id {quote(bid)}")
-        wire = Wire(src, int(sp), dst, int(dp))
+        wire = _wire(Wire, (src, sp if type(sp) is int else int(sp), dst, dp if type(dp) is int else int(dp)))
         if wire in seen:
             raise LoomFileError(f"{where}wires[{i}]: the same wire appears twice")
         seen[wire] = None

@@ -18,6 +18,8 @@ import re
 import unicodedata
 from typing import Any
 
+import orjson
+
 POSITION_LIMIT = 1e9
 """Farthest a block may lie from the canvas origin, in scene units."""
 QUOTE_LIMIT = 60
@@ -38,12 +40,21 @@ def check_text(value: str, what: str) -> str:
     return value
 
 
+_DIGITS = str.maketrans({chr(c): "0" if chr(c).isdigit() else " " for c in range(128)})
+_LONG_NUMBER = "0" * 19  # orjson reads an integer beyond 64 bits as a float: such text goes to json
+
+
 class JsonReader:
-    """``json.loads`` that notes whether any number read as infinity (``1e400``), so that the
-    walk of :func:`bad_value` runs only when the text may hold something to refuse."""
+    """Reads JSON text. orjson reads what it accepts (it refuses infinite numbers, lone
+    surrogates and NaN: nothing :func:`bad_value` would refuse); the rest, and text with a run of
+    19 digits or more (orjson reads integers beyond 64 bits as floats), is read by ``json.loads``,
+    whose messages give the line and column, noting whether any number read as infinity
+    (``1e400``), so that the walk of :func:`bad_value` runs only when the text may hold something
+    to refuse."""
 
     def __init__(self):
         self.infinite = False
+        self.checked = False  # read by orjson: nothing to refuse
 
     def _float(self, text: str) -> float:
         value = float(text)
@@ -52,11 +63,19 @@ class JsonReader:
         return value
 
     def loads(self, text: str, **options):
+        if _LONG_NUMBER not in text.translate(_DIGITS):
+            try:
+                value = orjson.loads(text)
+            except orjson.JSONDecodeError:
+                pass
+            else:
+                self.checked = True
+                return value
         return json.loads(text, parse_float=self._float, **options)
 
     def suspect(self, text: str) -> bool:
         """True when the text just read may hold an infinite number or a lone surrogate."""
-        return self.infinite or ("\\u" in text and _SURROGATE_ESCAPE.search(text) is not None)
+        return not self.checked and (self.infinite or ("\\u" in text and _SURROGATE_ESCAPE.search(text) is not None))
 
 
 def bad_value(data: Any) -> tuple[list, str] | None:
