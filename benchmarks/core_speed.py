@@ -10,6 +10,7 @@ Run: PYTHONPATH=src:benchmarks python benchmarks/core_speed.py
 """
 from __future__ import annotations
 
+import gc
 import statistics
 import time
 
@@ -18,6 +19,8 @@ from synthetic import residual_stack
 from layerloom.core.fileformat import dumps, parse
 from layerloom.core.kinds import KINDS
 from layerloom.core.ledger import Ledger
+
+REPEAT = 15  # passes timed per size: the machine is shared, so one slow moment spoils a short series
 
 
 def best_of(fn, repeat: int = 7) -> float:
@@ -33,10 +36,11 @@ def layerloom_pass(text: str) -> float:
     """Milliseconds of a full pass on a design loaded from ``text`` (loading not counted)."""
     def one():
         d = parse(text)
+        gc.collect()  # the design of the run before is garbage: freeing it is no part of this pass
         t = time.perf_counter()
         Ledger(d.analysis())
         return (time.perf_counter() - t) * 1000
-    return min(one() for _ in range(7))
+    return min(one() for _ in range(REPEAT))
 
 
 def torch_pass(design) -> float:
@@ -86,7 +90,7 @@ def machine_speed() -> float:
 def main() -> None:
     print(f"this machine: an empty million-step Python loop takes {machine_speed():.0f} ms "
           "(a recent laptop: about 15 ms)")
-    print("Layerloom shape + cost pass (best of 7, ms) against torch meta device + FlopCounterMode (best of 3, ms)")
+    print(f"Layerloom shape + cost pass (best of {REPEAT}, ms) against torch meta device + FlopCounterMode (best of 3, ms)")
     designs = [residual_stack(n) for n in (500, 2000, 5000)]
     # ours first: the editor and the command line never hold torch, whose many objects would make
     # every full cycle collection during our pass slower

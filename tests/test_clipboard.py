@@ -1,5 +1,6 @@
 """Copy and paste of blocks (layerloom.core.clipboard): no Qt needed."""
 import json
+import re
 
 import pytest
 
@@ -7,6 +8,7 @@ from layerloom.core.clipboard import ClipboardError, copy_blocks, from_text, pas
 from layerloom.core.design import Design
 from layerloom.core.fileformat import dumps
 from layerloom.core.graph import Wire
+from layerloom.core.values import quote
 
 
 def bottleneck():
@@ -76,6 +78,12 @@ def test_bad_copied_blocks_name_the_place_and_value():
     data["blocks"][0]["kind"] = {"out_channels": -5}  # not text at all (found by LAYERLOOM_LONG=1)
     with pytest.raises(ClipboardError, match="unknown block kind"):
         paste_edit(d, data)
+    data["blocks"][0]["kind"] = "Input"
+    for settings in ("NoSuchKind", [3, 1]):  # settings that are not named values (found by LAYERLOOM_LONG=1)
+        data["blocks"][0]["settings"] = settings
+        with pytest.raises(ClipboardError, match=r"copied block 1 \(c\): settings must be named values .*, not "
+                                                 + re.escape(quote(settings))):
+            paste_edit(d, data)
 
 
 def test_pasted_text_with_an_infinite_position_or_invalid_text_is_refused():

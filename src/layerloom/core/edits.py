@@ -160,6 +160,8 @@ def check_settings(design, kind: str, settings: dict, graph: str = "") -> dict:
     if not isinstance(kind, str) or kind not in KINDS:
         raise EditError(f"unknown block kind {quote(kind)}; known kinds: {', '.join(KINDS)}")
     spec = KINDS[kind]
+    if not isinstance(settings, dict):
+        raise SettingError(f"settings must be named values such as {{\"stride\": 2}}, not {quote(settings)}")
     params = design.motifs[graph].params if graph else {}
     plain, refs = {}, {}
     for key, value in settings.items():
