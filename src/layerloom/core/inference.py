@@ -260,14 +260,6 @@ class GraphInference:
                 for b in self.wiring.unreached if not out_wires[b]]
 
     # ----- one step
-    def _settle(self, bid: str, ins: tuple, known: tuple, rf: tuple, jump: tuple, found: list | None = None) -> bool:
-        """Store the result of a block whose kind's rules gave ``known`` = (outputs, cost, window)
-        for inputs ``ins`` reached by receptive field ``rf`` and ``jump``."""
-        outs, cost, window = known
-        if window is not None:
-            rf, jump = _through(window, rf, jump)
-        return self._store(bid, _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None)), found)
-
     def _store(self, bid: str, result: Result | None, found: list | None) -> bool:
         """Keep ``bid``'s result and findings; True when its outputs or receptive field changed."""
         results = self.results
@@ -327,7 +319,10 @@ class GraphInference:
                     known = self._rule(blk, kind, s, ins, found)
                     if not found and len(self.memo) < MEMO_LIMIT:
                         self.memo[key] = known
-                return self._settle(bid, ins, known, rf, jump, found)
+                outs, cost, window = known
+                if window is not None:
+                    rf, jump = _through(window, rf, jump)
+                result = _new(Result, (ins, outs, cost, rf, jump, 0, 0, None, None))
         except Stop as e:
             found.append(Finding(e.code, ERROR, bid, e.message, e.port, e.numbers))
         return self._store(bid, result, found)
